@@ -6,6 +6,7 @@ export * from "./features";
 export * from "./moments";
 export * from "./estimators";
 export * from "./mcd";
+export * from "./random";
 export * from "./diagnostics";
 export * from "./artifact";
 export * from "./score";

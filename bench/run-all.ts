@@ -1,0 +1,53 @@
+/**
+ * `npm run bench`: the model core's figures — scoring kernel vectors/s against C, fit throughput and
+ * peak memory for 100k and 1M rows of 32 columns — printed and written to bench/results/core.json.
+ * The service benchmarks (worker load, review UI) run after it when their scripts exist.
+ */
+import { execFileSync } from "node:child_process";
+import { existsSync, mkdirSync, writeFileSync } from "node:fs";
+import { cpus } from "node:os";
+import { benchKernel } from "./kernel";
+
+const root = new URL("../", import.meta.url);
+const resultsDir = new URL("bench/results/", root);
+mkdirSync(resultsDir, { recursive: true });
+
+console.log("scoring kernel (d² over the symmetric half of the precision matrix), 1.5 s per side and size");
+const kernel = benchKernel();
+for (const k of kernel) {
+  const c = k.cVectorsPerSecond === null ? "C compiler unavailable" : `C -O3 ${k.cVectorsPerSecond.toLocaleString("en")} /s, ratio ${k.ratioToC}`;
+  console.log(`  n=${String(k.n).padStart(2)}  TypeScript ${k.typescriptVectorsPerSecond.toLocaleString("en")} vectors/s   ${c}`);
+}
+
+console.log("fit throughput, classical full covariance, 32 columns (each size in its own process)");
+const fit = [100_000, 1_000_000].map((rows) => {
+  const out = execFileSync(process.execPath, ["bin/run-ts.js", "bench/fit-child.ts", String(rows), "32"], {
+    cwd: root,
+    encoding: "utf8",
+    maxBuffer: 1 << 20,
+  });
+  const figure = JSON.parse(out.trim().split("\n").pop() ?? "{}");
+  console.log(`  ${rows.toLocaleString("en")} rows: ${figure.rowsPerSecond.toLocaleString("en")} rows/s, ${figure.seconds} s, peak RSS ${figure.peakRssMiB} MiB`);
+  return figure;
+});
+
+const summary = {
+  measuredAt: new Date().toISOString(),
+  machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version },
+  kernel,
+  fit,
+  targets: {
+    kernelAtLeastHalfOfC: kernel.find((k) => k.n === 32)?.ratioToC ?? null,
+    fitMemoryRatio1MTo100k: Number((fit[1].peakRssMiB / fit[0].peakRssMiB).toFixed(3)),
+  },
+};
+writeFileSync(new URL("core.json", resultsDir), JSON.stringify(summary, null, 2) + "\n");
+console.log(`written bench/results/core.json`);
+
+// Service benchmarks live beside this one; run them when present.
+for (const script of ["worker-load.ts", "review-ui.ts"]) {
+  if (existsSync(new URL(script, import.meta.url))) {
+    console.log(`\n— ${script} —`);
+    execFileSync(process.execPath, ["bin/run-ts.js", `bench/${script}`], { cwd: root, stdio: "inherit" });
+  }
+}

@@ -1,0 +1,154 @@
+/**
+ * `isodense fit <ledger.csv> --out model.json …`: fits the Gaussian model to the normal traffic of
+ * a ledger (rows labelled fraud are left out), prints what it did, and writes the artifact only
+ * when everything succeeded.
+ */
+import { readFile } from "node:fs/promises";
+import { basename, resolve } from "node:path";
+import { FeatureSpecError, parseFeatureSpec } from "../../shared-model/src/features";
+import { fitModel, type FitOptions } from "../../shared-model/src/fit";
+import type { CovarianceShapeRequest, EstimatorName, FeatureDeclaration } from "../../shared-model/src/types";
+import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
+import { EXIT_OK, InputError, reportFailure } from "../errors";
+import { checkOutputPath, writeFileAtomic } from "../files";
+import { processIO, writeLines, type CommandIO } from "../io";
+import { LedgerRowSource } from "../ledger";
+import { createProgress } from "../progress";
+
+/** Command line of `isodense fit`. */
+export const fitSpec: CommandSpec = {
+  command: "isodense fit",
+  summary:
+    "Fits mean and covariance of the normal payments in a ledger (CSV with a header row) and writes a sealed model file. " +
+    "Rows labelled fraud (label fraud or 1) are left out; unlabelled rows are kept.",
+  positionals: [{ name: "ledger.csv", description: "payments, one per row, with a header row" }],
+  options: [
+    { name: "out", kind: "string", valueName: "model.json", description: "where to write the model (required)" },
+    { name: "features", kind: "string", valueName: "a,b,…", description: "numeric columns used as they are (no transform)" },
+    { name: "spec", kind: "string", valueName: "spec.json", description: 'feature spec with transforms: {"features":[{"name":"amount","transform":"log"}]}' },
+    { name: "covariance", kind: "string", choices: ["full", "diagonal", "auto"], description: "covariance shape; auto is full when rows ≥ 10 × columns", defaultText: "auto" },
+    { name: "estimator", kind: "string", choices: ["classical", "shrinkage", "robust"], description: "covariance estimator", defaultText: "classical" },
+    { name: "id-column", kind: "string", valueName: "column", description: "id column (kept out of the features)", defaultText: "id if present" },
+    { name: "label-column", kind: "string", valueName: "column", description: "review labels: fraud/legitimate or 1/0, empty = not reviewed", defaultText: "label if present" },
+    { name: "segment-by", kind: "string", valueName: "column", description: "fit one model per value of this column, pooled for small ones" },
+    { name: "cutoff-rate", kind: "number", valueName: "rate", greaterThan: 0, lessThan: 1, description: "share of training rows the cutoff flags", defaultText: "0.01" },
+    { name: "seed", kind: "integer", valueName: "N", min: 0, max: 2 ** 32 - 1, description: "seed for sampling and the robust fit", defaultText: "1" },
+    { name: "min-segment-rows", kind: "integer", valueName: "N", min: 1, description: "rows a segment value needs for its own model", defaultText: "max(10 × columns, 200)" },
+  ],
+  notes: [
+    "Give exactly one of --features and --spec.",
+    "Exit codes: 0 written; 1 refused by diagnostics (each printed with its remedy; nothing written); 2 usage or input error.",
+  ],
+};
+
+/**
+ * Runs `isodense fit` with the words after `fit`.
+ * @returns the exit code (0, 1 or 2; 3 for an internal error)
+ * @example await fitCommand(["ledger.csv", "--out", "model.json", "--features", "amount,items"])
+ */
+export async function fitCommand(argv: string[], io: CommandIO = processIO()): Promise<number> {
+  const progress = createProgress(io.stderr);
+  try {
+    const args = parseArgs(argv, fitSpec);
+    if (args.help) {
+      io.stdout.write(formatHelp(fitSpec));
+      return EXIT_OK;
+    }
+    const [ledgerPath] = args.positionals;
+    const out = stringOption(args, "out");
+    if (out === undefined) throw new UsageError("--out", "required", "option --out is required (where to write the model file)");
+    if (resolve(out) === resolve(ledgerPath)) {
+      throw new UsageError("--out", "same as the ledger", `option --out names the ledger itself (${out}); choose another file`);
+    }
+    const features = await readFeatures(stringOption(args, "features"), stringOption(args, "spec"));
+    await checkOutputPath(out, "--out");
+    const segmentBy = stringOption(args, "segment-by") ?? null;
+
+    const source = new LedgerRowSource(ledgerPath, {
+      features,
+      idColumn: stringOption(args, "id-column"),
+      labelColumn: stringOption(args, "label-column"),
+      segmentColumn: segmentBy,
+    });
+    // Header and columns are checked before the first pass, so a typo fails at once.
+    await source.layout();
+
+    const options: FitOptions = {
+      features,
+      shape: (stringOption(args, "covariance") ?? "auto") as CovarianceShapeRequest,
+      estimator: (stringOption(args, "estimator") ?? "classical") as EstimatorName,
+      segmentBy,
+      minSegmentRows: numberOption(args, "min-segment-rows"),
+      cutoffRate: numberOption(args, "cutoff-rate") ?? 0.01,
+      seed: numberOption(args, "seed"),
+      source: basename(ledgerPath),
+      // Counted by the source while it streams; fitModel reads them after its last pass.
+      get rowsRead() {
+        return source.counts.rowsRead;
+      },
+      get rowsExcludedAsFraud() {
+        return source.counts.rowsExcludedAsFraud;
+      },
+      onProgress: (pass, rows) => progress.update(pass, rows),
+    };
+    const { artifact, report } = await fitModel(source, options);
+    progress.done();
+    await writeFileAtomic(out, JSON.stringify(artifact, null, 2) + "\n");
+    writeLines(io.stdout, [...report.lines, `wrote model ${artifact.version} to ${out}`]);
+    return EXIT_OK;
+  } catch (error) {
+    progress.done();
+    return reportFailure(error, io, fitSpec.command);
+  }
+}
+
+/**
+ * Feature declarations from `--features a,b` (no transform) or `--spec file.json`; exactly one.
+ * @throws UsageError when both or neither are given or a name is empty; InputError when the spec
+ *   file is missing or not JSON; FeatureSpecError when the spec breaks a rule.
+ */
+export async function readFeatures(list: string | undefined, specPath: string | undefined): Promise<FeatureDeclaration[]> {
+  if (list !== undefined && specPath !== undefined) {
+    throw new UsageError("--features", "exclusive with --spec", "give either --features or --spec, not both");
+  }
+  if (list !== undefined) {
+    const names = list.split(",").map((name) => name.trim());
+    const empty = names.findIndex((name) => name === "");
+    if (empty >= 0) {
+      throw new UsageError("--features", "empty name", `option --features has an empty name at position ${empty + 1}; write names separated by commas, e.g. amount,items`);
+    }
+    try {
+      // The spec's rules (name length, characters) apply to names given on the command line too.
+      return parseFeatureSpec({ features: names.map((name) => ({ name, transform: "none" })) });
+    } catch (error) {
+      if (error instanceof FeatureSpecError) {
+        throw new UsageError("--features", error.rule, `option --features: ${error.problems.map((p) => `${p.field.replace(/^features\[(\d+)\]\.name$/, (_, k) => `name ${Number(k) + 1}`)} ${p.rule}`).join("; ")}`);
+      }
+      throw error;
+    }
+  }
+  if (specPath === undefined) {
+    throw new UsageError("--features", "required", "give the features: --features a,b,… (used as they are) or --spec spec.json (with transforms)");
+  }
+  let text: string;
+  try {
+    text = await readFile(specPath, "utf8");
+  } catch (error) {
+    const code = (error as { code?: string }).code;
+    throw new InputError("--spec", "cannot read", `--spec ${specPath}: ${code === "ENOENT" ? "file not found" : (error as Error).message}`);
+  }
+  let json: unknown;
+  try {
+    json = JSON.parse(text);
+  } catch (error) {
+    throw new InputError("--spec", "not JSON", `--spec ${specPath} is not valid JSON: ${(error as Error).message}`);
+  }
+  try {
+    return parseFeatureSpec(json);
+  } catch (error) {
+    if (error instanceof FeatureSpecError) {
+      throw new InputError("--spec", error.rule, `--spec ${specPath}: ${error.problems.map((p) => `${p.field} ${p.rule}`).join("; ")}`);
+    }
+    throw error;
+  }
+}

@@ -1,0 +1,236 @@
+/**
+ * Reading a payment ledger (CSV) into model inputs: the raw feature values in feature order, the
+ * optional id, label and segment of every row, all validated with file/line/column errors.
+ *
+ * Labels: `fraud`/`legitimate` or `1`/`0`, case-insensitive, surrounding spaces ignored; an empty
+ * cell means "not reviewed" and the row is kept. Rows labelled fraud are left out of every fit, so
+ * confirmed fraud never widens the covariance that is meant to describe normal traffic.
+ */
+import type { FeatureDeclaration } from "../shared-model/src/types";
+import { checkRawValue } from "../shared-model/src/features";
+import type { FitRow, RowSource } from "../shared-model/src/fit";
+import { CsvError, numberCell, openCsvTable, requireColumn, type CsvReadOptions } from "./csv";
+
+/** A review outcome: `fraud`, `legitimate`, or `null` when the row was never reviewed. */
+export type Label = "fraud" | "legitimate" | null;
+
+/** The header name used for labels when `--label-column` is not given and the ledger has it. */
+export const DEFAULT_LABEL_COLUMN = "label";
+/** The header name used for ids when `--id-column` is not given and the ledger has it. */
+export const DEFAULT_ID_COLUMN = "id";
+
+/**
+ * Reads a label cell.
+ * @returns the label, `null` for an empty cell, or `undefined` when the text is not a label.
+ * @example parseLabel(" Fraud ") // "fraud"
+ * @example parseLabel("0") // "legitimate"
+ */
+export function parseLabel(text: string): Label | undefined {
+  const value = text.trim().toLowerCase();
+  if (value === "") return null;
+  if (value === "fraud" || value === "1") return "fraud";
+  if (value === "legitimate" || value === "0") return "legitimate";
+  return undefined;
+}
+
+/**
+ * Reads a label cell or raises an error that names the line and the column.
+ * @throws CsvError "ledger.csv line 9, column 'label': 'maybe' is not a label; expected fraud, legitimate, 1, 0 or an empty cell"
+ */
+export function labelCell(text: string, file: string, line: number, column: string): Label {
+  const label = parseLabel(text);
+  if (label === undefined) {
+    throw new CsvError(file, line, column, `'${text}' is not a label; expected fraud, legitimate, 1, 0 or an empty cell`);
+  }
+  return label;
+}
+
+/** Which columns of a ledger to read. */
+export interface LedgerRequest {
+  /** Features, read as raw numbers in this order. */
+  features: readonly FeatureDeclaration[];
+  /** Id column; must exist when given. When absent, `id` is used if the header has it. */
+  idColumn?: string;
+  /** Label column; must exist when given. When absent, `label` is used if the header has it. */
+  labelColumn?: string;
+  /** Segment column; must exist when given. */
+  segmentColumn?: string | null;
+}
+
+/** Column positions resolved against one ledger's header. */
+export interface LedgerLayout {
+  file: string;
+  header: string[];
+  /** Header index of each feature, in feature order. */
+  featureIndex: number[];
+  /** Id column and its index, or `null`/-1 when rows are numbered instead. */
+  idColumn: string | null;
+  idIndex: number;
+  /** Label column and its index, or `null`/-1 when the ledger has no labels. */
+  labelColumn: string | null;
+  labelIndex: number;
+  /** Segment column and its index, or `null`/-1. */
+  segmentColumn: string | null;
+  segmentIndex: number;
+}
+
+/**
+ * Resolves the requested columns against a header.
+ * @throws CsvError naming the missing column and listing the header, a feature listed twice, or a
+ *   feature that is also the id, label or segment column.
+ */
+export function resolveLedgerLayout(header: readonly string[], file: string, request: LedgerRequest): LedgerLayout {
+  const seen = new Set<string>();
+  for (const feature of request.features) {
+    if (seen.has(feature.name)) {
+      throw new CsvError(file, null, feature.name, "feature listed twice", `feature '${feature.name}' is listed twice; list each feature once`);
+    }
+    seen.add(feature.name);
+  }
+  const featureIndex = request.features.map((f) => requireColumn(header, f.name, file, "feature"));
+  const idColumn = request.idColumn ?? (header.includes(DEFAULT_ID_COLUMN) ? DEFAULT_ID_COLUMN : null);
+  const idIndex = idColumn === null ? -1 : requireColumn(header, idColumn, file, "--id-column");
+  const labelColumn = request.labelColumn ?? (header.includes(DEFAULT_LABEL_COLUMN) ? DEFAULT_LABEL_COLUMN : null);
+  const labelIndex = labelColumn === null ? -1 : requireColumn(header, labelColumn, file, "--label-column");
+  const segmentColumn = request.segmentColumn ?? null;
+  const segmentIndex = segmentColumn === null ? -1 : requireColumn(header, segmentColumn, file, "segment column");
+  const roles: [string | null, string][] = [
+    [idColumn, "the id column"],
+    [labelColumn, "the label column"],
+    [segmentColumn, "the segment column"],
+  ];
+  for (const [column, role] of roles) {
+    if (column !== null && seen.has(column)) {
+      throw new CsvError(
+        file,
+        null,
+        column,
+        "feature reuses a special column",
+        `column '${column}' of ${file} is both a feature and ${role}; features must be numeric columns other than the id, label and segment columns`,
+      );
+    }
+  }
+  return { file, header: [...header], featureIndex, idColumn, idIndex, labelColumn, labelIndex, segmentColumn, segmentIndex };
+}
+
+/** One validated ledger row. */
+export interface LedgerRow {
+  /** 1-based physical line where the row starts. */
+  line: number;
+  /** 1-based data-row number (the header is row 0). */
+  rowNumber: number;
+  /** The id cell, or the row number as text when the ledger has no id column. */
+  id: string;
+  label: Label;
+  /** Segment value; `null` when there is no segment column or the cell is empty. */
+  segment: string | null;
+  /** Raw feature values in feature order (a fresh array per row). */
+  values: Float64Array;
+}
+
+/** A ledger opened for one pass. */
+export interface OpenLedger {
+  layout: LedgerLayout;
+  /** Validated rows; exhaust it or call `return()` to close the file. */
+  rows: AsyncGenerator<LedgerRow, void, undefined>;
+}
+
+/**
+ * Opens a ledger and streams its validated rows. Every feature cell is parsed strictly and checked
+ * against its transform's domain (e.g. `log` needs > 0).
+ * @throws CsvError for any problem with the file, the header or a cell, naming file, line and column.
+ */
+export async function openLedger(path: string, request: LedgerRequest, options: CsvReadOptions = {}): Promise<OpenLedger> {
+  const table = await openCsvTable(path, options);
+  let layout: LedgerLayout;
+  try {
+    layout = resolveLedgerLayout(table.header, table.file, request);
+  } catch (error) {
+    await table.rows.return();
+    throw error;
+  }
+  const { file, header } = table;
+  const features = request.features;
+  const k = features.length;
+  async function* rows(): AsyncGenerator<LedgerRow, void, undefined> {
+    let rowNumber = 0;
+    for await (const record of table.rows) {
+      rowNumber++;
+      const cells = record.cells;
+      const values = new Float64Array(k);
+      for (let j = 0; j < k; j++) {
+        const column = header[layout.featureIndex[j]];
+        const value = numberCell(cells[layout.featureIndex[j]], file, record.line, column);
+        const problem = checkRawValue(features[j], value);
+        if (problem !== null) throw new CsvError(file, record.line, column, problem);
+        values[j] = value;
+      }
+      const label = layout.labelIndex < 0 ? null : labelCell(cells[layout.labelIndex], file, record.line, header[layout.labelIndex]);
+      const segmentText = layout.segmentIndex < 0 ? "" : cells[layout.segmentIndex];
+      yield {
+        line: record.line,
+        rowNumber,
+        id: layout.idIndex < 0 ? String(rowNumber) : cells[layout.idIndex],
+        label,
+        segment: segmentText === "" ? null : segmentText,
+        values,
+      };
+    }
+  }
+  return { layout, rows: rows() };
+}
+
+/** Row counts of the last complete pass over a ledger. */
+export interface LedgerCounts {
+  /** Data rows in the file. */
+  rowsRead: number;
+  /** Rows labelled fraud, left out of the fit. */
+  rowsExcludedAsFraud: number;
+  /** Rows handed to the fit. */
+  rowsUsed: number;
+}
+
+/**
+ * A ledger as the fit's re-iterable {@link RowSource}: each `pass()` re-reads the file from the
+ * first row (streaming, never loading it whole) and yields the rows not labelled fraud.
+ * `counts` holds the numbers of the last complete pass.
+ * @example
+ * const source = new LedgerRowSource("ledger.csv", { features, segmentColumn: "channel" });
+ * const { artifact } = await fitModel(source, { ...options, get rowsRead() { return source.counts.rowsRead; } });
+ */
+export class LedgerRowSource implements RowSource {
+  /** Counts of the last complete pass (zero before the first). */
+  counts: LedgerCounts = { rowsRead: 0, rowsExcludedAsFraud: 0, rowsUsed: 0 };
+
+  constructor(
+    private readonly path: string,
+    private readonly request: LedgerRequest,
+    private readonly options: CsvReadOptions = {},
+  ) {}
+
+  /** Opens the ledger once to check its header and columns, without reading the rows. */
+  async layout(): Promise<LedgerLayout> {
+    const ledger = await openLedger(this.path, this.request, this.options);
+    await ledger.rows.return();
+    return ledger.layout;
+  }
+
+  async *pass(): AsyncGenerator<FitRow, void, undefined> {
+    const ledger = await openLedger(this.path, this.request, this.options);
+    const counts: LedgerCounts = { rowsRead: 0, rowsExcludedAsFraud: 0, rowsUsed: 0 };
+    try {
+      for await (const row of ledger.rows) {
+        counts.rowsRead++;
+        if (row.label === "fraud") {
+          counts.rowsExcludedAsFraud++;
+          continue;
+        }
+        counts.rowsUsed++;
+        yield { values: row.values, segment: row.segment };
+      }
+    } finally {
+      await ledger.rows.return();
+    }
+    this.counts = counts;
+  }
+}

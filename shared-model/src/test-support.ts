@@ -1,0 +1,126 @@
+/**
+ * Test support for artifact, score and reasons tests: assembles small sealed artifacts from
+ * hand-made Gaussians (invented numbers for a fictional shop) through the real builder and
+ * sealer, and reads the reference CSV files. Not part of the public surface (index.ts does not
+ * export it).
+ */
+import { buildSegment, sealArtifact } from "./artifact";
+import type { ModelArtifact, UnsealedArtifact, ArtifactSegment } from "./artifact";
+import { chiSquareSurvival } from "./distributions";
+import { columnsOf } from "./features";
+import type { CovarianceShape, EstimatorDetails, FittedFeature, TransformKind } from "./types";
+
+const LN_2PI = Math.log(2 * Math.PI);
+const CLASSICAL: EstimatorDetails = { estimator: "classical", denominator: "m" };
+
+/** A fitted feature with the columns its transform produces. */
+export function fitted(name: string, transform: TransformKind, lambda?: number): FittedFeature {
+  const decl = { name, transform };
+  return lambda === undefined ? { ...decl, columns: columnsOf(decl) } : { ...decl, lambda, columns: columnsOf(decl) };
+}
+
+/** One segment's Gaussian for a fixture: mean (length n) and covariance (n×n row-major). */
+export interface FixtureSegment {
+  mean: ArrayLike<number>;
+  covariance: ArrayLike<number>;
+  rows?: number;
+}
+
+/** Options of {@link unsealedFixture}. */
+export interface FixtureOptions {
+  features: FittedFeature[];
+  /** Must contain `*`. */
+  segments: Record<string, FixtureSegment>;
+  shape?: CovarianceShape;
+  cutoffMahalanobisSq?: number;
+  segmentBy?: string | null;
+  segmentFallbacks?: Record<string, string>;
+}
+
+/** A consistent, unsealed artifact built with the real {@link buildSegment}. */
+export function unsealedFixture(options: FixtureOptions): UnsealedArtifact {
+  const columns = options.features.flatMap((f) => f.columns);
+  const n = columns.length;
+  const segments: Record<string, ArtifactSegment> = {};
+  for (const key of Object.keys(options.segments)) {
+    const s = options.segments[key];
+    segments[key] = buildSegment(
+      Float64Array.from(s.mean),
+      Float64Array.from(s.covariance),
+      n,
+      s.rows ?? 500,
+      CLASSICAL,
+      columns,
+    );
+  }
+  const cut = options.cutoffMahalanobisSq ?? 3 * n;
+  const logDensity: Record<string, number> = {};
+  for (const key of Object.keys(segments)) logDensity[key] = -0.5 * (n * LN_2PI + segments[key].logDet + cut);
+  const pooled = segments["*"];
+  const columnEdges = columns.map((_, j) => {
+    const mu = pooled.mean[j];
+    const sd = Math.sqrt(pooled.covariance[j][j]);
+    return [mu - 1.2816 * sd, mu, mu + 1.2816 * sd];
+  });
+  const multiSegment = Object.keys(segments).length > 1 || Object.keys(options.segmentFallbacks ?? {}).length > 0;
+  return {
+    format: "isodense.model/v1",
+    version: "m20261201-0a1b2c3d",
+    createdAt: "2026-12-01T09:30:00Z",
+    features: options.features,
+    columns,
+    covarianceShape: options.shape ?? "full",
+    shapeReason: "requested by the test",
+    estimator: "classical",
+    segmentBy: options.segmentBy !== undefined ? options.segmentBy : multiSegment ? "channel" : null,
+    minSegmentRows: 320,
+    segments,
+    segmentFallbacks: options.segmentFallbacks ?? {},
+    cutoff: {
+      mahalanobisSq: cut,
+      tailProbability: chiSquareSurvival(cut, n),
+      logDensity,
+      basis: "flag-rate",
+      flagRate: 0.01,
+    },
+    training: { rowsRead: 1200, rowsUsed: 1180, rowsExcludedAsFraud: 20, source: "ledger-fixture.csv" },
+    diagnostics: [],
+    reference: { columnEdges, scoreEdges: [0.5, 1.5, 3] },
+  };
+}
+
+/** {@link unsealedFixture}, sealed with the real {@link sealArtifact}. */
+export async function sealedFixture(options: FixtureOptions): Promise<ModelArtifact> {
+  return sealArtifact(unsealedFixture(options));
+}
+
+/** Deep copy through JSON, as an artifact travels. */
+export function jsonCopy<T>(value: T): T {
+  return JSON.parse(JSON.stringify(value)) as T;
+}
+
+/**
+ * Parses a small numeric CSV with a header row; returns the header and the rows as numbers
+ * (non-numeric cells, such as iris's species, become NaN).
+ */
+export function parseCsv(text: string): { header: string[]; rows: number[][] } {
+  const lines = text.trim().split(/\r?\n/);
+  const header = lines[0].split(",").map((h) => h.replace(/^"|"$/g, ""));
+  const rows = lines.slice(1).map((line) => line.split(",").map((cell) => Number(cell.replace(/^"|"$/g, ""))));
+  return { header, rows };
+}
+
+/** A random symmetric positive definite n×n matrix A·Aᵀ + ridge·I from entries in [−1, 1]. */
+export function spdFrom(entries: readonly number[], n: number, ridge: number): Float64Array {
+  const s = new Float64Array(n * n);
+  for (let i = 0; i < n; i++) {
+    for (let j = 0; j <= i; j++) {
+      let v = 0;
+      for (let k = 0; k < n; k++) v += entries[i * n + k] * entries[j * n + k];
+      s[i * n + j] = v;
+      s[j * n + i] = v;
+    }
+    s[i * n + i] += ridge;
+  }
+  return s;
+}
