@@ -13,6 +13,11 @@ export default defineConfig({
           testTimeout: 60_000,
         },
       },
+      // Worker suites (unit tests of worker/src in Node, integration tests on workerd).
+      "worker/vitest.config.ts",
+      // The review app's pure modules, then the browser tests against wrangler dev.
+      "review-ui/vitest.config.ts",
+      "test/e2e/vitest.config.ts",
     ],
   },
 });

@@ -13,8 +13,8 @@ function capture(): { io: CommandIO; out: () => string; err: () => string } {
 }
 
 describe("the isodense dispatcher", () => {
-  it("lists fit, score, publish and demo-ledger in its help", async () => {
-    expect(COMMANDS.map((c) => c.name)).toEqual(["fit", "score", "publish", "demo-ledger"]);
+  it("lists fit, score, tune, refit, publish and demo-ledger in its help", async () => {
+    expect(COMMANDS.map((c) => c.name)).toEqual(["fit", "score", "tune", "refit", "publish", "demo-ledger"]);
     const c = capture();
     expect(await main(["--help"], c.io)).toBe(0);
     expect(c.out()).toBe(topLevelHelp());
@@ -31,7 +31,7 @@ describe("the isodense dispatcher", () => {
   it("names an unknown command and lists the known ones", async () => {
     const c = capture();
     expect(await main(["tune-up"], c.io)).toBe(2);
-    expect(c.err()).toBe("isodense: unknown command 'tune-up'; commands are: fit, score, publish, demo-ledger\nrun 'isodense --help' for usage\n");
+    expect(c.err()).toBe("isodense: unknown command 'tune-up'; commands are: fit, score, tune, refit, publish, demo-ledger\nrun 'isodense --help' for usage\n");
   });
 
   it("runs a command's --help through 'isodense help <command>' and prints the version", async () => {

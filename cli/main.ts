@@ -43,6 +43,16 @@ export const COMMANDS: readonly CommandEntry[] = [
     load: async () => (await import("./commands/score")).scoreCommand,
   },
   {
+    name: "tune",
+    summary: "choose a new cutoff from labelled payments and write a new model version",
+    load: async () => (await import("./commands/tune")).tuneCommand,
+  },
+  {
+    name: "refit",
+    summary: "fit a candidate on a ledger without the confirmed fraud and compare it with the live model",
+    load: async () => (await import("./commands/refit")).refitCommand,
+  },
+  {
     name: "publish",
     summary: "publish a model file to the scoring service",
     load: () => loadOptional("./commands/publish.ts", "publishCommand"),

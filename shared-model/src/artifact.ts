@@ -290,11 +290,11 @@ function writeCanonical(value: unknown, path: (string | number)[], out: string[]
 
 /**
  * Lower-case hex SHA-256 of the UTF-8 bytes of `text`, with the Web Crypto API (Node 20, workerd
- * and browsers all provide `globalThis.crypto.subtle`).
+ * and browsers all provide the Web Crypto `crypto.subtle`).
  * @example await sha256Hex("abc") // "ba7816bf…f20015ad" (FIPS 180-2, Appendix B.1)
  */
 export async function sha256Hex(text: string): Promise<string> {
-  const digest = await globalThis.crypto.subtle.digest("SHA-256", new TextEncoder().encode(text));
+  const digest = await crypto.subtle.digest("SHA-256", new TextEncoder().encode(text));
   const bytes = new Uint8Array(digest);
   let hex = "";
   for (const b of bytes) hex += b.toString(16).padStart(2, "0");

@@ -637,7 +637,17 @@ function columnDeciles(sample: Float64Array, rows: number, k: number, features: 
   return edges;
 }
 
-async function contentVersion(content: Omit<UnsealedArtifact, "version">, createdAt: string): Promise<string> {
+/**
+ * The model id derived from the content: `m<yyyymmdd>-<8 hex>`, where the hex is the start of the
+ * SHA-256 of {@link canonicalJson} of the artifact content without `version` and `checksum`, and
+ * the date is the UTC date of `createdAt`. Shared by the fit and by cutoff retuning
+ * (`retuneArtifact`), so every artifact version in the project is named the same way.
+ * @param content every field of the artifact but `version` (and `checksum`)
+ * @param createdAt ISO-8601 date-time whose UTC date goes into the id
+ * @throws TypeError when the content holds a non-finite number or a non-JSON value
+ * @example await contentVersion(content, "2026-12-01T09:30:00Z") // "m20261201-3fa94c0e"
+ */
+export async function contentVersion(content: Omit<UnsealedArtifact, "version">, createdAt: string): Promise<string> {
   const hash = await sha256Hex(canonicalJson(content));
   const day = new Date(createdAt).toISOString().slice(0, 10).replace(/-/g, "");
   return `m${day}-${hash.slice(0, 8)}`;

@@ -13,3 +13,6 @@ export * from "./score";
 export * from "./reasons";
 export * from "./cutoff";
 export * from "./fit";
+export * from "./tuning";
+export * from "./estimates";
+export * from "./drift";

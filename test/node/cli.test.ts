@@ -340,7 +340,7 @@ describe("usage", () => {
   it("lists the commands in isodense --help", async () => {
     const run = await isodense(["--help"]);
     expect(run.code).toBe(0);
-    for (const name of ["fit", "score", "publish", "demo-ledger"]) expect(run.stdout).toMatch(new RegExp(`^  ${name} `, "m"));
+    for (const name of ["fit", "score", "tune", "refit", "publish", "demo-ledger"]) expect(run.stdout).toMatch(new RegExp(`^  ${name} `, "m"));
   });
 
   it("shows each command's options with --help", async () => {
@@ -358,7 +358,7 @@ describe("usage", () => {
   it("rejects an unknown command with exit 2 and lists the commands", async () => {
     const run = await isodense(["train", "ledger.csv"]);
     expect(run.code).toBe(2);
-    expect(run.stderr).toContain("unknown command 'train'; commands are: fit, score, publish, demo-ledger");
+    expect(run.stderr).toContain("unknown command 'train'; commands are: fit, score, tune, refit, publish, demo-ledger");
   });
 
   it("rejects an unknown option by name with exit 2", async () => {

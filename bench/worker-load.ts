@@ -1,0 +1,324 @@
+/**
+ * `npm run bench:worker`: load on the scoring service under `wrangler dev` (local simulator) on
+ * 127.0.0.1, with a 32-feature model fitted by the model core to invented data.
+ *
+ * Measures `POST /v1/score` against the trivial `POST /v1/echo` route of the same worker (same
+ * authentication, body checks and JSON parse; no scoring), in the same run, with autocannon at
+ * 32 connections and at 1: requests/s and p50/p99 latency. Absolute figures on a small machine are
+ * the simulator's, so the targets are ratios: score throughput ≥ 0.9 × echo at 32 connections, and
+ * at 1 connection a score median no more than 0.5 ms above echo's.
+ *
+ * Latency percentiles are computed from every response time autocannon reports (float ms),
+ * because its own histogram has 1 ms resolution, too coarse for a 0.5 ms target.
+ * Each request carries a fresh transactionId, so no answer comes from the idempotency memory.
+ * The two routes alternate in short rounds so that changes in the machine's load hit both alike.
+ *
+ * Environment: BENCH_SECONDS (per case, default 10), PORT (default: a free port).
+ * Writes bench/results/worker-load.json.
+ */
+import { spawn, type ChildProcess } from "node:child_process";
+import { once } from "node:events";
+import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from "node:fs";
+import { createRequire } from "node:module";
+import { createServer, type AddressInfo } from "node:net";
+import { cpus, tmpdir } from "node:os";
+import { dirname, join, resolve } from "node:path";
+import { fileURLToPath } from "node:url";
+import { randomBytes } from "node:crypto";
+import { publishCommand } from "../cli/commands/publish";
+import type { CommandIO } from "../cli/io";
+import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
+
+const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
+const seconds = Number(process.env.BENCH_SECONDS ?? 10);
+const FEATURES = 32;
+const TRAINING_ROWS = 20_000;
+/** Alternating echo/score rounds per connection count. */
+const ROUNDS = 4;
+
+// ---------------------------------------------------------------------------------------------
+// autocannon (no bundled types): the slice used here
+// ---------------------------------------------------------------------------------------------
+
+interface AutocannonRequest {
+  method: string;
+  path: string;
+  headers: Record<string, string>;
+  body?: string;
+}
+interface AutocannonResult {
+  requests: { average: number; total: number };
+  latency: { p50: number; p99: number; average: number };
+  non2xx: number;
+  errors: number;
+  timeouts: number;
+}
+interface AutocannonInstance extends Promise<AutocannonResult> {
+  on(event: "response", listener: (client: unknown, statusCode: number, bytes: number, responseTimeMs: number) => void): void;
+}
+type Autocannon = (options: {
+  url: string;
+  connections: number;
+  duration: number;
+  requests: { method: string; path: string; headers: Record<string, string>; setupRequest: (req: AutocannonRequest) => AutocannonRequest }[];
+}) => AutocannonInstance;
+const autocannon = createRequire(import.meta.url)("autocannon") as Autocannon;
+
+// ---------------------------------------------------------------------------------------------
+// Invented data: a correlated 32-dimensional Gaussian
+// ---------------------------------------------------------------------------------------------
+
+function seeded(seed: number): () => number {
+  let state = seed >>> 0;
+  const uniform = () => {
+    state = (state + 0x6d2b79f5) >>> 0;
+    let t = state;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
+}
+
+const names = Array.from({ length: FEATURES }, (_, i) => `signal${String(i + 1).padStart(2, "0")}`);
+const normal = seeded(32);
+// x = μ + L z with a fixed lower-triangular L: every feature correlates with the earlier ones.
+const loadings = names.map((_, i) => Array.from({ length: i + 1 }, (_, j) => (j === i ? 1 : 0.25 * normal())));
+const means = names.map((_, i) => 10 + i);
+
+function sample(): number[] {
+  const z = names.map(() => normal());
+  return loadings.map((row, i) => means[i] + row.reduce((s, l, j) => s + l * z[j], 0));
+}
+
+async function fitBenchModel() {
+  const rows: FitRow[] = Array.from({ length: TRAINING_ROWS }, () => ({ values: Float64Array.from(sample()), segment: null }));
+  const features: FeatureDeclaration[] = names.map((name) => ({ name, transform: "none" }));
+  const { artifact } = await fitModel(
+    { async *pass() { yield* rows; } },
+    { features, shape: "full", estimator: "classical", segmentBy: null, cutoffRate: 0.01, version: "mbench-32", createdAt: "2026-03-02T09:00:00.000Z", source: "bench (invented data)" },
+  );
+  return artifact;
+}
+
+// ---------------------------------------------------------------------------------------------
+// wrangler dev
+// ---------------------------------------------------------------------------------------------
+
+const quietEnv = { ...process.env, WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "false", WRANGLER_HIDE_BANNER: "true" };
+const wranglerBin = join(root, "node_modules/.bin/wrangler");
+
+async function freePort(): Promise<number> {
+  const server = createServer().listen(0, "127.0.0.1");
+  await once(server, "listening");
+  const port = (server.address() as AddressInfo).port;
+  server.close();
+  await once(server, "close");
+  return port;
+}
+
+function runToEnd(args: string[]): Promise<void> {
+  return new Promise((ok, fail) => {
+    const child = spawn(wranglerBin, args, { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] });
+    child.on("exit", (code) => (code === 0 ? ok() : fail(new Error(`wrangler ${args.slice(0, 3).join(" ")} exited with ${code}`))));
+  });
+}
+
+async function waitForHealth(url: string, child: ChildProcess): Promise<void> {
+  const deadline = Date.now() + 90_000;
+  while (Date.now() < deadline) {
+    if (child.exitCode !== null) throw new Error(`wrangler dev exited with ${child.exitCode}`);
+    try {
+      const response = await fetch(`${url}/v1/health`);
+      await response.arrayBuffer();
+      return;
+    } catch {
+      await new Promise((r) => setTimeout(r, 300));
+    }
+  }
+  throw new Error("wrangler dev did not answer within 90 s");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Load cases
+// ---------------------------------------------------------------------------------------------
+
+interface CaseResult {
+  route: string;
+  connections: number;
+  seconds: number;
+  requests: number;
+  requestsPerSecond: number;
+  latencyMs: { p50: number; p99: number; mean: number };
+  non2xx: number;
+  errors: number;
+}
+
+function percentile(sorted: Float64Array, q: number): number {
+  if (sorted.length === 0) return Number.NaN;
+  const index = Math.min(sorted.length - 1, Math.max(0, Math.ceil(q * sorted.length) - 1));
+  return sorted[index];
+}
+
+const payloads = Array.from({ length: 4096 }, () => sample().map((v) => Number(v.toFixed(4))));
+let counter = 0;
+const runId = randomBytes(4).toString("hex");
+
+/** A score body with a fresh transactionId (bodies cycle through 4,096 invented payments). */
+function nextBody(): string {
+  const values = payloads[counter % payloads.length];
+  const features: Record<string, number> = {};
+  for (let i = 0; i < FEATURES; i++) features[names[i]] = values[i];
+  counter++;
+  return JSON.stringify({ transactionId: `bench-${runId}-${counter}`, features, accountRef: `acct-${counter % 997}` });
+}
+
+/** One autocannon run; returns the 2xx response times (ms) and the counts. */
+async function load(url: string, route: string, connections: number, duration: number, token: string) {
+  const times: number[] = [];
+  const instance = autocannon({
+    url,
+    connections,
+    duration,
+    requests: [
+      {
+        method: "POST",
+        path: route,
+        headers: { "content-type": "application/json", authorization: `Bearer ${token}` },
+        setupRequest: (req) => ({ ...req, body: nextBody() }),
+      },
+    ],
+  });
+  instance.on("response", (_client, statusCode, _bytes, responseTimeMs) => {
+    if (statusCode >= 200 && statusCode < 300) times.push(responseTimeMs);
+  });
+  const result = await instance;
+  return { times, requests: result.requests.total, non2xx: result.non2xx, errors: result.errors + result.timeouts };
+}
+
+/**
+ * Measures echo and score at one connection count, alternating the two routes in `rounds` short
+ * runs so that drift in the machine's load (other processes, the simulator's own housekeeping)
+ * falls on both routes alike.
+ */
+async function measurePair(url: string, connections: number, duration: number, rounds: number, token: string): Promise<CaseResult[]> {
+  const routes = ["/v1/echo", "/v1/score"];
+  const acc = routes.map(() => ({ times: [] as number[], requests: 0, non2xx: 0, errors: 0, seconds: 0 }));
+  const slice = Math.max(1, duration / rounds);
+  for (let round = 0; round < rounds; round++) {
+    // Alternate which route goes first, so neither always follows the other.
+    const order = round % 2 === 0 ? [0, 1] : [1, 0];
+    for (const r of order) {
+      const run = await load(url, routes[r], connections, slice, token);
+      acc[r].times.push(...run.times);
+      acc[r].requests += run.requests;
+      acc[r].non2xx += run.non2xx;
+      acc[r].errors += run.errors;
+      acc[r].seconds += slice;
+    }
+  }
+  return routes.map((route, r) => {
+    const sorted = Float64Array.from(acc[r].times).sort();
+    const mean = acc[r].times.reduce((a, b) => a + b, 0) / Math.max(1, acc[r].times.length);
+    return {
+      route,
+      connections,
+      seconds: acc[r].seconds,
+      requests: acc[r].requests,
+      requestsPerSecond: Number((acc[r].times.length / acc[r].seconds).toFixed(1)),
+      latencyMs: { p50: round3(percentile(sorted, 0.5)), p99: round3(percentile(sorted, 0.99)), mean: round3(mean) },
+      non2xx: acc[r].non2xx,
+      errors: acc[r].errors,
+    };
+  });
+}
+
+function round3(x: number): number {
+  return Math.round(x * 1000) / 1000;
+}
+
+// ---------------------------------------------------------------------------------------------
+// Run
+// ---------------------------------------------------------------------------------------------
+
+const state = mkdtempSync(join(tmpdir(), "isodense-bench-"));
+const flowToken = `bench-flow-${randomBytes(20).toString("hex")}`;
+const adminToken = `bench-admin-${randomBytes(20).toString("hex")}`;
+const envFile = join(state, "bench.env");
+writeFileSync(envFile, `FLOW_CREDENTIALS="bench:${flowToken}"\nADMIN_CREDENTIALS="bench-admin:${adminToken}"\nANALYST_CREDENTIALS=""\n`);
+let wrangler: ChildProcess | undefined;
+
+try {
+  console.log(`fitting a ${FEATURES}-feature model on ${TRAINING_ROWS.toLocaleString("en")} invented rows`);
+  const artifact = await fitBenchModel();
+  const modelFile = join(state, "model.json");
+  writeFileSync(modelFile, JSON.stringify(artifact));
+
+  console.log("applying D1 migrations to a fresh local state");
+  await runToEnd(["d1", "migrations", "apply", "isodense-review", "--local", "--persist-to", state]);
+
+  const port = Number(process.env.PORT ?? (await freePort()));
+  const url = `http://127.0.0.1:${port}`;
+  console.log(`starting wrangler dev on ${url}`);
+  wrangler = spawn(
+    wranglerBin,
+    ["dev", "--ip", "127.0.0.1", "--port", String(port), "--persist-to", state, "--env-file", envFile, "--show-interactive-dev-session=false", "--log-level", "warn"],
+    { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] },
+  );
+  await waitForHealth(url, wrangler);
+
+  const quiet: CommandIO = { stdout: { write: () => true }, stderr: { write: (t: string) => process.stderr.write(t), isTTY: false } as never };
+  const published = await publishCommand([modelFile, "--url", url, "--token", adminToken, "--activate"], quiet);
+  if (published !== 0) throw new Error(`publishing the bench model failed (exit ${published})`);
+
+  console.log("warming up (3 s per route)");
+  await load(url, "/v1/echo", 32, 3, flowToken);
+  await load(url, "/v1/score", 32, 3, flowToken);
+
+  const cases: CaseResult[] = [];
+  console.log(`measuring ${seconds} s per route and connection count, in ${ROUNDS} alternating rounds`);
+  for (const connections of [32, 1]) {
+    for (const result of await measurePair(url, connections, seconds, ROUNDS, flowToken)) {
+      cases.push(result);
+      console.log(
+        `  ${result.route.padEnd(10)} ${String(connections).padStart(2)} conn: ${result.requestsPerSecond.toFixed(0).padStart(6)} req/s  ` +
+          `p50 ${result.latencyMs.p50.toFixed(2)} ms  p99 ${result.latencyMs.p99.toFixed(2)} ms  non-2xx ${result.non2xx}  errors ${result.errors}`,
+      );
+    }
+  }
+  const find = (route: string, connections: number) => cases.find((c) => c.route === route && c.connections === connections)!;
+  const throughputRatio = find("/v1/score", 32).requestsPerSecond / find("/v1/echo", 32).requestsPerSecond;
+  const medianDeltaMs = find("/v1/score", 1).latencyMs.p50 - find("/v1/echo", 1).latencyMs.p50;
+  const summary = {
+    measuredAt: new Date().toISOString(),
+    machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version },
+    setup: {
+      server: "wrangler dev (local simulator) on 127.0.0.1, load generator autocannon in the same machine",
+      model: { version: artifact.version, features: FEATURES, covarianceShape: artifact.covarianceShape, trainingRows: TRAINING_ROWS },
+      secondsPerCase: seconds,
+      rounds: ROUNDS,
+      requestsPerSecond: "2xx answers / seconds of load, summed over the rounds",
+      body: "32 features, fresh transactionId per request; echo and score get the same bodies",
+    },
+    cases,
+    ratios: {
+      scoreOverEchoThroughputAt32: Number(throughputRatio.toFixed(3)),
+      scoreMinusEchoMedianMsAt1: Number(medianDeltaMs.toFixed(3)),
+    },
+    targets: { scoreOverEchoThroughputAt32: ">= 0.9", scoreMinusEchoMedianMsAt1: "<= 0.5" },
+    met: { throughput: throughputRatio >= 0.9, median: medianDeltaMs <= 0.5 },
+  };
+  mkdirSync(join(root, "bench/results"), { recursive: true });
+  writeFileSync(join(root, "bench/results/worker-load.json"), JSON.stringify(summary, null, 2) + "\n");
+  console.log(
+    `score/echo throughput at 32 connections: ${summary.ratios.scoreOverEchoThroughputAt32} (target ≥ 0.9, ${summary.met.throughput ? "met" : "NOT met"}); ` +
+      `median difference at 1 connection: ${summary.ratios.scoreMinusEchoMedianMsAt1} ms (target ≤ 0.5, ${summary.met.median ? "met" : "NOT met"})`,
+  );
+  console.log("written bench/results/worker-load.json");
+} finally {
+  if (wrangler && wrangler.exitCode === null) {
+    wrangler.kill("SIGTERM");
+    await Promise.race([once(wrangler, "exit"), new Promise((r) => setTimeout(r, 5000))]);
+  }
+  rmSync(state, { recursive: true, force: true });
+}

@@ -1,0 +1,368 @@
+/**
+ * `isodense refit <ledger.csv> --labels labels.csv --model live.json --out candidate.json`: the
+ * weekly refit. Fits a candidate with the live model's spec (features and transforms, covariance
+ * shape, estimator, segments, flag rate of the cutoff) on the ledger of the training window,
+ * leaving out every payment confirmed as fraud in the labels (joined by id) or labelled fraud in
+ * the ledger itself, and keeping dismissed flags as normal traffic. Then backtests the live model
+ * and the candidate on the labelled set (PR-AUC, recall at the live flag rate, flag overlap) and
+ * writes the candidate. Publishing stays a separate, explicit step (`isodense publish`).
+ */
+import { basename, resolve } from "node:path";
+import type { ModelArtifact } from "../../shared-model/src/artifact";
+import { fitModel, type FitRow, type RowSource } from "../../shared-model/src/fit";
+import { compileModel, Scorer } from "../../shared-model/src/score";
+import { operatingPoints, pointAtCutoff, pointAtFlagRate, type OperatingPoint, type OperatingTable } from "../../shared-model/src/tuning";
+import type { FeatureDeclaration } from "../../shared-model/src/types";
+import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
+import { EXIT_OK, InputError, reportFailure } from "../errors";
+import { checkOutputPath, writeFileAtomic } from "../files";
+import { processIO, writeLines, type CommandIO } from "../io";
+import { EXPORT_SEGMENT_COLUMN, readLabels, type LabelSet } from "../labels";
+import { openLedger, type LedgerRequest } from "../ledger";
+import { formatCount, formatForPeople, formatPercent } from "../numbers";
+import { createProgress } from "../progress";
+import { loadArtifact } from "./score";
+import { scoreLabels } from "./tune";
+
+/** Command line of `isodense refit`. */
+export const refitSpec: CommandSpec = {
+  command: "isodense refit",
+  summary:
+    "Fits a candidate model with the live model's spec on a ledger, leaving out payments confirmed as fraud in the labels " +
+    "(joined by id) or labelled fraud in the ledger and keeping dismissed flags as normal; backtests live and candidate on " +
+    "the labels (PR-AUC, recall at the live flag rate, flag overlap) and writes the candidate. It does not publish it.",
+  positionals: [{ name: "ledger.csv", description: "payments of the training window, with an id column" }],
+  options: [
+    { name: "labels", kind: "string", valueName: "labels.csv", description: "the labelled set (review export) (required)" },
+    { name: "model", kind: "string", valueName: "live.json", description: "the live model whose spec the candidate copies (required)" },
+    { name: "out", kind: "string", valueName: "candidate.json", description: "where to write the candidate (required)" },
+    { name: "id-column", kind: "string", valueName: "column", description: "payment id column of the ledger", defaultText: "id if present" },
+    { name: "label-column", kind: "string", valueName: "column", description: "label column of the ledger (fraud rows are left out)", defaultText: "label if present" },
+    { name: "labels-id-column", kind: "string", valueName: "column", description: "payment id column of the labels", defaultText: "transactionId, else id" },
+    { name: "labels-label-column", kind: "string", valueName: "column", description: "outcome column of the labels", defaultText: "outcome" },
+    { name: "weight-column", kind: "string", valueName: "column", description: "1 / inclusion probability in the labels", defaultText: "weight if present, else 1" },
+    { name: "cutoff-rate", kind: "number", valueName: "rate", greaterThan: 0, lessThan: 1, description: "share of training rows the candidate's cutoff flags", defaultText: "the live flag rate, or the share the live cutoff flags" },
+    { name: "seed", kind: "integer", valueName: "N", min: 0, max: 2 ** 32 - 1, description: "seed for sampling and the robust fit", defaultText: "the live model's robust seed, else 1" },
+  ],
+  notes: [
+    "Exit codes: 0 written; 1 fit refused by diagnostics (nothing written); 2 usage or input error.",
+    "The candidate is not live: review the comparison, then publish it with 'isodense publish <candidate.json> --activate'.",
+  ],
+};
+
+/** What the refit source counted in its last complete pass. */
+export interface RefitCounts {
+  rowsRead: number;
+  /** Rows whose id is confirmed fraud in the labels. */
+  excludedConfirmedFraud: number;
+  /** Rows labelled fraud in the ledger (and not already counted as confirmed in the labels). */
+  excludedLedgerFraud: number;
+  /** Rows whose id was reviewed as legitimate in the labels (dismissed flags, audit draws), kept as normal traffic. */
+  dismissedKept: number;
+  rowsUsed: number;
+}
+
+/**
+ * The ledger as the fit's row source, without confirmed fraud: each `pass()` re-reads the file and
+ * skips rows whose id is in `confirmedFraud` or whose own label is fraud; `counts` holds the
+ * numbers of the last complete pass.
+ * @throws CsvError (from the ledger reader) naming file, line and column of a bad cell
+ * @example const source = new RefitRowSource("ledger.csv", { features, idColumn: "paymentId" }, new Set(["pay-7"]), new Set());
+ */
+export class RefitRowSource implements RowSource {
+  counts: RefitCounts = { rowsRead: 0, excludedConfirmedFraud: 0, excludedLedgerFraud: 0, dismissedKept: 0, rowsUsed: 0 };
+  /** Confirmed-fraud ids seen in the ledger during the last complete pass. */
+  confirmedFound = new Set<string>();
+
+  constructor(
+    private readonly path: string,
+    private readonly request: LedgerRequest,
+    private readonly confirmedFraud: ReadonlySet<string>,
+    private readonly dismissed: ReadonlySet<string>,
+  ) {}
+
+  async *pass(): AsyncGenerator<FitRow, void, undefined> {
+    const ledger = await openLedger(this.path, this.request);
+    const counts: RefitCounts = { rowsRead: 0, excludedConfirmedFraud: 0, excludedLedgerFraud: 0, dismissedKept: 0, rowsUsed: 0 };
+    const found = new Set<string>();
+    try {
+      for await (const row of ledger.rows) {
+        counts.rowsRead++;
+        if (this.confirmedFraud.has(row.id)) {
+          counts.excludedConfirmedFraud++;
+          found.add(row.id);
+          continue;
+        }
+        if (row.label === "fraud") {
+          counts.excludedLedgerFraud++;
+          continue;
+        }
+        if (this.dismissed.has(row.id)) counts.dismissedKept++;
+        counts.rowsUsed++;
+        yield { values: row.values, segment: row.segment };
+      }
+    } finally {
+      await ledger.rows.return();
+    }
+    this.counts = counts;
+    this.confirmedFound = found;
+  }
+}
+
+/**
+ * Runs `isodense refit` with the words after `refit`.
+ * @returns the exit code (0, 1 or 2; 3 for an internal error)
+ * @example await refitCommand(["ledger.csv", "--labels", "labels.csv", "--model", "live.json", "--out", "candidate.json"])
+ */
+export async function refitCommand(argv: string[], io: CommandIO = processIO()): Promise<number> {
+  const progress = createProgress(io.stderr);
+  try {
+    const args = parseArgs(argv, refitSpec);
+    if (args.help) {
+      io.stdout.write(formatHelp(refitSpec));
+      return EXIT_OK;
+    }
+    const [ledgerPath] = args.positionals;
+    const labelsPath = required(stringOption(args, "labels"), "--labels", "the labelled set");
+    const modelPath = required(stringOption(args, "model"), "--model", "the live model");
+    const out = required(stringOption(args, "out"), "--out", "where to write the candidate");
+    for (const input of [ledgerPath, labelsPath, modelPath]) {
+      if (resolve(out) === resolve(input)) {
+        throw new UsageError("--out", "same as an input", `option --out names an input file (${out}); write the candidate to another file`);
+      }
+    }
+    const live = await loadArtifact(modelPath);
+    const givenRate = numberOption(args, "cutoff-rate");
+    if (givenRate === undefined && live.cutoff.basis === "flag-rate" && !(live.cutoff.flagRate! > 0 && live.cutoff.flagRate! < 1)) {
+      throw new UsageError(
+        "--cutoff-rate",
+        "required",
+        `the live model records no usable flag rate (cutoff basis ${live.cutoff.basis}, flag rate ${String(live.cutoff.flagRate)}); give --cutoff-rate`,
+      );
+    }
+    await checkOutputPath(out, "--out");
+
+    const labels = await readLabels(labelsPath, {
+      features: live.features,
+      idColumn: stringOption(args, "labels-id-column"),
+      labelColumn: stringOption(args, "labels-label-column"),
+      weightColumn: stringOption(args, "weight-column"),
+      segmentCandidates: live.segmentBy === null ? [] : [live.segmentBy, EXPORT_SEGMENT_COLUMN],
+      duplicates: "merge-agreeing",
+    });
+    const confirmedFraud = new Set<string>();
+    const dismissed = new Set<string>();
+    labels.ids.forEach((id, r) => (labels.fraud[r] === 1 ? confirmedFraud : dismissed).add(id));
+
+    const features: FeatureDeclaration[] = live.features.map((f) => ({ name: f.name, transform: f.transform }));
+    const request: LedgerRequest = {
+      features,
+      idColumn: stringOption(args, "id-column"),
+      labelColumn: stringOption(args, "label-column"),
+      segmentColumn: live.segmentBy,
+    };
+    const source = new RefitRowSource(ledgerPath, request, confirmedFraud, dismissed);
+    // Header and columns are checked before the first pass, so a typo fails at once.
+    const probe = await openLedger(ledgerPath, request);
+    await probe.rows.return();
+    const layout = probe.layout;
+    if (layout.idColumn === null) {
+      throw new InputError(
+        "--id-column",
+        "no id column",
+        `${layout.file} has no id column to match the labels against; name it with --id-column (columns are: ${layout.header.join(", ")})`,
+      );
+    }
+    const cutoff = givenRate !== undefined
+      ? { rate: givenRate, why: "as given with --cutoff-rate" }
+      : await sameCutoffRate(live, source);
+    const cutoffRate = cutoff.rate;
+    const liveSeed = live.segments["*"].details.estimator === "robust" ? live.segments["*"].details.seed : undefined;
+    const { artifact: candidate, report } = await fitModel(source, {
+      features,
+      shape: live.covarianceShape,
+      estimator: live.estimator,
+      segmentBy: live.segmentBy,
+      minSegmentRows: live.minSegmentRows,
+      cutoffRate,
+      seed: numberOption(args, "seed") ?? liveSeed,
+      source: basename(ledgerPath),
+      get rowsRead() {
+        return source.counts.rowsRead;
+      },
+      get rowsExcludedAsFraud() {
+        return source.counts.excludedConfirmedFraud + source.counts.excludedLedgerFraud;
+      },
+      onProgress: (pass, rows) => progress.update(pass, rows),
+    });
+
+    const backtest = compareOnLabels(live, candidate, labels);
+    const ledgerOverlap = await overlapOnLedger(live, candidate, ledgerPath, request, (rows) => progress.update("overlap", rows));
+    progress.done();
+    await writeFileAtomic(out, JSON.stringify(candidate, null, 2) + "\n");
+
+    const c = source.counts;
+    const notInLedger = confirmedFraud.size - source.confirmedFound.size;
+    writeLines(io.stdout, [
+      `ledger: ${formatCount(c.rowsRead)} rows read from ${basename(ledgerPath)}; left out ${formatCount(c.excludedConfirmedFraud)} confirmed fraud ` +
+        `(labels) and ${formatCount(c.excludedLedgerFraud)} labelled fraud (ledger); kept ${formatCount(c.dismissedKept)} payments reviewed as legitimate as normal traffic`,
+      `labels: ${formatCount(labels.rows)} rows from ${basename(labels.file)} (${formatCount(labels.fraudCount)} fraud)` +
+        (labels.duplicatesSkipped > 0 ? `, ${formatCount(labels.duplicatesSkipped)} repeated rows merged` : "") +
+        (notInLedger > 0 ? `; ${formatCount(notInLedger)} confirmed-fraud ids are not in the ledger (outside the training window)` : ""),
+      `candidate spec from ${live.version}: ${live.features.length} features, ${live.covarianceShape} covariance, ${live.estimator} estimator, ` +
+        `${live.segmentBy === null ? "no segments" : `segments by '${live.segmentBy}'`}, cutoff at ${formatPercent(cutoffRate)} of training rows (${cutoff.why})`,
+      ...report.lines,
+      "",
+      ...backtest.lines,
+      `flag overlap on the ledger (Jaccard, own cutoffs): ${jaccardText(ledgerOverlap)}`,
+      "",
+      `wrote candidate ${candidate.version} to ${out}; it is not live: compare, then publish it with 'isodense publish ${out} --activate'`,
+    ]);
+    return EXIT_OK;
+  } catch (error) {
+    progress.done();
+    return reportFailure(error, io, refitSpec.command);
+  }
+}
+
+/**
+ * The candidate's cutoff rate: "the same cutoff flag rate" as the live model. A live cutoff chosen
+ * by flag rate records the share of its training rows it flags: that share again. A tuned cutoff
+ * (f1, capacity, cost, manual) records the share of all traffic it flags, fraud included, which is
+ * not a share of normal rows; so the live model scores the candidate's training rows and the
+ * candidate flags the same share of them as the live cutoff does (one extra pass).
+ * @throws UsageError naming --cutoff-rate when that share is 0 or 1 (nothing to match)
+ */
+async function sameCutoffRate(live: ModelArtifact, source: RowSource): Promise<{ rate: number; why: string }> {
+  if (live.cutoff.basis === "flag-rate") return { rate: live.cutoff.flagRate!, why: `the live model's flag rate` };
+  const scorer = new Scorer(compileModel(live));
+  let rows = 0;
+  let flagged = 0;
+  for await (const row of source.pass()) {
+    rows++;
+    if (scorer.score(row.values, row.segment).flagged) flagged++;
+  }
+  const rate = rows === 0 ? 0 : flagged / rows;
+  if (!(rate > 0 && rate < 1)) {
+    throw new UsageError(
+      "--cutoff-rate",
+      "required",
+      `the live cutoff (basis ${live.cutoff.basis}, d² > ${num(live.cutoff.mahalanobisSq)}) flags ${formatCount(flagged)} of the ${formatCount(rows)} training rows, ` +
+        "so there is no share to match; give --cutoff-rate",
+    );
+  }
+  return { rate, why: `the share of them the live cutoff d² > ${num(live.cutoff.mahalanobisSq)} flags` };
+}
+
+function required(value: string | undefined, option: string, what: string): string {
+  if (value === undefined) throw new UsageError(option, "required", `option ${option} is required (${what})`);
+  return value;
+}
+
+/** Sizes of two flagged sets and their intersection. */
+export interface Overlap {
+  live: number;
+  candidate: number;
+  both: number;
+}
+
+/**
+ * Jaccard index |A ∩ B| / |A ∪ B| of two flagged sets (1 when both are empty: they agree).
+ * @example jaccard({ live: 10, candidate: 12, both: 8 }) // 8 / 14
+ */
+export function jaccard(o: Overlap): number {
+  const union = o.live + o.candidate - o.both;
+  return union === 0 ? 1 : o.both / union;
+}
+
+function jaccardText(o: Overlap): string {
+  return `${formatForPeople(jaccard(o), 4)} (both ${formatCount(o.both)}; live ${formatCount(o.live)}, candidate ${formatCount(o.candidate)})`;
+}
+
+/**
+ * Backtest of both models on the labelled set: each model's operating table, the flag overlap of
+ * their own cutoffs on the labelled rows, and lines for people (PR-AUC, figures at each own
+ * cutoff, recall of both at the live model's flag rate).
+ * @throws CsvError naming the labels line of a row that cannot be scored
+ * @example compareOnLabels(live, candidate, labels).lines.forEach((line) => console.log(line))
+ */
+export function compareOnLabels(
+  live: ModelArtifact,
+  candidate: ModelArtifact,
+  labels: LabelSet,
+): { live: OperatingTable; candidate: OperatingTable; overlap: Overlap; lines: string[] } {
+  const liveScores = scoreLabels(live, labels);
+  const candidateScores = scoreLabels(candidate, labels);
+  const liveTable = operatingPoints(liveScores, labels.fraud, labels.weights);
+  const candidateTable = operatingPoints(candidateScores, labels.fraud, labels.weights);
+  const liveOwn = pointAtCutoff(liveTable, live.cutoff.mahalanobisSq);
+  const candidateOwn = pointAtCutoff(candidateTable, candidate.cutoff.mahalanobisSq);
+  const rate = liveOwn.flagRate;
+  const liveAtRate = pointAtFlagRate(liveTable, rate);
+  const candidateAtRate = pointAtFlagRate(candidateTable, rate);
+  const overlap: Overlap = { live: 0, candidate: 0, both: 0 };
+  for (let r = 0; r < labels.rows; r++) {
+    const a = liveScores[r] > live.cutoff.mahalanobisSq;
+    const b = candidateScores[r] > candidate.cutoff.mahalanobisSq;
+    if (a) overlap.live++;
+    if (b) overlap.candidate++;
+    if (a && b) overlap.both++;
+  }
+  const weighting = labels.weightColumn === null ? "unweighted" : `weighted by '${labels.weightColumn}'`;
+  const rows: string[][] = [
+    ["", `live ${live.version}`, `candidate ${candidate.version}`],
+    ["PR-AUC (average precision)", num(liveTable.averagePrecision), num(candidateTable.averagePrecision)],
+    ["own cutoff d² >", num(live.cutoff.mahalanobisSq), num(candidate.cutoff.mahalanobisSq)],
+    ["flag rate at own cutoff", formatPercent(liveOwn.flagRate), formatPercent(candidateOwn.flagRate)],
+    ["precision at own cutoff", precisionText(liveOwn), precisionText(candidateOwn)],
+    ["recall at own cutoff", num(liveOwn.recall), num(candidateOwn.recall)],
+    [`recall at the live flag rate (≤ ${formatPercent(rate)})`, num(liveAtRate.recall), num(candidateAtRate.recall)],
+  ];
+  const widths = [0, 1, 2].map((c) => Math.max(...rows.map((r) => r[c].length)));
+  return {
+    live: liveTable,
+    candidate: candidateTable,
+    overlap,
+    lines: [
+      `backtest on ${formatCount(labels.rows)} labelled payments (${weighting}):`,
+      ...rows.map((r) => `  ${r[0].padEnd(widths[0])}  ${r[1].padStart(widths[1])}  ${r[2].padStart(widths[2])}`.trimEnd()),
+      `flag overlap on the labelled payments (Jaccard, own cutoffs): ${jaccardText(overlap)}`,
+    ],
+  };
+}
+
+/** Scores every ledger row with both models and counts the flags of each and of both. */
+async function overlapOnLedger(
+  live: ModelArtifact,
+  candidate: ModelArtifact,
+  ledgerPath: string,
+  request: LedgerRequest,
+  onProgress: (rows: number) => void,
+): Promise<Overlap> {
+  const liveScorer = new Scorer(compileModel(live));
+  const candidateScorer = new Scorer(compileModel(candidate));
+  const ledger = await openLedger(ledgerPath, request);
+  const overlap: Overlap = { live: 0, candidate: 0, both: 0 };
+  let rows = 0;
+  try {
+    for await (const row of ledger.rows) {
+      const a = liveScorer.score(row.values, row.segment).flagged;
+      const b = candidateScorer.score(row.values, row.segment).flagged;
+      if (a) overlap.live++;
+      if (b) overlap.candidate++;
+      if (a && b) overlap.both++;
+      if (++rows % 8192 === 0) onProgress(rows);
+    }
+  } finally {
+    await ledger.rows.return();
+  }
+  return overlap;
+}
+
+function precisionText(p: OperatingPoint): string {
+  return p.precision === null ? "n/a" : num(p.precision);
+}
+
+function num(value: number): string {
+  return formatForPeople(value, 4);
+}

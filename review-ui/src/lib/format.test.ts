@@ -1,0 +1,34 @@
+import { describe, expect, it } from "vitest";
+import { describeReason, formatAge, formatTail, formatValue } from "./format";
+
+describe("plain-words formatting", () => {
+  it("words a reason the way an analyst reads it", () => {
+    const text = describeReason({ feature: "amount", actual: 1240, expected: { center: 95, low: 60.4, high: 140.2 }, standardizedResidual: 6.2 });
+    expect(text).toBe("amount 1,240 — expected 60.4–140 given the other features");
+  });
+
+  it("words a range reaching below zero with 'to' rather than a dash", () => {
+    const text = describeReason({ feature: "hoursSincePrevious", actual: 0.0192, expected: { center: -0.998, low: -1, high: -0.995 }, standardizedResidual: 5.4 });
+    expect(text).toBe("hoursSincePrevious 0.0192 — expected \u22121 to \u22120.995 given the other features");
+  });
+
+  it("writes negative values with a true minus sign so ranges stay readable", () => {
+    expect(formatValue(-0.169)).toBe("\u22120.169");
+    expect(formatValue(0)).toBe("0");
+    expect(formatValue(Number.NaN)).toBe("—");
+  });
+
+  it("gives tail probabilities as odds, with a superscript power for the very rare", () => {
+    expect(formatTail(0.25)).toBe("25 %");
+    expect(formatTail(0.00021)).toBe("1 in 4,800");
+    expect(formatTail(4.4e-17)).toBe("1 in 2.3 × 10¹⁶");
+    expect(formatTail(0)).toBe("below 1 in 10³⁰⁰");
+  });
+
+  it("gives ages in the largest whole unit", () => {
+    const now = Date.parse("2026-12-03T12:00:00Z");
+    expect(formatAge("2026-12-03T11:15:00Z", now)).toBe("45 min");
+    expect(formatAge("2026-12-03T02:00:00Z", now)).toBe("10 h");
+    expect(formatAge("2026-11-28T12:00:00Z", now)).toBe("5 d");
+  });
+});

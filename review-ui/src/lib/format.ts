@@ -1,0 +1,91 @@
+/**
+ * Plain-words formatting for numbers, probabilities and times shown to analysts.
+ * Everything returns text; nothing here builds markup.
+ */
+import type { Reason } from "../../../shared-model/src/types";
+
+const grouped = new Intl.NumberFormat("en-US", { maximumFractionDigits: 0 });
+
+/**
+ * A raw feature value with sensible precision: whole numbers from 100 up, three significant
+ * digits below.
+ * @example formatValue(1240.4) // "1,240"; formatValue(0.0731) // "0.0731"
+ */
+export function formatValue(value: number | null | undefined): string {
+  if (value === null || value === undefined || !Number.isFinite(value)) return "—";
+  const magnitude = Math.abs(value);
+  if (magnitude === 0) return "0";
+  const text = magnitude >= 100 ? grouped.format(value) : new Intl.NumberFormat("en-US", { maximumSignificantDigits: 3 }).format(value);
+  // A true minus sign: "−0.17–0.87" reads as a range from a negative number, "-0.17–0.87" does not.
+  return text.replace("-", "\u2212");
+}
+
+const SUPERSCRIPT: Record<string, string> = { "0": "⁰", "1": "¹", "2": "²", "3": "³", "4": "⁴", "5": "⁵", "6": "⁶", "7": "⁷", "8": "⁸", "9": "⁹", "-": "⁻" };
+
+/** 10 to a power, with a superscript exponent: power10(16) // "10¹⁶" */
+function power10(exponent: number): string {
+  return `10${[...String(exponent)].map((c) => SUPERSCRIPT[c] ?? c).join("")}`;
+}
+
+/** A count with thousands separators. @example formatCount(9812) // "9,812" */
+export function formatCount(value: number): string {
+  return grouped.format(value);
+}
+
+/**
+ * A tail probability P(χ²ₙ > d²) as "1 in N" for small values (easier to weigh than 1.2e-7).
+ * @example formatTail(0.00021) // "1 in 4,800"; formatTail(4.4e-17) // "1 in 2.3 × 10¹⁶"
+ */
+export function formatTail(p: number): string {
+  if (!Number.isFinite(p) || p < 0) return "—";
+  if (p === 0) return `below 1 in ${power10(300)}`;
+  if (p >= 0.01) return `${(p * 100).toFixed(p >= 0.1 ? 0 : 1)} %`;
+  const oneIn = 1 / p;
+  if (oneIn >= 1e9) {
+    const [mantissa, exponent] = oneIn.toExponential(1).split("e+");
+    return `1 in ${mantissa} × ${power10(Number(exponent))}`;
+  }
+  const rounded = Number(oneIn.toPrecision(2));
+  return `1 in ${grouped.format(rounded)}`;
+}
+
+/** Time of day in the analyst's locale, 24-hour. */
+export function formatClock(iso: string): string {
+  const date = new Date(iso);
+  return date.toLocaleTimeString("en-GB", { hour: "2-digit", minute: "2-digit" });
+}
+
+/** Short date and time, e.g. "3 Dec 14:05". */
+export function formatWhen(iso: string): string {
+  const date = new Date(iso);
+  const day = date.toLocaleDateString("en-GB", { day: "numeric", month: "short" });
+  return `${day} ${formatClock(iso)}`;
+}
+
+/**
+ * How long ago, in the largest whole unit.
+ * @example formatAge("2026-12-01T10:00:00Z", Date.parse("2026-12-01T13:30:00Z")) // "3 h"
+ */
+export function formatAge(iso: string, now: number = Date.now()): string {
+  const minutes = Math.max(0, Math.floor((now - Date.parse(iso)) / 60_000));
+  if (minutes < 60) return `${minutes} min`;
+  const hours = Math.floor(minutes / 60);
+  if (hours < 48) return `${hours} h`;
+  return `${Math.floor(hours / 24)} d`;
+}
+
+/**
+ * One reason in plain words: "amount 1,240 — expected 60–140 given the other features".
+ * The range is the central 95 % of the feature given all the others, in raw units.
+ */
+export function describeReason(reason: Reason): string {
+  const { low, high } = reason.expected;
+  // "60–140" for a plain range; "−1 to −0.99" once a minus sign would sit next to the dash.
+  const range = low < 0 || high < 0 ? `${formatValue(low)} to ${formatValue(high)}` : `${formatValue(low)}–${formatValue(high)}`;
+  return `${reason.feature} ${formatValue(reason.actual)} — expected ${range} given the other features`;
+}
+
+/** "higher" or "lower" than expected, for screen-reader friendly captions. */
+export function direction(reason: Reason): "higher" | "lower" {
+  return reason.actual >= reason.expected.center ? "higher" : "lower";
+}

@@ -1,0 +1,12 @@
+import { defineConfig } from "vitest/config";
+
+// Unit tests of the review app's pure modules (formatting, plot geometry, keys). The screens
+// themselves are tested in a real browser by test/e2e.
+export default defineConfig({
+  test: {
+    name: "review-ui",
+    root: new URL("..", import.meta.url).pathname,
+    environment: "node",
+    include: ["review-ui/src/**/*.test.ts"],
+  },
+});

@@ -1,0 +1,187 @@
+/**
+ * `npm run replay`: streams the demo ledger's payments to the running service
+ * (`POST /v1/score/batch`), so that the review store fills with flags and audit-sample items.
+ * Feature names and the segment column are taken from the live model (GET /v1/health), the
+ * transaction id from `paymentId` and the account from `accountRef`; labels are never sent.
+ *
+ * Options: --url (default http://127.0.0.1:8787), --token (default: a flow credential from
+ * .dev.vars), --ledger (default demo-ledger/data/ledger.csv), --limit N, --batch N (default 100),
+ * --parallel N requests in flight (default 4).
+ */
+import { existsSync } from "node:fs";
+import { dirname, join, resolve } from "node:path";
+import { fileURLToPath } from "node:url";
+import { parseArgs, numberOption, stringOption, formatHelp, UsageError, type CommandSpec } from "../cli/args";
+import { openCsvTable } from "../cli/csv";
+import { credentialsOf, readDevVars } from "./dev-vars";
+
+const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
+
+const spec: CommandSpec = {
+  command: "npm run replay --",
+  summary: "Sends the demo ledger's payments to the scoring service in batches and counts the answers.",
+  positionals: [],
+  options: [
+    { name: "url", kind: "string", valueName: "url", description: "service base URL", defaultText: "http://127.0.0.1:8787" },
+    { name: "token", kind: "string", valueName: "token", description: "flow bearer token", defaultText: "the 'replay' (else first) flow user of .dev.vars" },
+    { name: "ledger", kind: "string", valueName: "ledger.csv", description: "payments to send", defaultText: "demo-ledger/data/ledger.csv" },
+    { name: "limit", kind: "integer", valueName: "N", min: 1, description: "send at most N payments", defaultText: "all" },
+    { name: "batch", kind: "integer", valueName: "N", min: 1, max: 1000, description: "payments per request (≤ the service's MAX_BATCH)", defaultText: "100" },
+    { name: "parallel", kind: "integer", valueName: "N", min: 1, max: 32, description: "requests in flight", defaultText: "4" },
+  ],
+};
+
+interface Tally {
+  sent: number;
+  scored: number;
+  review: number;
+  audit: number;
+  refused: number;
+  refusals: Map<string, number>;
+}
+
+interface BatchAnswer {
+  results: { outcome: "scored" | "refused"; error?: string; result?: { decision: string; auditSample: boolean } }[];
+}
+
+async function main(): Promise<number> {
+  let args;
+  try {
+    args = parseArgs(process.argv.slice(2), spec);
+  } catch (error) {
+    if (error instanceof UsageError) {
+      process.stderr.write(`replay: ${error.message}\n`);
+      return 2;
+    }
+    throw error;
+  }
+  if (args.help) {
+    process.stdout.write(formatHelp(spec));
+    return 0;
+  }
+  const url = (stringOption(args, "url") ?? "http://127.0.0.1:8787").replace(/\/$/, "");
+  const ledger = resolve(stringOption(args, "ledger") ?? join(root, "demo-ledger/data/ledger.csv"));
+  const limit = numberOption(args, "limit") ?? Number.POSITIVE_INFINITY;
+  const batchSize = numberOption(args, "batch") ?? 100;
+  const parallel = numberOption(args, "parallel") ?? 4;
+  let token = stringOption(args, "token");
+  if (token === undefined) {
+    const devVars = join(root, ".dev.vars");
+    if (!existsSync(devVars)) {
+      process.stderr.write("replay: no --token and no .dev.vars (run npm start first)\n");
+      return 2;
+    }
+    const flows = credentialsOf(readDevVars(devVars), "FLOW_CREDENTIALS");
+    token = (flows.find((c) => c.user === "replay") ?? flows[0])?.token;
+    if (!token) {
+      process.stderr.write("replay: .dev.vars has no FLOW_CREDENTIALS entry\n");
+      return 2;
+    }
+  }
+
+  let health: { model: { version: string; features: string[]; segmentBy: string | null } | null };
+  try {
+    health = (await (await fetch(`${url}/v1/health`)).json()) as typeof health;
+  } catch (error) {
+    process.stderr.write(`replay: cannot reach ${url} (${(error as Error).message}); is the service running (npm start)?\n`);
+    return 3;
+  }
+  if (!health.model) {
+    process.stderr.write(`replay: the service at ${url} has no live model yet\n`);
+    return 1;
+  }
+  const model = health.model;
+  const table = await openCsvTable(ledger);
+  const column = (name: string): number => {
+    const index = table.header.indexOf(name);
+    if (index < 0) throw new Error(`${ledger} has no column '${name}' (the live model ${model.version} needs it)`);
+    return index;
+  };
+  const featureColumns = model.features.map((name) => [name, column(name)] as const);
+  const idColumn = column("paymentId");
+  const segmentColumn = model.segmentBy ? column(model.segmentBy) : -1;
+  const accountColumn = table.header.indexOf("accountRef");
+
+  process.stdout.write(`replaying ${ledger} to ${url} (model ${model.version}, ${batchSize} per request, ${parallel} in flight)\n`);
+  const tally: Tally = { sent: 0, scored: 0, review: 0, audit: 0, refused: 0, refusals: new Map() };
+  const started = Date.now();
+  const inFlight = new Set<Promise<void>>();
+  let batch: Record<string, unknown>[] = [];
+
+  let failure: Error | null = null;
+  const send = (payments: Record<string, unknown>[]): void => {
+    const request = (async () => {
+      const response = await fetch(`${url}/v1/score/batch`, {
+        method: "POST",
+        headers: { "content-type": "application/json", authorization: `Bearer ${token}` },
+        body: JSON.stringify({ payments }),
+      });
+      const body = (await response.json()) as BatchAnswer & { error?: string; problems?: { field: string; rule: string }[] };
+      if (response.status !== 200) {
+        throw new Error(`the service answered ${response.status} ${body.error ?? ""}: ${JSON.stringify(body.problems ?? []).slice(0, 300)}`);
+      }
+      for (const r of body.results) {
+        if (r.outcome === "scored" && r.result) {
+          tally.scored++;
+          if (r.result.decision === "review") tally.review++;
+          if (r.result.auditSample) tally.audit++;
+        } else {
+          tally.refused++;
+          tally.refusals.set(r.error ?? "?", (tally.refusals.get(r.error ?? "?") ?? 0) + 1);
+        }
+      }
+    })()
+      .catch((error: unknown) => {
+        failure ??= error instanceof Error ? error : new Error(String(error));
+      })
+      .finally(() => inFlight.delete(request));
+    inFlight.add(request);
+  };
+
+  try {
+    for await (const record of table.rows) {
+      if (tally.sent >= limit || failure) break;
+      const features: Record<string, number> = {};
+      for (const [name, index] of featureColumns) features[name] = Number(record.cells[index]);
+      batch.push({
+        transactionId: record.cells[idColumn],
+        features,
+        ...(segmentColumn >= 0 ? { segment: record.cells[segmentColumn] } : {}),
+        ...(accountColumn >= 0 && record.cells[accountColumn] !== "" ? { accountRef: record.cells[accountColumn] } : {}),
+      });
+      tally.sent++;
+      if (batch.length === batchSize) {
+        send(batch);
+        batch = [];
+        if (inFlight.size >= parallel) await Promise.race(inFlight);
+        if (tally.sent % (batchSize * 20) === 0) {
+          process.stdout.write(`  ${tally.sent} sent, ${tally.review} to review, ${tally.audit} audit sample\n`);
+        }
+      }
+    }
+    if (batch.length > 0 && !failure) send(batch);
+    await Promise.all(inFlight);
+  } finally {
+    await table.rows.return(undefined);
+  }
+  if (failure) {
+    process.stderr.write(`replay: stopped after ${tally.scored + tally.refused} answers: ${(failure as Error).message}\n`);
+    return 3;
+  }
+  const seconds = (Date.now() - started) / 1000;
+  process.stdout.write(
+    [
+      `done in ${seconds.toFixed(1)} s (${Math.round(tally.sent / seconds)} payments/s)`,
+      `  sent:          ${tally.sent}`,
+      `  scored:        ${tally.scored}`,
+      `  to review:     ${tally.review} flagged (${((100 * tally.review) / Math.max(1, tally.scored)).toFixed(2)} %)`,
+      `  audit sample:  ${tally.audit} passing payments drawn for review`,
+      `  refused:       ${tally.refused}${tally.refused ? ` (${[...tally.refusals].map(([k, v]) => `${k} ${v}`).join(", ")})` : ""}`,
+      "The flagged and audit-sampled payments reach the review store (D1 table review_items) through the queue within seconds.",
+      "",
+    ].join("\n"),
+  );
+  return tally.refused > 0 ? 1 : 0;
+}
+
+process.exitCode = await main();

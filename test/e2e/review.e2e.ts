@@ -1,0 +1,201 @@
+/**
+ * An analyst's morning in a real browser: sign in with a personal credential, work the demo queue
+ * from the keyboard (claim, confirm as fraud, dismiss with a note, undo), see the counts move, meet
+ * a colleague's claim, open the evidence, reload and find every decision kept. A note holding
+ * markup and script stays inert text. Screenshots of the queue and the payment view are written to
+ * test-output/screenshots (and to docs/screenshots with UPDATE_SCREENSHOTS=1).
+ */
+import { mkdir, rm } from "node:fs/promises";
+import { join } from "node:path";
+import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import type { Browser, Page } from "playwright-core";
+import { seedDemoQueue } from "./demo-queue";
+import { launchChromium, repoRoot, startStack, type Stack } from "./stack";
+
+const HOSTILE_NOTE = `Customer called back. <script>window.__injected = "script"</script><img src="x" onerror="window.__injected = 'img'"> ok`;
+
+let stack: Stack;
+let browser: Browser;
+let page: Page;
+const shots = process.env.UPDATE_SCREENSHOTS === "1" ? join(repoRoot, "docs/screenshots") : join(repoRoot, "test-output/screenshots");
+
+beforeAll(async () => {
+  stack = await startStack(`e2e-review-${process.pid}`, { ANALYST_DAILY_CAPACITY: "150" });
+  await seedDemoQueue(stack.base, stack.tokens);
+  browser = await launchChromium();
+  page = await browser.newPage({ viewport: { width: 1280, height: 800 } });
+  await mkdir(shots, { recursive: true });
+});
+
+afterAll(async () => {
+  await browser?.close();
+  await stack?.stop();
+  // Keep the wrangler log beside it for a failed run; the local D1/KV state is not needed.
+  if (stack) await rm(join(stack.stateDir, "state"), { recursive: true, force: true });
+});
+
+/** Polls until `check` returns true (the app updates after network round trips). */
+async function until(check: () => Promise<boolean>, what: string, timeoutMs = 10_000): Promise<void> {
+  const deadline = Date.now() + timeoutMs;
+  while (!(await check())) {
+    if (Date.now() > deadline) throw new Error(`timed out waiting for ${what}`);
+    await new Promise((r) => setTimeout(r, 50));
+  }
+}
+
+const text = (testId: string, nth = 0) => page.getByTestId(testId).nth(nth).innerText();
+const count = async (state: string) => Number((await text(`count-${state}`)).replace(/,/g, ""));
+const rowStanding = (index: number) => page.getByTestId("queue-row").nth(index).getByTestId("standing").innerText();
+
+async function api<T>(path: string, token: string, body?: unknown): Promise<{ status: number; body: T }> {
+  const res = await fetch(`${stack.base}${path}`, {
+    method: body === undefined ? "GET" : "POST",
+    headers: { authorization: `Bearer ${token}`, ...(body === undefined ? {} : { "content-type": "application/json" }) },
+    body: body === undefined ? undefined : JSON.stringify(body),
+  });
+  return { status: res.status, body: (await res.json()) as T };
+}
+
+describe("the review app in Chromium", () => {
+  it("refuses a wrong credential, then signs the analyst in and shows who is signed in", async () => {
+    await page.goto(stack.base);
+    await page.getByLabel("Personal credential").fill("not-a-real-credential-000000");
+    await page.getByRole("button", { name: "Sign in" }).click();
+    await until(async () => (await page.getByRole("alert").count()) > 0, "the refusal");
+    expect(await page.getByRole("alert").innerText()).toContain("not accepted");
+
+    await page.getByLabel("Personal credential").fill(stack.tokens.analyst);
+    await page.getByRole("button", { name: "Sign in" }).click();
+    await page.getByTestId("signed-in-user").waitFor();
+    expect(await text("signed-in-user")).toBe("mara");
+    await page.getByTestId("queue-row").first().waitFor();
+    expect(await count("open")).toBeGreaterThan(10);
+    expect(await page.getByTestId("caution").first().innerText()).toContain("A score is evidence, not a verdict.");
+  });
+
+  it("claims and confirms fraud with the keyboard, and the counts and the day's figures move", async () => {
+    const open = await count("open");
+    const decidedToday = Number(await text("decided-today"));
+    await page.keyboard.press("c");
+    await until(async () => (await rowStanding(0)).startsWith("Yours"), "the claim");
+    expect(await text("status-line")).toContain("is yours until");
+    await page.keyboard.press("f");
+    await until(async () => (await rowStanding(0)).startsWith("Fraud"), "the decision");
+    expect(await rowStanding(0)).toContain("mara");
+    await until(async () => (await count("open")) === open - 1 && (await count("decided")) === 1, "the counts");
+    await until(async () => Number(await text("decided-today")) === decidedToday + 1, "the day's figures");
+    // The selection moved on to the next payment.
+    expect(await page.getByTestId("queue-row").nth(1).getAttribute("aria-selected")).toBe("true");
+  });
+
+  it("dismisses as legitimate with a note holding markup, which stays inert text", async () => {
+    await page.keyboard.press("n");
+    await page.getByTestId("note-dialog").waitFor();
+    await page.getByLabel(/Note for the audit trail/).fill(HOSTILE_NOTE);
+    expect(await page.getByTestId("note-dialog").getByTestId("caution").innerText()).toContain("evidence, not a verdict");
+    await page.getByRole("button", { name: "Dismiss as legitimate" }).click();
+    await until(async () => (await rowStanding(1)).startsWith("Legitimate"), "the dismissal");
+
+    await page.keyboard.press("k");
+    await page.keyboard.press("Enter");
+    await page.getByTestId("decision-note").waitFor();
+    expect(await page.getByTestId("decision-note").innerText()).toBe(HOSTILE_NOTE);
+    expect(await page.getByTestId("audit-note").last().innerText()).toBe(HOSTILE_NOTE);
+    expect(await page.locator("[data-testid=decision-note] img, [data-testid=audit-note] img, [data-testid=decision-note] script").count()).toBe(0);
+    expect(await page.evaluate(() => (window as unknown as { __injected?: string }).__injected)).toBeUndefined();
+    expect(await text("decision-state")).toContain("Decided legitimate by mara");
+  });
+
+  it("shows the evidence: plain-words reasons, residual bars, the pair plot and the audit trail", async () => {
+    await page.keyboard.press("Escape");
+    await page.getByTestId("queue-table").waitFor();
+    await page.keyboard.press("j");
+    await page.keyboard.press("Enter");
+    await page.getByTestId("evidence").waitFor();
+    const evidence = await text("evidence");
+    expect(evidence).toMatch(/— expected .+(–| to ).+ given the other features/);
+    await page.getByTestId("residual-chart").waitFor();
+    expect(await page.getByTestId("residual-chart").locator("rect.bar").count()).toBe(9);
+    await page.getByTestId("pair-chart").waitFor();
+    expect(await page.getByTestId("pair-chart").locator("path.ring").count()).toBe(3);
+    const ticks = await page.getByTestId("pair-chart").locator("text.tick").allInnerTexts();
+    expect(ticks.length).toBeGreaterThanOrEqual(4);
+    expect(await page.getByText("A score is evidence, not a verdict.").first().isVisible()).toBe(true);
+    // A tall window, so the whole view fits above the status bar.
+    await page.setViewportSize({ width: 1280, height: 1560 });
+    await page.screenshot({ path: join(shots, "payment-view.png") });
+    await page.setViewportSize({ width: 1280, height: 800 });
+  });
+
+  it("names the colleague who took a payment since the list was loaded when the analyst tries to take it", async () => {
+    await page.keyboard.press("Escape");
+    await page.getByTestId("queue-table").waitFor();
+    const index = await page.getByTestId("queue-row").evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=standing]")?.textContent?.trim() === "Waiting"));
+    const id = Number(await page.getByTestId("queue-row").nth(index).getAttribute("data-item-id"));
+    // A colleague takes it through the API while this list is on screen.
+    expect((await api(`/v1/review/items/${id}/claim`, stack.tokens.analyst2, {})).status).toBe(200);
+    await page.getByTestId("queue-row").nth(index).click();
+    await page.keyboard.press("c");
+    await until(async () => (await text("status-line")).includes("teodor"), "the refusal naming the holder");
+    expect(await text("status-line")).toMatch(/taken by teodor until/);
+    expect(await page.getByTestId("status-line").getAttribute("class")).toContain("error");
+    await until(async () => (await rowStanding(index)).startsWith("Taken by teodor"), "the line showing the holder");
+    // The Taken list shows it too.
+    await page.getByTestId("state-claimed").click();
+    await until(async () => (await page.getByTestId("queue-row").count()) === 1, "the taken list");
+    expect(await rowStanding(0)).toContain("Taken by teodor");
+    await page.getByTestId("state-open").click();
+    await until(async () => (await page.getByTestId("queue-row").count()) > 1, "the open list");
+  });
+
+  it("undoes a decision with u", async () => {
+    const index = await page.getByTestId("queue-row").evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=standing]")?.textContent?.trim() === "Waiting"));
+    await page.getByTestId("queue-row").nth(index).click();
+    await page.keyboard.press("l");
+    await until(async () => (await rowStanding(index)).startsWith("Legitimate"), "the dismissal");
+    await page.keyboard.press("u");
+    await until(async () => (await rowStanding(index)).startsWith("Yours"), "the undo");
+    expect(await text("status-line")).toContain("undone");
+    await page.keyboard.press("r");
+    await until(async () => (await rowStanding(index)) === "Waiting", "the release");
+  });
+
+  it("keeps the decisions after a reload, and the settled list shows them", async () => {
+    await page.reload();
+    await page.getByTestId("signed-in-user").waitFor();
+    await page.getByTestId("state-decided").click();
+    await until(async () => (await page.getByTestId("queue-row").count()) === 2, "the settled list");
+    const standings = await page.getByTestId("standing").allInnerTexts();
+    expect(standings.map((s) => (s.startsWith("Fraud") ? "Fraud" : s.startsWith("Legitimate") ? "Legitimate" : s)).sort()).toEqual(["Fraud", "Legitimate"]);
+    await page.getByTestId("state-open").click();
+    await until(async () => (await page.getByTestId("queue-row").first().getAttribute("data-item-id")) !== null, "the open list");
+  });
+
+  it("opens the help overlay with ? and lists every key", async () => {
+    await page.keyboard.press("?");
+    await page.getByTestId("help-overlay").waitFor({ state: "visible" });
+    const help = await text("help-overlay");
+    for (const word of ["Next payment", "Confirm as fraud", "Dismiss as legitimate", "Write a note", "Undo"]) expect(help).toContain(word);
+    await page.keyboard.press("Escape");
+    await page.getByTestId("help-overlay").waitFor({ state: "hidden" });
+  });
+
+  it("fits a 1280×800 screen and a narrow laptop window without sideways scrolling of the page", async () => {
+    await page.getByTestId("queue-row").first().waitFor();
+    await page.screenshot({ path: join(shots, "queue.png") });
+    for (const width of [1280, 900]) {
+      await page.setViewportSize({ width, height: 800 });
+      const overflow = await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+      expect(overflow, `width ${width}`).toBeLessThanOrEqual(0);
+    }
+    // Every form control has an accessible name.
+    const unnamed = await page.evaluate(() =>
+      Array.from(document.querySelectorAll("input, select, textarea, button")).filter((el) => {
+        const labelled = (el as HTMLInputElement).labels?.length || el.getAttribute("aria-label") || (el.textContent ?? "").trim();
+        return !labelled;
+      }).length,
+    );
+    expect(unnamed).toBe(0);
+    await page.setViewportSize({ width: 1280, height: 800 });
+  });
+});

@@ -1,0 +1,61 @@
+/**
+ * Authentication and role checks for the API routes. Missing or unknown bearer token → 401;
+ * known token but a role the route does not allow → 403. Admins pass every role check.
+ */
+import type { MiddlewareHandler } from "hono";
+import type { AppEnv } from "../app-env";
+import { problemResponse } from "../problems";
+import { credentialTable, type Role } from "./credentials";
+
+const CHALLENGE = { "www-authenticate": 'Bearer realm="isodense"' };
+
+/**
+ * Establishes the caller from `Authorization: Bearer <token>` and stores `{ role, user }` as
+ * `principal` in the context.
+ *
+ * @example
+ * app.use("/v1/score", authenticate());
+ */
+export function authenticate(): MiddlewareHandler<AppEnv> {
+  return async (c, next) => {
+    const header = c.req.header("authorization");
+    if (header === undefined) {
+      return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "is required: expected 'Bearer <token>'" }], { headers: CHALLENGE });
+    }
+    const match = /^Bearer[ ]+([^\s]+)\s*$/i.exec(header);
+    if (!match) {
+      return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "must be 'Bearer <token>' (one token, Bearer scheme)" }], {
+        headers: CHALLENGE,
+      });
+    }
+    const table = await credentialTable(c.env);
+    const principal = await table.identify(match[1]);
+    if (principal === null) {
+      return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "the bearer token is not a known credential" }], {
+        headers: { "www-authenticate": 'Bearer realm="isodense", error="invalid_token"' },
+      });
+    }
+    c.set("principal", principal);
+    await next();
+  };
+}
+
+/**
+ * Lets through callers whose role is listed; admins always pass.
+ *
+ * @example
+ * app.post("/v1/score", authenticate(), allow("flow"), handler);
+ */
+export function allow(...roles: Role[]): MiddlewareHandler<AppEnv> {
+  const allowed = new Set<Role>([...roles, "admin"]);
+  const names = [...allowed].join(", ");
+  return async (c, next) => {
+    const principal = c.get("principal");
+    if (!allowed.has(principal.role)) {
+      return problemResponse(c, 403, "forbidden", [
+        { field: "authorization", rule: `role ${principal.role} may not call ${c.req.method} ${new URL(c.req.url).pathname}; allowed roles: ${names}` },
+      ]);
+    }
+    await next();
+  };
+}

@@ -1,0 +1,39 @@
+import { describe, expect, it } from "vitest";
+import { decisionBodySchema, listQuerySchema, timeRange } from "./schemas";
+import { dailyCapacity, DEFAULT_DAILY_CAPACITY, utcDayStart } from "./settings";
+
+describe("review inputs", () => {
+  it("turns a day range into a half-open range that includes the whole last day", () => {
+    expect(timeRange("2026-12-01", "2026-12-01")).toEqual({ fromMs: Date.UTC(2026, 11, 1), toMs: Date.UTC(2026, 11, 2) });
+    expect(timeRange("2026-12-01T10:00:00Z", "2026-12-01T11:30:00Z")).toEqual({
+      fromMs: Date.UTC(2026, 11, 1, 10),
+      toMs: Date.UTC(2026, 11, 1, 11, 30),
+    });
+    expect(timeRange(undefined, undefined)).toEqual({ fromMs: undefined, toMs: undefined });
+  });
+
+  it("accepts a note of exactly 2,000 characters and refuses 2,001", () => {
+    expect(decisionBodySchema.safeParse({ outcome: "fraud", note: "n".repeat(2000) }).success).toBe(true);
+    const refused = decisionBodySchema.safeParse({ outcome: "fraud", note: "n".repeat(2001) });
+    expect(refused.success).toBe(false);
+    expect(refused.error?.issues[0].message).toBe("must be at most 2000 characters");
+  });
+
+  it("fills the list defaults: open items by priority, 50 a page", () => {
+    expect(listQuerySchema.parse({})).toEqual({ state: "open", sort: "priority", limit: 50 });
+    expect(listQuerySchema.parse({ limit: "200" }).limit).toBe(200);
+    expect(listQuerySchema.safeParse({ limit: "201" }).success).toBe(false);
+  });
+
+  it("reads ANALYST_DAILY_CAPACITY, defaults it when unset and names it when malformed", () => {
+    expect(dailyCapacity({ ANALYST_DAILY_CAPACITY: "250" })).toBe(250);
+    expect(dailyCapacity({})).toBe(DEFAULT_DAILY_CAPACITY);
+    for (const bad of ["0", "2.5", "many", "-3", "1000000"]) {
+      expect(() => dailyCapacity({ ANALYST_DAILY_CAPACITY: bad }), bad).toThrow(/ANALYST_DAILY_CAPACITY must be a whole number from 1 to 100000/);
+    }
+  });
+
+  it("starts the day at UTC midnight", () => {
+    expect(utcDayStart(Date.UTC(2026, 11, 1, 23, 59, 59, 999))).toBe(Date.UTC(2026, 11, 1));
+  });
+});

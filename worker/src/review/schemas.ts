@@ -1,0 +1,76 @@
+/**
+ * zod schemas of the review API's inputs: the list and count query strings, the decision body, the
+ * export query. Rules are worded as the `rule` of a 4xx problem ("must be one of …").
+ */
+import { z } from "zod";
+import { MAX_NOTE_LENGTH } from "./settings";
+
+const DATE = /^\d{4}-\d{2}-\d{2}$/;
+
+/** A UTC day (`2026-12-01`) or an instant (`2026-12-01T10:00:00Z`); parsed to ms. */
+const dayOrInstant = z
+  .string()
+  .refine((text) => (DATE.test(text) || !Number.isNaN(Date.parse(text))) && /^\d{4}-\d{2}-\d{2}/.test(text), {
+    error: "must be a date YYYY-MM-DD or an ISO-8601 time such as 2026-12-01T10:00:00Z",
+  });
+
+const shortText = (max: number) =>
+  z
+    .string()
+    .min(1, { error: `must be 1 to ${max} characters` })
+    .max(max, { error: `must be 1 to ${max} characters` });
+
+/** Filters shared by the list, the counts and (partly) the export. */
+const filterShape = {
+  segment: shortText(64).optional(),
+  modelVersion: shortText(128).optional(),
+  selection: z.enum(["flagged", "audit"], { error: "must be flagged or audit" }).optional(),
+  from: dayOrInstant.optional(),
+  to: dayOrInstant.optional(),
+};
+
+export const countsQuerySchema = z.strictObject(filterShape);
+
+export const listQuerySchema = z.strictObject({
+  ...filterShape,
+  state: z.enum(["open", "claimed", "decided"], { error: "must be open, claimed or decided" }).default("open"),
+  sort: z.enum(["priority", "tail", "amount", "age"], { error: "must be priority, tail, amount or age" }).default("priority"),
+  direction: z.enum(["asc", "desc"], { error: "must be asc or desc" }).optional(),
+  limit: z
+    .string()
+    .regex(/^\d{1,3}$/, { error: "must be a whole number from 1 to 200" })
+    .transform(Number)
+    .refine((n) => n >= 1 && n <= 200, { error: "must be a whole number from 1 to 200" })
+    .default(50),
+  cursor: z.string().max(512, { error: "must be at most 512 characters" }).optional(),
+});
+
+export const exportQuerySchema = z.strictObject({
+  format: z.enum(["csv", "ndjson"], { error: "must be csv or ndjson" }),
+  modelVersion: shortText(128).optional(),
+});
+
+export const LIST_QUERY_KEYS = Object.keys(listQuerySchema.shape);
+export const COUNTS_QUERY_KEYS = Object.keys(countsQuerySchema.shape);
+export const EXPORT_QUERY_KEYS = Object.keys(exportQuerySchema.shape);
+
+export const decisionBodySchema = z.strictObject({
+  outcome: z.enum(["fraud", "legitimate"], { error: "must be fraud or legitimate" }),
+  note: z
+    .string({ error: "must be a string" })
+    .max(MAX_NOTE_LENGTH, { error: `must be at most ${MAX_NOTE_LENGTH} characters` })
+    .optional(),
+});
+
+export const DECISION_BODY_KEYS = ["outcome", "note"];
+
+/**
+ * Turns `from`/`to` into a half-open ms range: a day `to` includes that whole day; an instant
+ * `to` is exclusive.
+ * @example timeRange("2026-12-01", "2026-12-01") // { fromMs: Date.UTC(2026, 11, 1), toMs: Date.UTC(2026, 11, 2) }
+ */
+export function timeRange(from: string | undefined, to: string | undefined): { fromMs?: number; toMs?: number } {
+  const fromMs = from === undefined ? undefined : Date.parse(DATE.test(from) ? `${from}T00:00:00Z` : from);
+  const toMs = to === undefined ? undefined : DATE.test(to) ? Date.parse(`${to}T00:00:00Z`) + 86_400_000 : Date.parse(to);
+  return { fromMs, toMs };
+}

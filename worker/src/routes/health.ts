@@ -1,0 +1,39 @@
+/**
+ * `GET /v1/health` (no credential): whether a model is loaded, which one, and how loading has gone.
+ * 200 when a model is loaded, 503 when none is, so a load balancer or the payment flow's circuit
+ * breaker can act on the status alone. Holds no secrets: versions, times, counts, failure codes.
+ */
+import { Hono } from "hono";
+import type { AppEnv } from "../app-env";
+import { readSettings } from "../env";
+import { counters } from "../scoring/counters";
+import { modelCache } from "../scoring/model-cache";
+
+/** Health route, mounted under `/v1`. */
+export const healthRoutes = new Hono<AppEnv>();
+
+healthRoutes.get("/health", async (c) => {
+  const settings = readSettings(c.env);
+  const snapshot = await modelCache.snapshot(c.env, settings.modelRefreshMs);
+  const status = modelCache.status();
+  const body = {
+    status: snapshot ? ("ready" as const) : ("no-model" as const),
+    model: snapshot
+      ? {
+          version: snapshot.live.version,
+          loadedAt: snapshot.live.loadedAt,
+          features: snapshot.live.compiled.features.map((f) => f.name),
+          segmentBy: snapshot.live.compiled.segmentBy,
+        }
+      : null,
+    shadow: status.shadow,
+    pointer: status.pointer,
+    refreshSeconds: settings.modelRefreshMs / 1000,
+    lastCheckedAt: status.lastCheckedAt,
+    loadFailures: status.loadFailures,
+    shadowLoadFailures: status.shadowLoadFailures,
+    lastFailure: status.lastFailure,
+    counters: { ...counters },
+  };
+  return c.json(body, snapshot ? 200 : 503);
+});

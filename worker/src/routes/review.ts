@@ -1,0 +1,222 @@
+/**
+ * The review API for analysts (and admins), mounted at `/v1/review`:
+ *
+ * - GET  /me                      who is signed in, claim length, undo window
+ * - GET  /items                   a page of the queue (filters, order, keyset cursor) and counts per state
+ * - GET  /counts                  counts per state under filters
+ * - GET  /facets                  segments and model versions for the filter menus
+ * - GET  /items/:id               the payment, its evidence, the account's recent flags, the audit trail
+ * - POST /items/:id/claim         take the item for 15 minutes (409 names the holder)
+ * - POST /items/:id/release       hand it back
+ * - POST /items/:id/decision      { outcome: "fraud" | "legitimate", note? } under your live claim
+ * - POST /items/:id/undo          revert your last decision within 5 minutes
+ * - GET  /summary                 today's figures against ANALYST_DAILY_CAPACITY
+ * - GET  /export?format=csv|ndjson  the labelled set
+ *
+ * Every refusal is `{ error, problems: [{ field, rule }] }`; a 409 on a held item adds `claim`.
+ */
+import { Hono, type Context } from "hono";
+import type { z } from "zod";
+import type { AppEnv } from "../app-env";
+import { allow, authenticate } from "../middleware/auth";
+import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
+import { problemResponse, problemsFromZod } from "../problems";
+import { claimItem, decideItem, releaseItem, undoDecision, type Actor, type ActionResult as StoreResult } from "../review/actions";
+import type { ActionResult, ItemDetail, QueuePage, SortDirection, SortKey, WhoAmI } from "../review/contract";
+import { decodeCursor } from "../review/cursor";
+import { evidenceFor } from "../review/evidence";
+import { ExportColumnClash, exportFeatureColumns, exportStream } from "../review/export";
+import { readItem } from "../review/item-store";
+import { countStates, daySummary, listFacets, listPage, toQueueRow, type StatusRow } from "../review/queue-store";
+import {
+  COUNTS_QUERY_KEYS,
+  countsQuerySchema,
+  DECISION_BODY_KEYS,
+  decisionBodySchema,
+  EXPORT_QUERY_KEYS,
+  exportQuerySchema,
+  LIST_QUERY_KEYS,
+  listQuerySchema,
+  timeRange,
+} from "../review/schemas";
+import { CLAIM_TTL_MS, dailyCapacity, UNDO_WINDOW_MS, type ReviewEnv } from "../review/settings";
+
+type ReviewContext = Context<AppEnv>;
+
+/** First direction of each order when none is given: most urgent, rarest, largest, oldest first. */
+const NATURAL_DIRECTION: Record<SortKey, SortDirection> = { priority: "desc", tail: "asc", amount: "desc", age: "asc" };
+
+/** Hono sub-app of the review API; mount with `app.route("/v1/review", reviewRoutes)`. */
+export const reviewRoutes = new Hono<AppEnv>();
+
+reviewRoutes.use("*", authenticate(), allow("analyst"));
+
+reviewRoutes.get("/me", (c) => {
+  const { user, role } = c.get("principal");
+  const body: WhoAmI = { user, role: role === "admin" ? "admin" : "analyst", claimTtlSeconds: CLAIM_TTL_MS / 1000, undoWindowSeconds: UNDO_WINDOW_MS / 1000 };
+  return c.json(body);
+});
+
+reviewRoutes.get("/items", async (c) => {
+  const query = parseQuery(c, listQuerySchema, LIST_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  const direction = query.direction ?? NATURAL_DIRECTION[query.sort];
+  let after = null;
+  if (query.cursor !== undefined) {
+    const decoded = decodeCursor(query.cursor);
+    if ("error" in decoded) return problemResponse(c, 400, "invalid-query", [{ field: "cursor", rule: decoded.error }]);
+    const p = decoded.position;
+    if (p.sort !== query.sort || p.direction !== direction || p.state !== query.state) {
+      return problemResponse(c, 400, "invalid-query", [
+        {
+          field: "cursor",
+          rule: `was made for state=${p.state}, sort=${p.sort}, direction=${p.direction}, not state=${query.state}, sort=${query.sort}, direction=${direction}; start again without a cursor`,
+        },
+      ]);
+    }
+    after = p;
+  }
+  const range = checkedRange(c, query.from, query.to);
+  if (range instanceof Response) return range;
+  const filters = { segment: query.segment, modelVersion: query.modelVersion, selection: query.selection, ...range };
+  const now = Date.now();
+  const [page, counts] = await Promise.all([
+    listPage(c.env, { ...filters, state: query.state, sort: query.sort, direction, limit: query.limit, after }, now),
+    countStates(c.env, filters, now),
+  ]);
+  const body: QueuePage = { items: page.rows, nextCursor: page.nextCursor, counts, sort: query.sort, direction, asOf: new Date(now).toISOString() };
+  return c.json(body);
+});
+
+reviewRoutes.get("/counts", async (c) => {
+  const query = parseQuery(c, countsQuerySchema, COUNTS_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  const range = checkedRange(c, query.from, query.to);
+  if (range instanceof Response) return range;
+  return c.json(await countStates(c.env, { segment: query.segment, modelVersion: query.modelVersion, selection: query.selection, ...range }, Date.now()));
+});
+
+reviewRoutes.get("/facets", async (c) => c.json(await listFacets(c.env)));
+
+reviewRoutes.get("/summary", async (c) => {
+  const capacity = dailyCapacity(c.env as ReviewEnv);
+  return c.json(await daySummary(c.env, c.get("principal").user, Date.now(), capacity));
+});
+
+reviewRoutes.get("/items/:id", async (c) => {
+  const id = itemId(c);
+  if (id instanceof Response) return id;
+  const now = Date.now();
+  const stored = await readItem(c.env, id, now);
+  if (!stored) return problemResponse(c, 404, "not-found", [{ field: "id", rule: `no review item has id ${id}` }]);
+  const evidence = await evidenceFor(c.env, stored.status.model_version, stored.status.segment, stored.features);
+  const features: Record<string, number> = {};
+  for (const [name, value] of Object.entries(stored.features)) if (typeof value === "number") features[name] = value;
+  const body: ItemDetail = {
+    item: {
+      ...toQueueRow(stored.status, now),
+      features,
+      logDensity: stored.logDensity,
+      cutoffMahalanobisSq: stored.cutoffMahalanobisSq,
+      inclusionProbability: stored.inclusionProbability,
+      receivedAt: stored.receivedAt,
+    },
+    reasons: stored.reasons,
+    residuals: evidence.residuals,
+    pair: evidence.pair,
+    evidenceGap: evidence.gap,
+    history: stored.history,
+    events: stored.events,
+    undoableUntil: undoableUntil(stored.status, c.get("principal").user, now),
+  };
+  return c.json(body);
+});
+
+reviewRoutes.post("/items/:id/claim", (c) => act(c, (env, id, actor) => claimItem(env, id, actor)));
+reviewRoutes.post("/items/:id/release", (c) => act(c, (env, id, actor) => releaseItem(env, id, actor)));
+reviewRoutes.post("/items/:id/undo", (c) => act(c, (env, id, actor) => undoDecision(env, id, actor)));
+
+reviewRoutes.post("/items/:id/decision", jsonBody(BODY_LIMITS.score), async (c) => {
+  const raw = c.get("body");
+  const parsed = decisionBodySchema.safeParse(raw);
+  if (!parsed.success) return problemResponse(c, 400, "invalid-body", problemsFromZod(parsed.error, raw, "", DECISION_BODY_KEYS));
+  const note = parsed.data.note === undefined || parsed.data.note.trim() === "" ? null : parsed.data.note;
+  return act(c, (env, id, actor) => decideItem(env, id, actor, parsed.data.outcome, note));
+});
+
+reviewRoutes.get("/export", async (c) => {
+  const query = parseQuery(c, exportQuerySchema, EXPORT_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  let columns: string[];
+  try {
+    columns = await exportFeatureColumns(c.env, query.modelVersion);
+  } catch (error) {
+    if (!(error instanceof ExportColumnClash)) throw error;
+    return problemResponse(c, 409, "export-column-clash", [
+      { field: "modelVersion", rule: `feature ${error.feature} has the name of a fixed export column; export one model version at a time with ?modelVersion=` },
+    ]);
+  }
+  const day = new Date().toISOString().slice(0, 10);
+  const csv = query.format === "csv";
+  return new Response(exportStream(c.env, query.format, columns, query.modelVersion), {
+    headers: {
+      "content-type": csv ? "text/csv; charset=utf-8" : "application/x-ndjson; charset=utf-8",
+      "content-disposition": `attachment; filename="isodense-labels-${day}.${csv ? "csv" : "ndjson"}"`,
+      "cache-control": "no-store",
+    },
+  });
+});
+
+/** Runs one change for the signed-in analyst and answers with the new queue line or the refusal. */
+async function act(c: ReviewContext, run: (env: AppEnv["Bindings"], id: number, actor: Actor) => Promise<StoreResult>): Promise<Response> {
+  const id = itemId(c);
+  if (id instanceof Response) return id;
+  const { user, role } = c.get("principal");
+  const actor: Actor = { user, role, nowMs: Date.now() };
+  const result = await run(c.env, id, actor);
+  if (!result.ok) {
+    const body: Record<string, unknown> = { error: result.error, problems: result.problems };
+    if (result.claim) body.claim = result.claim;
+    return c.json(body, result.status);
+  }
+  const answer: ActionResult = { item: toQueueRow(result.row, actor.nowMs), undoableUntil: undoableUntil(result.row, user, actor.nowMs) };
+  return c.json(answer);
+}
+
+function undoableUntil(row: StatusRow, user: string, nowMs: number): string | null {
+  return row.undo_by === user && row.undo_until_ms !== null && row.undo_until_ms > nowMs ? new Date(row.undo_until_ms).toISOString() : null;
+}
+
+/** The `:id` path parameter as a positive safe integer, or the 400 answer. */
+function itemId(c: ReviewContext): number | Response {
+  const text = c.req.param("id") ?? "";
+  const id = /^[1-9]\d{0,15}$/.test(text) ? Number(text) : NaN;
+  if (!Number.isSafeInteger(id)) {
+    return problemResponse(c, 400, "invalid-path", [
+      { field: "id", rule: `must be a positive whole number (an item id from GET /v1/review/items). Actual: ${JSON.stringify(text.slice(0, 40))}` },
+    ]);
+  }
+  return id;
+}
+
+/** Validates the query string: each parameter at most once, only known names, each by its rule. */
+function parseQuery<S extends z.ZodType>(c: ReviewContext, schema: S, keys: readonly string[]): z.infer<S> | Response {
+  const all = c.req.queries();
+  const single: Record<string, string> = {};
+  for (const [name, values] of Object.entries(all)) {
+    if (values.length > 1) return problemResponse(c, 400, "invalid-query", [{ field: name, rule: `must be given once. Actual: ${values.length} times` }]);
+    single[name] = values[0];
+  }
+  const parsed = schema.safeParse(single);
+  if (!parsed.success) return problemResponse(c, 400, "invalid-query", problemsFromZod(parsed.error, single, "", keys));
+  return parsed.data;
+}
+
+/** `from` and `to` as a half-open ms range, refusing a range that ends before it starts. */
+function checkedRange(c: ReviewContext, from: string | undefined, to: string | undefined): { fromMs?: number; toMs?: number } | Response {
+  const range = timeRange(from, to);
+  if (range.fromMs !== undefined && range.toMs !== undefined && range.toMs <= range.fromMs) {
+    return problemResponse(c, 400, "invalid-query", [{ field: "to", rule: `must not be before from (${from}). Actual: ${to}` }]);
+  }
+  return range;
+}

@@ -1,0 +1,12 @@
+/**
+ * Per-isolate counters of things that went wrong without failing a request; reported by
+ * `GET /v1/health` so that a silent degradation shows somewhere.
+ */
+export const counters = {
+  /** Payments not scored in shadow because the shadow model needs a feature the request lacks or refuses a value. */
+  shadowSkipped: 0,
+  /** Shadow messages that could not be enqueued (best effort; the live answer is unaffected). */
+  shadowSendFailures: 0,
+  /** Review hand-offs that could not be enqueued (the payment was answered 503, retryable). */
+  handoffSendFailures: 0,
+};

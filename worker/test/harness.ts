@@ -1,0 +1,214 @@
+/**
+ * Runs the real worker on workerd (Miniflare, the simulator inside wrangler) with the bindings of
+ * wrangler.toml: real local KV, D1 (migrations from worker/migrations applied) and Queues, with
+ * both consumers. Nothing is faked: tests talk HTTP to the worker and read KV/D1 through
+ * Miniflare's own binding proxies.
+ *
+ * The worker is bundled once per test run with esbuild, as wrangler would bundle it
+ * (worker/test/global-setup.ts).
+ */
+import { randomBytes } from "node:crypto";
+import { dirname, join, resolve } from "node:path";
+import type { Readable } from "node:stream";
+import { fileURLToPath } from "node:url";
+import { Log, LogLevel, Miniflare } from "miniflare";
+import { inject } from "vitest";
+import { prepareWorker, type PreparedMigration, type PreparedWorker } from "./worker-build";
+
+export const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
+
+let preparedHere: Promise<PreparedWorker> | undefined;
+
+/**
+ * The bundle, wrangler.toml's Miniflare options and the migrations: from the global setup when the
+ * worker project runs, else prepared in this process (a test file run on its own).
+ */
+export function preparedWorker(): Promise<PreparedWorker> {
+  const provided = inject("isodenseWorker");
+  if (provided) return Promise.resolve(provided);
+  preparedHere ??= prepareWorker(repoRoot, join(repoRoot, "test-output", "worker-bundle"));
+  return preparedHere;
+}
+
+/** Bearer tokens of one test run (random, never the demo ones). */
+export interface TestTokens {
+  flow: string;
+  analyst: string;
+  admin: string;
+  /** A second flow user, to check per-user identities. */
+  flow2: string;
+}
+
+/** Fresh random tokens. */
+export function makeTokens(): TestTokens {
+  const t = (role: string) => `test-${role}-${randomBytes(20).toString("hex")}`;
+  return { flow: t("flow"), analyst: t("analyst"), admin: t("admin"), flow2: t("flow2") };
+}
+
+/** A log line written by the simulator (queue moves, retries) or by the worker's console. */
+export interface CapturedLog {
+  level: LogLevel | "stdout" | "stderr";
+  message: string;
+}
+
+/** Miniflare log sink that keeps every line for assertions. */
+class CapturingLog extends Log {
+  constructor(private readonly lines: CapturedLog[]) {
+    super(LogLevel.DEBUG);
+  }
+  override logWithLevel(level: LogLevel, message: string): void {
+    this.lines.push({ level, message });
+  }
+}
+
+/** A running worker. */
+export interface RunningWorker {
+  mf: Miniflare;
+  tokens: TestTokens;
+  logs: CapturedLog[];
+  /** HTTP request to the worker (`path` like "/v1/score"). */
+  fetch(path: string, init?: RequestInit & { token?: string | null }): Promise<Response>;
+  /** POST JSON with a bearer token. */
+  post(path: string, body: unknown, token: string | null): Promise<Response>;
+  kv(): Promise<KVNamespaceLike>;
+  db(): Promise<D1Like>;
+  dispose(): Promise<void>;
+}
+
+/** The slice of the KV binding the tests use. */
+export interface KVNamespaceLike {
+  get(key: string, type: "text"): Promise<string | null>;
+  put(key: string, value: string): Promise<void>;
+  delete(key: string): Promise<void>;
+}
+
+/** The slice of the D1 binding the tests use. */
+export interface D1Like {
+  prepare(sql: string): { bind(...values: unknown[]): D1StatementLike } & D1StatementLike;
+  exec(sql: string): Promise<unknown>;
+  batch(statements: D1StatementLike[]): Promise<unknown>;
+}
+interface D1StatementLike {
+  all<T = Record<string, unknown>>(): Promise<{ results: T[] }>;
+  first<T = Record<string, unknown>>(): Promise<T | null>;
+  run(): Promise<unknown>;
+}
+
+/** Options of {@link startWorker}. */
+export interface StartOptions {
+  /** Overrides of the `[vars]` of wrangler.toml (e.g. MODEL_REFRESH_SECONDS: "0"). */
+  vars?: Record<string, string>;
+  /** Overrides or removals (undefined) of the credential secrets. */
+  secrets?: Record<string, string | undefined>;
+  /** Directory for persisted KV/D1 state (default: in memory). */
+  persistDir?: string;
+  /** Keep this worker's tokens (to restart on the same state). */
+  tokens?: TestTokens;
+  /** Skip applying migrations (when reusing persisted state). */
+  skipMigrations?: boolean;
+}
+
+/**
+ * Starts the bundled worker with wrangler.toml's bindings and applies the D1 migrations.
+ *
+ * @example
+ * const worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+ */
+export async function startWorker(options: StartOptions = {}): Promise<RunningWorker> {
+  const { scriptPath, workerOptions, migrations } = await preparedWorker();
+  const tokens = options.tokens ?? makeTokens();
+  const secrets: Record<string, string> = {
+    FLOW_CREDENTIALS: `checkout:${tokens.flow},replayer:${tokens.flow2}`,
+    ANALYST_CREDENTIALS: `rosa:${tokens.analyst}`,
+    ADMIN_CREDENTIALS: `ops-ana:${tokens.admin}`,
+  };
+  for (const [name, value] of Object.entries(options.secrets ?? {})) {
+    if (value === undefined) delete secrets[name];
+    else secrets[name] = value;
+  }
+  const logs: CapturedLog[] = [];
+  const persist = options.persistDir
+    ? { kvPersist: join(options.persistDir, "kv"), d1Persist: join(options.persistDir, "d1") }
+    : { kvPersist: false, d1Persist: false };
+  const mf = new Miniflare({
+    ...(workerOptions as object),
+    name: "isodense",
+    modules: true,
+    scriptPath,
+    bindings: { ...((workerOptions.bindings as Record<string, string> | undefined) ?? {}), ...(options.vars ?? {}), ...secrets },
+    cf: false,
+    log: new CapturingLog(logs),
+    handleRuntimeStdio(stdout: Readable, stderr: Readable) {
+      stdout.on("data", (chunk: Buffer) => logs.push({ level: "stdout", message: chunk.toString() }));
+      stderr.on("data", (chunk: Buffer) => logs.push({ level: "stderr", message: chunk.toString() }));
+    },
+    ...persist,
+  } as ConstructorParameters<typeof Miniflare>[0]);
+  await mf.ready;
+  const worker: RunningWorker = {
+    mf,
+    tokens,
+    logs,
+    fetch(path, init = {}) {
+      const { token, ...rest } = init;
+      const headers = new Headers(rest.headers as HeadersInit | undefined);
+      if (token) headers.set("authorization", `Bearer ${token}`);
+      return mf.dispatchFetch(`http://isodense.test${path}`, { ...rest, headers } as never) as unknown as Promise<Response>;
+    },
+    post(path, body, token) {
+      return worker.fetch(path, {
+        method: "POST",
+        headers: { "content-type": "application/json" },
+        body: typeof body === "string" ? body : JSON.stringify(body),
+        token,
+      });
+    },
+    async kv() {
+      return (await mf.getKVNamespace("MODELS")) as unknown as KVNamespaceLike;
+    },
+    async db() {
+      return (await mf.getD1Database("DB")) as unknown as D1Like;
+    },
+    dispose: () => mf.dispose(),
+  };
+  if (!options.skipMigrations) await applyMigrations(await worker.db(), migrations);
+  return worker;
+}
+
+/** Applies the migrations of worker/migrations in name order, one D1 batch per file. */
+export async function applyMigrations(db: D1Like, migrations?: PreparedMigration[]): Promise<string[]> {
+  const list = migrations ?? (await preparedWorker()).migrations;
+  for (const migration of list) await db.batch(migration.statements.map((sql) => db.prepare(sql)));
+  return list.map((m) => m.name);
+}
+
+/** Polls `check` until it returns a non-undefined value or `timeoutMs` passes. */
+export async function eventually<T>(check: () => Promise<T | undefined>, timeoutMs: number, intervalMs = 200): Promise<T> {
+  const deadline = Date.now() + timeoutMs;
+  let last: T | undefined;
+  for (;;) {
+    last = await check();
+    if (last !== undefined) return last;
+    if (Date.now() > deadline) throw new Error(`condition not met within ${timeoutMs} ms`);
+    await new Promise((r) => setTimeout(r, intervalMs));
+  }
+}
+
+/** Counts rows of a table. */
+export async function countRows(db: D1Like, table: string, where = "1 = 1", ...values: unknown[]): Promise<number> {
+  const row = await db.prepare(`SELECT COUNT(*) AS n FROM ${table} WHERE ${where}`).bind(...values).first<{ n: number }>();
+  return Number(row?.n ?? 0);
+}
+
+/**
+ * Uploads an artifact over HTTP as the admin and, optionally, activates it.
+ *
+ * @throws when the worker refuses either step (the status and body are in the message).
+ */
+export async function publishModel(worker: RunningWorker, artifact: { version: string }, activate = true): Promise<void> {
+  const upload = await worker.post("/v1/models", artifact, worker.tokens.admin);
+  if (upload.status !== 201 && upload.status !== 200) throw new Error(`upload answered ${upload.status}: ${await upload.text()}`);
+  if (!activate) return;
+  const activation = await worker.post(`/v1/models/${encodeURIComponent(artifact.version)}/activate`, {}, worker.tokens.admin);
+  if (activation.status !== 200) throw new Error(`activate answered ${activation.status}: ${await activation.text()}`);
+}
