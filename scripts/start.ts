@@ -9,7 +9,9 @@
  *    the review UI if wrangler.toml serves it as assets and its build folder is missing;
  * 5. starts `wrangler dev` on 127.0.0.1:8787 (PORT overrides) with local KV, D1 and Queues;
  * 6. waits for /v1/health, publishes and activates the demo model over HTTP as the demo admin;
- * 7. prints the URL, the demo credentials and a curl that scores a payment.
+ * 7. fills the review queue on first start: when the review store holds no open item, replays the
+ *    first DEMO_REPLAY_PAYMENTS (default 8,000) payments of the demo ledger through the scoring API;
+ * 8. prints the URL, the demo credentials and a curl that scores a payment.
  * Ctrl-C stops wrangler dev (the local state in .state/ is kept; local queues are in memory).
  */
 import { spawn, type ChildProcess } from "node:child_process";
@@ -110,6 +112,20 @@ async function ensureAssets(): Promise<void> {
   await run("npm", ["run", "build:ui"], "npm run build:ui");
 }
 
+/**
+ * On first start the review queue is empty; an analyst opening the app should find work in it, so
+ * score part of the demo ledger through the public API (the same path the payment flow takes).
+ */
+async function fillDemoQueue(readerToken: string): Promise<void> {
+  const answer = await fetch(`${url}/v1/review/summary`, { headers: { authorization: `Bearer ${readerToken}` } });
+  if (!answer.ok) fail(`GET /v1/review/summary answered ${answer.status}`);
+  const summary = (await answer.json()) as { open: number; claimed: number };
+  if (summary.open + summary.claimed > 0) return;
+  const limit = String(Number(process.env.DEMO_REPLAY_PAYMENTS ?? 8000));
+  step(`filling the review queue: replaying the first ${limit} demo payments`);
+  await run(process.execPath, [join(root, "bin/run-ts.js"), join(root, "scripts/replay.ts"), "--url", url, "--limit", limit], "npm run replay");
+}
+
 function ensureDevVars(): void {
   if (existsSync(paths.devVars)) return;
   copyFileSync(paths.devVarsExample, paths.devVars);
@@ -202,6 +218,8 @@ if (published !== 0) {
   fail("publishing the demo model failed (see above)");
 }
 
+await fillDemoQueue(analysts[0]?.token ?? admin.token);
+
 const curl = await sampleCurl(flow.token);
 process.stdout.write(
   [
@@ -219,7 +237,8 @@ process.stdout.write(
     "Score a payment:",
     curl,
     "",
-    "Fill the review store with the demo ledger's flags:  npm run replay",
+    `Review app (sign in with an analyst credential): ${url}/`,
+    "Score the rest of the demo ledger:  npm run replay",
     "Stop with Ctrl-C.",
     "────────────────────────────────────────────────────────────────────────",
     "",

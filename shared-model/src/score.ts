@@ -95,6 +95,11 @@ export function selectSegment(model: CompiledModel, segment?: string | null): Se
  * Squared Mahalanobis distance d² = (x−μ)ᵀ Λ (x−μ), the hot kernel. Fills `diff` with x − μ and
  * uses the symmetry of Λ: d² = Σ_i diff_i (Λ_ii diff_i + 2 Σ_{j>i} Λ_ij diff_j), half the
  * multiply-adds of the full double loop. Allocates nothing; NaN in x propagates to the result.
+ *
+ * Rows are taken four at a time (register blocking): each diff_j loaded in the inner loop feeds
+ * four independent multiply-adds, which cuts loads and bounds checks per multiply-add and gives
+ * the CPU four accumulation chains to overlap — about twice the speed of the plain loop at n = 32
+ * (bench/kernel.ts). The 4×4 diagonal block of each group is summed explicitly.
  * @param precision Λ, n×n row-major, symmetric (only the upper triangle and diagonal are read)
  * @param diff scratch of length ≥ n, overwritten
  * @example mahalanobisSq(Float64Array.of(1, 0, 0, 4), Float64Array.of(0, 0), [1, 1], 2, new Float64Array(2)) // 5
@@ -108,7 +113,36 @@ export function mahalanobisSq(
 ): number {
   for (let i = 0; i < n; i++) diff[i] = x[i] - mean[i];
   let total = 0;
-  for (let i = 0; i < n; i++) {
+  let i = 0;
+  for (; i + 3 < n; i += 4) {
+    const r0 = i * n;
+    const r1 = r0 + n;
+    const r2 = r1 + n;
+    const r3 = r2 + n;
+    const d0 = diff[i];
+    const d1 = diff[i + 1];
+    const d2 = diff[i + 2];
+    const d3 = diff[i + 3];
+    const block =
+      d0 * (precision[r0 + i] * d0 + 2 * (precision[r0 + i + 1] * d1 + precision[r0 + i + 2] * d2 + precision[r0 + i + 3] * d3)) +
+      d1 * (precision[r1 + i + 1] * d1 + 2 * (precision[r1 + i + 2] * d2 + precision[r1 + i + 3] * d3)) +
+      d2 * (precision[r2 + i + 2] * d2 + 2 * precision[r2 + i + 3] * d3) +
+      d3 * precision[r3 + i + 3] * d3;
+    let a0 = 0;
+    let a1 = 0;
+    let a2 = 0;
+    let a3 = 0;
+    for (let j = i + 4; j < n; j++) {
+      const dj = diff[j];
+      a0 += precision[r0 + j] * dj;
+      a1 += precision[r1 + j] * dj;
+      a2 += precision[r2 + j] * dj;
+      a3 += precision[r3 + j] * dj;
+    }
+    total += block + 2 * (d0 * a0 + d1 * a1 + d2 * a2 + d3 * a3);
+  }
+  // The last n mod 4 rows, one at a time.
+  for (; i < n; i++) {
     const row = i * n;
     const di = diff[i];
     let off = 0;
