@@ -32,6 +32,7 @@ export const fitSpec: CommandSpec = {
     { name: "label-column", kind: "string", valueName: "column", description: "review labels: fraud/legitimate or 1/0, empty = not reviewed", defaultText: "label if present" },
     { name: "segment-by", kind: "string", valueName: "column", description: "fit one model per value of this column, pooled for small ones" },
     { name: "cutoff-rate", kind: "number", valueName: "rate", greaterThan: 0, lessThan: 1, description: "share of training rows the cutoff flags", defaultText: "0.01" },
+    { name: "support-fraction", kind: "number", valueName: "α", min: 0.5, max: 1, description: "robust only: least share of rows the MCD keeps", defaultText: "(m+n+1)/2 rows" },
     { name: "seed", kind: "integer", valueName: "N", min: 0, max: 2 ** 32 - 1, description: "seed for sampling and the robust fit", defaultText: "1" },
     { name: "min-segment-rows", kind: "integer", valueName: "N", min: 1, description: "rows a segment value needs for its own model", defaultText: "max(10 × columns, 200)" },
   ],
@@ -81,6 +82,7 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
       minSegmentRows: numberOption(args, "min-segment-rows"),
       cutoffRate: numberOption(args, "cutoff-rate") ?? 0.01,
       seed: numberOption(args, "seed"),
+      supportFraction: numberOption(args, "support-fraction"),
       source: basename(ledgerPath),
       // Counted by the source while it streams; fitModel reads them after its last pass.
       get rowsRead() {

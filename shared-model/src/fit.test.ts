@@ -350,6 +350,26 @@ describe("refusals", () => {
     expect(exact?.columns).toEqual(["payments_24h"]);
     expect(exact?.message).toBe("800 of 1,000 rows satisfy payments_24h = 0 exactly (in model units), more than the 502 rows the robust fit keeps, so its covariance would be singular");
     expect(exact?.remedy).toContain("--estimator shrinkage");
+    expect(exact?.remedy).toContain("raise --support-fraction above 0.80");
+  });
+
+  it("fits that zero-inflated count robustly once the support fraction keeps more rows than share one value", async () => {
+    const data = gaussianRows(1_000, [3, 0], [1, 0.2, 0.2, 1], 42).map(([a, b], i) => [a, b, i % 5 === 0 ? 1 + (i % 3) : 0]);
+    const { artifact } = await fitModel(new ArraySource(asRows(data)), options(plain("amount", "age", "payments_24h"), { estimator: "robust", supportFraction: 0.9 }));
+    const details = artifact.segments["*"].details;
+    expect(details.estimator).toBe("robust");
+    // h = max(⌊(1000+3+1)/2⌋, ⌈0.9·1000⌉) = 900 > the 800 rows with payments_24h = 0.
+    expect(details.estimator === "robust" && details.h).toBe(900);
+    await expect(parseArtifact(JSON.parse(JSON.stringify(artifact)))).resolves.toBeTruthy();
+  });
+
+  it("refuses a support fraction outside [0.5, 1] or with another estimator, naming the option", async () => {
+    const rows = asRows(gaussianRows(200, [0, 0], [1, 0, 0, 1], 43));
+    const low = await inputError(fitModel(new ArraySource(rows), options(plain("a", "b"), { estimator: "robust", supportFraction: 0.3 })));
+    expect(low.field).toBe("supportFraction");
+    expect(low.message).toContain("must be between 0.5 and 1; got 0.3");
+    const classical = await inputError(fitModel(new ArraySource(rows), options(plain("a", "b"), { supportFraction: 0.8 })));
+    expect(classical.message).toContain("applies to the robust estimator only");
   });
 
   it("refuses a column that is constant in all rows, naming it", async () => {

@@ -87,6 +87,13 @@ export interface FitOptions {
   cutoffRate: number;
   /** Seed of every random choice (samples, FAST-MCD starts); default {@link DEFAULT_FIT_SEED}. */
   seed?: number;
+  /**
+   * Robust only: the least share of rows the raw MCD keeps, 0.5 ≤ α ≤ 1 (scikit-learn's
+   * `support_fraction`, robustbase's `alpha`). h = max(⌊(m+n+1)/2⌋, ⌈α·m⌉): the default ⌊(m+n+1)/2⌋
+   * has the highest breakdown point; a larger α tolerates less contamination but copes with a
+   * column that takes one value in most rows (a count that is usually 0).
+   */
+  supportFraction?: number;
   /** Model id; by default derived from the content (see {@link fitModel}). */
   version?: string;
   /** ISO-8601 time stamp; default now. */
@@ -306,7 +313,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
   for (const slot of liveSlots()) {
     const problems: Diagnostic[] = [];
     try {
-      let estimate = estimateFor(slot, options.estimator, n, seed);
+      let estimate = estimateFor(slot, options.estimator, n, seed, options.supportFraction);
       // Dependencies are sought in the full estimate even for a diagonal model, where they are
       // warnings (the same evidence counted twice) rather than errors.
       const conditioning = diagnoseCovariance(estimate.covariance, n, columns, { mean: estimate.mean, shape, rows: slot.rows });
@@ -325,7 +332,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
     } catch (error) {
       if (error instanceof FitRefusal) throw error;
       if (error instanceof ExactFitError) {
-        problems.push(exactFitDiagnostic(error, slot, columns, n));
+        problems.push(exactFitDiagnostic(error, slot, columns, mcdSubsetSize(slot.rows, n, options.supportFraction)));
       } else problems.push({
         code: "estimate-failed",
         severity: "error",
@@ -478,6 +485,12 @@ function checkOptions(options: FitOptions): void {
   if (!(typeof options.cutoffRate === "number" && options.cutoffRate > 0 && options.cutoffRate < 1)) {
     throw new FitInputError("cutoffRate", `must be a number with 0 < rate < 1; got ${String(options.cutoffRate)}`);
   }
+  if (options.supportFraction !== undefined && !(options.supportFraction >= 0.5 && options.supportFraction <= 1)) {
+    throw new FitInputError("supportFraction", `must be between 0.5 and 1; got ${String(options.supportFraction)}`);
+  }
+  if (options.supportFraction !== undefined && options.estimator !== "robust") {
+    throw new FitInputError("supportFraction", `applies to the robust estimator only; the estimator is '${options.estimator}'`);
+  }
   if (options.seed !== undefined && !(Number.isSafeInteger(options.seed) && options.seed >= 0 && options.seed < Number.MAX_SAFE_INTEGER)) {
     throw new FitInputError("seed", `must be a whole number ≥ 0; got ${String(options.seed)}`);
   }
@@ -554,14 +567,20 @@ function segmentKey(row: FitRow, segmentBy: string | null): string | null {
   return segmentBy === null || row.segment === null || row.segment === "" ? null : row.segment;
 }
 
-function estimateFor(slot: ModelSlot, estimator: EstimatorName, n: number, seed: number): CovarianceEstimate {
+/** MCD subset size for `rows` rows: the default ⌊(m+n+1)/2⌋, raised to ⌈α·m⌉ when a support fraction is given. */
+export function mcdSubsetSize(rows: number, n: number, supportFraction?: number): number {
+  const breakdown = Math.floor((rows + n + 1) / 2);
+  return Math.min(rows, supportFraction === undefined ? breakdown : Math.max(breakdown, Math.ceil(supportFraction * rows)));
+}
+
+function estimateFor(slot: ModelSlot, estimator: EstimatorName, n: number, seed: number, supportFraction?: number): CovarianceEstimate {
   switch (estimator) {
     case "classical":
       return classicalEstimate(slot.moments);
     case "shrinkage":
       return shrinkageEstimate(slot.moments, slot.fourth!.sum);
     case "robust":
-      return robustEstimate(slot.data!, slot.rows, n, { seed });
+      return robustEstimate(slot.data!, slot.rows, n, { seed, h: mcdSubsetSize(slot.rows, n, supportFraction) });
   }
 }
 
@@ -657,7 +676,7 @@ export async function contentVersion(content: Omit<UnsealedArtifact, "version">,
  * Names the hyperplane of a FAST-MCD exact fit in column names: typically a count that is 0 in
  * most rows (more than the h rows the raw MCD keeps), so the robust covariance would be singular.
  */
-function exactFitDiagnostic(error: ExactFitError, slot: ModelSlot, columns: readonly string[], n: number): Diagnostic {
+function exactFitDiagnostic(error: ExactFitError, slot: ModelSlot, columns: readonly string[], h: number): Diagnostic {
   const terms = error.normal
     .map((c, j) => ({ c, name: columns[j] }))
     .filter((t) => Math.abs(t.c) >= 0.005)
@@ -670,7 +689,6 @@ function exactFitDiagnostic(error: ExactFitError, slot: ModelSlot, columns: read
   if (right === "") right = String(Number(constant.toPrecision(4)));
   else if (Math.abs(constant) >= 0.005) right += ` ${constant < 0 ? "−" : "+"} ${Math.abs(constant).toFixed(2)}`;
   const equation = `${lead.name} = ${right}`;
-  const h = Math.floor((slot.rows + n + 1) / 2);
   const where = slot.key === "*" ? "" : ` of segment '${slot.key}'`;
   return {
     code: "robust-exact-fit",
@@ -680,7 +698,10 @@ function exactFitDiagnostic(error: ExactFitError, slot: ModelSlot, columns: read
       `more than the ${count(h)} rows the robust fit keeps, so its covariance would be singular`,
     columns: terms.map((t) => t.name),
     equation,
-    remedy: `drop ${terms.length === 1 ? lead.name : `one of ${terms.map((t) => t.name).join(", ")}`}, or use --estimator shrinkage or classical, which use every row`,
+    remedy:
+      `drop ${terms.length === 1 ? lead.name : `one of ${terms.map((t) => t.name).join(", ")}`}, ` +
+      `or raise --support-fraction above ${(error.rowsOnHyperplane / slot.rows).toFixed(2)} so the robust fit keeps more rows, ` +
+      `or use --estimator shrinkage or classical, which use every row`,
   };
 }
 

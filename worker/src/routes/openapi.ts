@@ -77,7 +77,7 @@ export function openApiDocument() {
       version: "1",
       description:
         "Scores card-not-present payments with a multivariate Gaussian, flags the unusual ones for human review and never declines a payment. " +
-        "Roles: flow (score), analyst (review, later), admin (models; may do everything).",
+        "Roles: flow (score), analyst (review queue), admin (models; may do everything).",
     },
     servers: [{ url: "/" }],
     components: { securitySchemes: { bearer: { type: "http", scheme: "bearer", description: "Per-user token from FLOW_CREDENTIALS, ANALYST_CREDENTIALS or ADMIN_CREDENTIALS." } }, schemas },
