@@ -6,20 +6,15 @@
  */
 import { fitModel, type FitRow, type RowSource } from "../shared-model/src/fit";
 import type { FeatureDeclaration } from "../shared-model/src/types";
+import { xorshift32 } from "./xorshift";
 
 const rows = Number(process.argv[2] ?? 100_000);
 const n = Number(process.argv[3] ?? 32);
 
+/** Uniforms strictly inside (0, 1), as Box–Muller's logarithm needs. */
 function makeUniform(seed: number): () => number {
-  let state = seed >>> 0 || 1;
-  return () => {
-    state ^= state << 13;
-    state >>>= 0;
-    state ^= state >>> 17;
-    state ^= state << 5;
-    state >>>= 0;
-    return (state + 0.5) / 4294967296;
-  };
+  const next = xorshift32(seed);
+  return () => (next() + 0.5) / 4294967296;
 }
 
 // A fixed lower-triangular mixing matrix gives the columns a dense correlation structure.

@@ -1,6 +1,7 @@
 /*
- * Reference for the scoring-kernel benchmark: the same loop as shared-model's `mahalanobisSq`
- * (diff = x − μ, then the symmetric half of Λ), written plainly in C and compiled with -O3.
+ * Reference for the scoring-kernel benchmark: the computation of shared-model's `mahalanobisSq`
+ * (diff = x − μ, then the symmetric half of Λ) as the straightforward C loop, compiled with -O3
+ * (gcc vectorizes the multiplies). The TypeScript kernel computes the same sums, four rows at a time.
  * Usage: kernel <n> <seconds>. Prints one JSON object: {"n":…, "vectorsPerSecond":…, "checksum":…}.
  * Inputs come from the same xorshift generator as bench/kernel.ts, so both sides score equal data.
  */

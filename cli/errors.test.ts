@@ -4,21 +4,12 @@ import { FitRefusal } from "../shared-model/src/diagnostics";
 import { UsageError } from "./args";
 import { CsvError } from "./csv";
 import { EXIT_INTERNAL, EXIT_REFUSED, EXIT_USAGE, InputError, reportFailure } from "./errors";
-import type { CommandIO } from "./io";
+import { captureIO } from "./capture-io";
 
-function capture(): { io: CommandIO; out: () => string; err: () => string } {
-  let out = "";
-  let err = "";
-  return {
-    io: { stdout: { write: (t: string) => (out += t) }, stderr: { isTTY: false, write: (t: string) => (err += t) } },
-    out: () => out,
-    err: () => err,
-  };
-}
 
 describe("turning failures into messages and exit codes", () => {
   it("prints a refused fit's diagnostics with equation and remedy and returns 1", () => {
-    const c = capture();
+    const c = captureIO();
     const code = reportFailure(
       new FitRefusal([
         { code: "condition-number", severity: "info", message: "condition number 12" },
@@ -47,18 +38,18 @@ describe("turning failures into messages and exit codes", () => {
   });
 
   it("returns 2 for usage, CSV and input mistakes, pointing usage mistakes at --help", () => {
-    const usage = capture();
+    const usage = captureIO();
     expect(reportFailure(new UsageError("--out", "required", "option --out is required"), usage.io, "isodense score")).toBe(EXIT_USAGE);
     expect(usage.err()).toBe("isodense score: option --out is required\nrun 'isodense score --help' for usage\n");
-    const csv = capture();
+    const csv = captureIO();
     expect(reportFailure(new CsvError("ledger.csv", 4, "amount", "'x' is not a number"), csv.io, "isodense fit")).toBe(EXIT_USAGE);
     expect(csv.err()).toBe("isodense fit: ledger.csv line 4, column 'amount': 'x' is not a number\n");
-    const input = capture();
+    const input = captureIO();
     expect(reportFailure(new InputError("--spec", "not JSON", "--spec s.json is not valid JSON"), input.io, "isodense fit")).toBe(EXIT_USAGE);
   });
 
   it("lists every problem of a refused model file and returns 2", () => {
-    const c = capture();
+    const c = captureIO();
     const error = new ArtifactError([
       { path: "checksum", rule: "must equal the SHA-256 of the canonical content" },
       { path: "segments.web.logDet", rule: "must equal ln|covariance|" },
@@ -68,7 +59,7 @@ describe("turning failures into messages and exit codes", () => {
   });
 
   it("reports anything else as an internal error with exit 3", () => {
-    const c = capture();
+    const c = captureIO();
     expect(reportFailure(new TypeError("x is undefined"), c.io, "isodense fit")).toBe(EXIT_INTERNAL);
     expect(c.err()).toContain("isodense fit: internal error: x is undefined");
   });

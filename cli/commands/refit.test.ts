@@ -12,9 +12,9 @@ import { parseArtifact, type ModelArtifact } from "../../shared-model/src/artifa
 import { createRandom } from "../../shared-model/src/random";
 import { compileModel, Scorer } from "../../shared-model/src/score";
 import { retuneArtifact } from "../../shared-model/src/tuning";
-import type { CommandIO } from "../io";
 import { fitCommand } from "./fit";
 import { jaccard, refitCommand } from "./refit";
+import { captureIO } from "../capture-io";
 
 interface Row {
   id: string;
@@ -29,15 +29,6 @@ let dir: string;
 let rows: Row[];
 let live: ModelArtifact;
 
-function capture(): { io: CommandIO; out: () => string; err: () => string } {
-  let out = "";
-  let err = "";
-  return {
-    io: { stdout: { write: (t: string) => (out += t) }, stderr: { isTTY: false, write: (t: string) => (err += t) } },
-    out: () => out,
-    err: () => err,
-  };
-}
 
 const p = (name: string): string => join(dir, name);
 
@@ -64,7 +55,7 @@ beforeAll(async () => {
   await writeFile(p("ledger.csv"), ["id,amount,items,channel,label", ...rows.map((r) => `${r.id},${r.amount},${r.items},${r.channel},${r.ledgerLabel}`)].join("\n") + "\n");
   await writeFile(p("spec.json"), JSON.stringify({ features: [{ name: "amount", transform: "log" }, { name: "items", transform: "log1p" }] }));
   // The live model was fitted before the reviews: the 30 later-confirmed frauds were in its training data.
-  const fit = capture();
+  const fit = captureIO();
   expect(await fitCommand([p("ledger.csv"), "--out", p("live.json"), "--spec", p("spec.json"), "--segment-by", "channel", "--cutoff-rate", "0.02"], fit.io)).toBe(0);
   live = await parseArtifact(JSON.parse(await readFile(p("live.json"), "utf8")));
   // The review export: the 30 confirmed frauds, 20 dismissed flags, 100 audit draws at 5 %, and two
@@ -91,7 +82,7 @@ afterAll(async () => {
 
 describe("isodense refit", () => {
   it("leaves the confirmed fraud out of the candidate, as its training row count and mean prove", async () => {
-    const c = capture();
+    const c = captureIO();
     const code = await refitCommand([p("ledger.csv"), "--labels", p("labels.csv"), "--model", p("live.json"), "--out", p("candidate.json")], c.io);
     expect(c.err()).toBe("");
     expect(code).toBe(0);
@@ -144,7 +135,7 @@ describe("isodense refit", () => {
 
   it("needs an id column in the ledger to match the labels, and names it", async () => {
     await writeFile(p("noid.csv"), ["amount,items,channel", "40,2,web", "55,3,app"].join("\n") + "\n");
-    const c = capture();
+    const c = captureIO();
     expect(await refitCommand([p("noid.csv"), "--labels", p("labels.csv"), "--model", p("live.json"), "--out", p("c2.json")], c.io)).toBe(2);
     expect(c.err()).toContain("has no id column to match the labels against; name it with --id-column (columns are: amount, items, channel)");
   });
@@ -156,14 +147,14 @@ describe("isodense refit", () => {
     await writeFile(p("manual.json"), JSON.stringify(manual));
     const scorer = new Scorer(compileModel(manual));
     const share = rows.filter((r) => r.kind === "normal" && scorer.score([r.amount, r.items], r.channel).flagged).length / 3000;
-    const ok = capture();
+    const ok = captureIO();
     expect(await refitCommand([p("ledger.csv"), "--labels", p("labels.csv"), "--model", p("manual.json"), "--out", p("c3.json")], ok.io)).toBe(0);
     const candidate = await parseArtifact(JSON.parse(await readFile(p("c3.json"), "utf8")));
     expect(Math.abs(candidate.cutoff.flagRate! - share)).toBeLessThanOrEqual(1 / 3000);
     expect(ok.out()).toContain(`cutoff at ${(share * 100).toFixed(2)} % of training rows (the share of them the live cutoff d² > 4 flags)`);
 
     await writeFile(p("far.json"), JSON.stringify(await retuneArtifact(live, 1e6, "manual", null)));
-    const c = capture();
+    const c = captureIO();
     expect(await refitCommand([p("ledger.csv"), "--labels", p("labels.csv"), "--model", p("far.json"), "--out", p("c5.json")], c.io)).toBe(2);
     expect(c.err()).toContain("the live cutoff (basis manual, d² > 1000000) flags 0 of the 3,000 training rows, so there is no share to match; give --cutoff-rate");
     for (const [args, message] of [
@@ -172,7 +163,7 @@ describe("isodense refit", () => {
       [[p("ledger.csv"), "--labels", p("labels.csv"), "--model", p("live.json")], "option --out is required"],
       [[p("ledger.csv"), "--labels", p("labels.csv"), "--model", p("live.json"), "--out", p("labels.csv")], "option --out names an input file"],
     ] as [string[], string][]) {
-      const run = capture();
+      const run = captureIO();
       expect(await refitCommand(args, run.io)).toBe(2);
       expect(run.err()).toContain(message);
     }

@@ -9,9 +9,9 @@ import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { parseArtifact, type ModelArtifact } from "../../shared-model/src/artifact";
 import { createRandom } from "../../shared-model/src/random";
 import { compileModel, Scorer } from "../../shared-model/src/score";
-import type { CommandIO } from "../io";
 import { fitCommand } from "./fit";
 import { parseCapacity, parseCosts, tuneCommand } from "./tune";
+import { captureIO } from "../capture-io";
 
 let dir: string;
 let live: ModelArtifact;
@@ -26,15 +26,6 @@ interface Labelled {
 }
 let labelled: Labelled[];
 
-function capture(): { io: CommandIO; out: () => string; err: () => string } {
-  let out = "";
-  let err = "";
-  return {
-    io: { stdout: { write: (t: string) => (out += t) }, stderr: { isTTY: false, write: (t: string) => (err += t) } },
-    out: () => out,
-    err: () => err,
-  };
-}
 
 /** An invented shop: amounts grow with basket size; fraud buys far more per item. */
 function payment(random: ReturnType<typeof createRandom>, fraud: boolean): { amount: number; items: number } {
@@ -58,7 +49,7 @@ beforeAll(async () => {
   }
   await writeFile(join(dir, "ledger.csv"), ledger.join("\n") + "\n");
   await writeFile(join(dir, "spec.json"), JSON.stringify({ features: [{ name: "amount", transform: "log" }, { name: "items", transform: "log1p" }] }));
-  const fit = capture();
+  const fit = captureIO();
   const code = await fitCommand(["ledger.csv", "--out", join(dir, "live.json"), "--spec", join(dir, "spec.json"), "--segment-by", "channel"].map((a) => (a === "ledger.csv" ? join(dir, a) : a)), fit.io);
   expect(fit.err()).toBe("");
   expect(code).toBe(0);
@@ -108,7 +99,7 @@ function everyCutoff(): number[] {
 }
 
 async function tune(args: string[]): Promise<{ code: number; out: string; err: string; artifact: ModelArtifact | null }> {
-  const c = capture();
+  const c = captureIO();
   const outFile = join(dir, `tuned-${Math.random().toString(36).slice(2)}.json`);
   const code = await tuneCommand([join(dir, "labels.csv"), "--model", join(dir, "live.json"), "--out", outFile, ...args], c.io);
   let artifact: ModelArtifact | null = null;
@@ -186,21 +177,21 @@ describe("isodense tune", () => {
       expect(run.err, args.join(" ")).toMatch(message);
       expect(run.out).toBe("");
     }
-    const c = capture();
+    const c = captureIO();
     expect(await tuneCommand([join(dir, "labels.csv"), "--model", join(dir, "live.json"), "--out", join(dir, "labels.csv")], c.io)).toBe(2);
     expect(c.err()).toContain("option --out names an input file");
-    const noModel = capture();
+    const noModel = captureIO();
     expect(await tuneCommand([join(dir, "labels.csv"), "--out", join(dir, "x.json")], noModel.io)).toBe(2);
     expect(noModel.err()).toContain("option --model is required");
   });
 
   it("refuses a labelled set without fraud, or with a bad cell, naming file, line and column", async () => {
     await writeFile(join(dir, "no-fraud.csv"), labelsCsv(labelled.filter((r) => !r.fraud)));
-    const c = capture();
+    const c = captureIO();
     expect(await tuneCommand([join(dir, "no-fraud.csv"), "--model", join(dir, "live.json"), "--out", join(dir, "nf.json")], c.io)).toBe(2);
     expect(c.err()).toContain("no row is labelled fraud in 'outcome'; a cutoff cannot be tuned without confirmed fraud");
     await writeFile(join(dir, "bad-weight.csv"), labelsCsv(labelled.slice(0, 3)).replace(/,1\n$/, ",0.2\n"));
-    const w = capture();
+    const w = captureIO();
     expect(await tuneCommand([join(dir, "bad-weight.csv"), "--model", join(dir, "live.json"), "--out", join(dir, "bw.json")], w.io)).toBe(2);
     expect(w.err()).toContain("bad-weight.csv line 4, column 'weight': 0.2 is not a weight");
   });

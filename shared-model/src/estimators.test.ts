@@ -15,6 +15,7 @@ import {
 import { cholesky } from "./linalg";
 import { MomentAccumulator } from "./moments";
 import type { EstimatorDetails } from "./types";
+import { expectRelativelyClose } from "./test-support";
 
 const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
 const referenceDir = resolve(repoRoot, "../shared/reference-data");
@@ -26,19 +27,6 @@ function csvRows(file: string, from: number, to: number): number[][] {
   return lines.map((line) => line.split(",").slice(1 + from, 1 + to).map(Number));
 }
 
-function expectRelativelyClose(actual: ArrayLike<number>, wanted: readonly number[], tolerance: number, label: string): void {
-  expect(actual.length, `${label}: length`).toBe(wanted.length);
-  let worst = 0;
-  let at = -1;
-  for (let k = 0; k < wanted.length; k++) {
-    const rel = Math.abs(actual[k] - wanted[k]) / Math.abs(wanted[k]);
-    if (!(rel <= worst)) {
-      worst = rel;
-      at = k;
-    }
-  }
-  expect(worst, `${label}: worst relative difference ${worst} at [${at}]: got ${actual[at]}, expected ${wanted[at]}`).toBeLessThanOrEqual(tolerance);
-}
 
 function shrinkageOf(details: EstimatorDetails): number {
   if (details.estimator !== "shrinkage") throw new Error(`expected shrinkage details, got ${details.estimator}`);

@@ -4,6 +4,7 @@ import { fileURLToPath } from "node:url";
 import fc from "fast-check";
 import { describe, expect, it } from "vitest";
 import { EstimationInputError, MomentAccumulator } from "./moments";
+import { expectRelativelyClose } from "./test-support";
 
 const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
 const referenceDir = resolve(repoRoot, "../shared/reference-data");
@@ -15,20 +16,6 @@ function irisRows(): number[][] {
   return lines.map((line) => line.split(",").slice(1, 5).map(Number));
 }
 
-/** Fails with the worst relative difference, its index and both values. */
-function expectRelativelyClose(actual: ArrayLike<number>, wanted: readonly number[], tolerance: number, label: string): void {
-  expect(actual.length, `${label}: length`).toBe(wanted.length);
-  let worst = 0;
-  let at = -1;
-  for (let k = 0; k < wanted.length; k++) {
-    const rel = Math.abs(actual[k] - wanted[k]) / Math.abs(wanted[k]);
-    if (!(rel <= worst)) {
-      worst = rel;
-      at = k;
-    }
-  }
-  expect(worst, `${label}: worst relative difference ${worst} at [${at}]: got ${actual[at]}, expected ${wanted[at]}`).toBeLessThanOrEqual(tolerance);
-}
 
 function accumulate(rows: readonly (readonly number[])[], n: number): MomentAccumulator {
   const acc = new MomentAccumulator(n);

@@ -1,9 +1,10 @@
 /**
- * Test support for artifact, score and reasons tests: assembles small sealed artifacts from
+ * Test support for the shared-model tests: assembles small sealed artifacts from
  * hand-made Gaussians (invented numbers for a fictional shop) through the real builder and
  * sealer, and reads the reference CSV files. Not part of the public surface (index.ts does not
  * export it).
  */
+import { expect } from "vitest";
 import { buildSegment, sealArtifact } from "./artifact";
 import type { ModelArtifact, UnsealedArtifact, ArtifactSegment } from "./artifact";
 import { chiSquareSurvival } from "./distributions";
@@ -123,4 +124,19 @@ export function spdFrom(entries: readonly number[], n: number, ridge: number): F
     s[i * n + i] += ridge;
   }
   return s;
+}
+
+/** Fails with the worst relative difference, its index and both values (for outside reference checks). */
+export function expectRelativelyClose(actual: ArrayLike<number>, wanted: readonly number[], tolerance: number, label: string): void {
+  expect(actual.length, `${label}: length`).toBe(wanted.length);
+  let worst = 0;
+  let at = -1;
+  for (let k = 0; k < wanted.length; k++) {
+    const rel = Math.abs(actual[k] - wanted[k]) / Math.abs(wanted[k]);
+    if (!(rel <= worst)) {
+      worst = rel;
+      at = k;
+    }
+  }
+  expect(worst, `${label}: worst relative difference ${worst} at [${at}]: got ${actual[at]}, expected ${wanted[at]}`).toBeLessThanOrEqual(tolerance);
 }
