@@ -401,4 +401,15 @@ describe("sealArtifact and parseArtifact", () => {
     });
     expectProblem(await refusal(missing), "features[1].lambda", /is required for the yeo-johnson transform/);
   });
+
+  it("accepts a feature's observed training range and refuses one whose min exceeds its max", async () => {
+    const good = await tamperAndReseal((a) => {
+      a.features[0] = { ...a.features[0], observed: { min: 1.5, max: 980 } };
+    });
+    await expect(parseArtifact(good)).resolves.toBeTruthy();
+    const bad = await tamperAndReseal((a) => {
+      a.features[0] = { ...a.features[0], observed: { min: 980, max: 1.5 } };
+    });
+    expectProblem(await refusal(bad), "features[0].observed", /min must not exceed max/);
+  });
 });

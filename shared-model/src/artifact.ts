@@ -59,6 +59,7 @@ const featureSchema = z.strictObject({
   name: z.string().min(1),
   transform: z.enum(["none", "log", "log1p", "yeo-johnson", "cyclic-hour"]),
   lambda: finite.optional(),
+  observed: z.strictObject({ min: finite, max: finite }).optional(),
   columns: z.array(z.string().min(1)).min(1).max(2),
 });
 
@@ -540,6 +541,9 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
     }
     if (f.transform === "yeo-johnson" && f.lambda === undefined) {
       add(`features[${i}].lambda`, "is required for the yeo-johnson transform");
+    }
+    if (f.observed !== undefined && !(f.observed.min <= f.observed.max)) {
+      add(`features[${i}].observed`, `min must not exceed max; got min ${f.observed.min}, max ${f.observed.max}`);
     }
     if (f.transform !== "yeo-johnson" && f.lambda !== undefined) {
       add(`features[${i}].lambda`, `is only allowed for the yeo-johnson transform, not ${f.transform}`);

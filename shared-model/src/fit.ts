@@ -211,10 +211,17 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
   const sampleRandom = createRandom(seed);
   const reservoir = new Reservoir(k, FIT_SAMPLE_ROWS, sampleRandom);
   const segmentCounts = new Map<string, number>();
+  const observedMin = new Float64Array(k).fill(Infinity);
+  const observedMax = new Float64Array(k).fill(-Infinity);
   let rowsUsed = 0;
   for await (const row of source.pass()) {
     rowsUsed++;
     checkRow(row, decls, rowsUsed);
+    for (let j = 0; j < k; j++) {
+      const v = row.values[j];
+      if (v < observedMin[j]) observedMin[j] = v;
+      if (v > observedMax[j]) observedMax[j] = v;
+    }
     const key = segmentKey(row, segmentBy);
     if (key !== null) {
       if (key === "*") throw new FitInputError("segment", `'*' is reserved for the pooled model and cannot be a ${segmentBy} value`, rowsUsed);
@@ -263,7 +270,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
     const column = new Float64Array(sampleRows);
     for (let r = 0; r < sampleRows; r++) column[r] = sample[r * k + j];
     return column;
-  });
+  }).map((f, j) => ({ ...f, observed: { min: observedMin[j], max: observedMax[j] } }));
 
   // ---- Pass 2: moments (and the rows themselves for robust). ----
   const x = new Float64Array(n);

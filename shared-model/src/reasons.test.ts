@@ -176,6 +176,26 @@ describe("conditionalReasons", () => {
     expect(reason.expected.high).toBeLessThan(1240);
   });
 
+  it("clips the expected range to the raw values seen in training, so a count is never expected below zero", () => {
+    // Invented: payments in the last 24 h (log1p) against hours since the previous one (log1p);
+    // a long gap since the previous payment predicts so few payments that the Gaussian range,
+    // mapped back with expm1, would dip below 0.
+    const observed = { min: 0, max: 40 };
+    const features: FittedFeature[] = [{ ...fitted("payments_24h", "log1p"), observed }, fitted("hours_since_previous", "log1p")];
+    const mean = [0.2, 4.0];
+    const cov = [0.25, -0.4, -0.4, 2.0];
+    const seg = segmentOf(mean, cov);
+    const raw = [0, 2000];
+    const x = Float64Array.of(Math.log1p(0), Math.log1p(2000));
+    const clipped = conditionalReasons(seg, features, raw, x, 2).find((r) => r.feature === "payments_24h")!;
+    const unclipped = conditionalReasons(seg, [fitted("payments_24h", "log1p"), features[1]], raw, x, 2).find((r) => r.feature === "payments_24h")!;
+    expect(unclipped.expected.low).toBeLessThan(0);
+    expect(clipped.expected.low).toBe(0);
+    expect(clipped.expected.high).toBe(Math.min(unclipped.expected.high, observed.max));
+    expect(clipped.expected.center).toBe(Math.min(Math.max(unclipped.expected.center, 0), 40));
+    expect(clipped.standardizedResidual).toBe(unclipped.standardizedResidual);
+  });
+
   it("uses the 2×2 conditional block for a cyclic hour, with the hour of the conditional mean as centre", () => {
     // amount (log) and hour of day (sin, cos): late-night payments tend to be larger.
     const features = [fitted("amount", "log"), fitted("hour", "cyclic-hour")];

@@ -117,8 +117,10 @@ function wrapHour(h: number): number {
  * central 95 % range E ± z₀.₉₇₅·sd mapped back to raw units with the feature's inverse
  * transform (monotone, so the interval's ends map to the ends). A cyclic-hour feature uses its
  * 2×2 conditional block: the residual is √(conditional d²) and the range comes from
- * {@link cyclicHourRange}. Under an unbounded-range transform's inverse, an end beyond the
- * transform's image comes back as ±Infinity.
+ * {@link cyclicHourRange}. Single-column ranges are clipped to the raw values seen in training
+ * (`observed`, when the artifact has it): the Gaussian lives in transformed units and can reach
+ * past what the data can be (a count below 0, or beyond a Yeo–Johnson asymptote, which would
+ * otherwise come back as ±Infinity).
  * @param raw raw values in feature order (reported as `actual`)
  * @param x the same payment in model columns (from transformInto)
  * @param top how many reasons to return (non-negative integer; default 3)
@@ -126,6 +128,13 @@ function wrapHour(h: number): number {
  * @example conditionalReasons(seg, features, [1240, 2], x)[0]
  *   // { feature: "amount", actual: 1240, expected: { center: 96, low: 60, high: 140 }, standardizedResidual: 6.2 }
  */
+/** Clamps a raw value into the feature's training range; the identity when none is stored. */
+function observedClip(f: FittedFeature): (value: number) => number {
+  const range = f.observed;
+  if (range === undefined) return (value) => value;
+  return (value) => (value < range.min ? range.min : value > range.max ? range.max : value);
+}
+
 export function conditionalReasons(
   seg: SegmentModel,
   features: readonly FittedFeature[],
@@ -158,13 +167,14 @@ export function conditionalReasons(
       c += 2;
     } else {
       const { mean, sd } = conditionalColumn(seg, x, c);
+      const clip = observedClip(f);
       reasons.push({
         feature: f.name,
         actual: raw[i],
         expected: {
-          center: inverseTransform(f, mean),
-          low: inverseTransform(f, mean - Z_95 * sd),
-          high: inverseTransform(f, mean + Z_95 * sd),
+          center: clip(inverseTransform(f, mean)),
+          low: clip(inverseTransform(f, mean - Z_95 * sd)),
+          high: clip(inverseTransform(f, mean + Z_95 * sd)),
         },
         standardizedResidual: (x[c] - mean) / sd,
       });

@@ -21,6 +21,11 @@ export interface FittedFeature extends FeatureDeclaration {
   /** Yeo–Johnson λ fitted by maximum likelihood (only for `yeo-johnson`). */
   lambda?: number;
   /**
+   * Smallest and largest raw value seen in training. Explanations clip expected ranges to it, so
+   * a count is never "expected −0.2" and an asymptote of the inverse transform never shows as ∞.
+   */
+  observed?: { min: number; max: number };
+  /**
    * Names of the model columns this feature produces, in order: `[name]` for every transform but
    * `cyclic-hour`, which produces `[name + ".sin", name + ".cos"]`.
    */
