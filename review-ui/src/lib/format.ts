@@ -80,9 +80,20 @@ export function formatAge(iso: string, now: number = Date.now()): string {
  */
 export function describeReason(reason: Reason): string {
   const { low, high } = reason.expected;
-  // "60–140" for a plain range; "−1 to −0.99" once a minus sign would sit next to the dash.
-  const range = low < 0 || high < 0 ? `${formatValue(low)} to ${formatValue(high)}` : `${formatValue(low)}–${formatValue(high)}`;
-  return `${reason.feature} ${formatValue(reason.actual)} — expected ${range} given the other features`;
+  return `${reason.feature} ${formatValue(reason.actual)} — expected ${describeRange(low, high)} given the other features`;
+}
+
+/**
+ * "60–140"; "−1 to −0.99" once a minus sign would sit next to the dash; "up to 140" or "60 or
+ * more" when an end is unbounded (sent as null by models fitted before ranges were clipped to
+ * the training data: the inverse of a Yeo–Johnson transform can run to infinity).
+ */
+function describeRange(low: number | null, high: number | null): string {
+  const bounded = (v: number | null): v is number => v !== null && Number.isFinite(v);
+  if (!bounded(low) && !bounded(high)) return "any value";
+  if (!bounded(low)) return `up to ${formatValue(high as number)}`;
+  if (!bounded(high)) return `${formatValue(low)} or more`;
+  return low < 0 || high < 0 ? `${formatValue(low)} to ${formatValue(high)}` : `${formatValue(low)}–${formatValue(high)}`;
 }
 
 /** "higher" or "lower" than expected, for screen-reader friendly captions. */
