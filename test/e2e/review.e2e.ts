@@ -9,8 +9,21 @@ import { mkdir, rm } from "node:fs/promises";
 import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import type { Browser, Page } from "playwright-core";
-import { seedDemoQueue } from "./demo-queue";
+import { fitModel } from "../../shared-model/src";
+import { generateLedger, type LedgerRow } from "../../demo-ledger/generate";
+import { DEMO_FEATURES, seedDemoQueue } from "./demo-queue";
 import { launchChromium, repoRoot, startStack, type Stack } from "./stack";
+
+/**
+ * Every string the review store keeps, each with SQL metacharacters and markup that would run
+ * (ids, account and segment are printable ASCII without spaces by the API's rules; `/` separates).
+ */
+const HOSTILE = {
+  transactionId: `tx'";DROP/**/TABLE/**/review_items;--<script>alert("tx")</script>`,
+  accountRef: `acct'OR'1'='1";<img/src=x/onerror=alert('acct')>`,
+  segment: `web<svg/onload=alert('seg')>'--`,
+  note: `'); DELETE FROM review_events; -- <iframe src="javascript:alert('note')"></iframe><b onclick="alert(1)">x</b>`,
+};
 
 const HOSTILE_NOTE = `Customer called back. <script>window.__injected = "script"</script><img src="x" onerror="window.__injected = 'img'"> ok`;
 
@@ -197,5 +210,55 @@ describe("the review app in Chromium", () => {
     );
     expect(unnamed).toBe(0);
     await page.setViewportSize({ width: 1280, height: 800 });
+  });
+
+  // Last in the file: it activates a model of its own.
+  it("stores SQL metacharacters and markup in every string verbatim and renders them inert", async () => {
+    // A model whose "web" segment carries a hostile name, so the stored segment is hostile too.
+    const rows = [...generateLedger({ rows: 6_000 })].filter((r) => r.label === "legitimate");
+    const { artifact } = await fitModel(
+      { async *pass() { yield* rows.map((r) => ({ values: Float64Array.from(DEMO_FEATURES.map((f) => r[f.name as keyof LedgerRow] as number)), segment: r.channel === "web" ? HOSTILE.segment : r.channel })); } },
+      { features: DEMO_FEATURES, shape: "auto", estimator: "classical", segmentBy: "channel", cutoffRate: 0.01, seed: 3, source: "e2e injection (invented)" },
+    );
+    expect((await api(`/v1/models`, stack.tokens.admin, artifact)).status).toBe(201);
+    expect((await api(`/v1/models/${artifact.version}/activate`, stack.tokens.admin, {})).status).toBe(200);
+    const features: Record<string, number> = {};
+    for (const f of DEMO_FEATURES) features[f.name] = rows[0][f.name as keyof LedgerRow] as number;
+    features.amount *= 80;
+    features.shipDistanceKm = 9_000;
+    const scored = await api<{ decision: string; segment: string }>("/v1/score", stack.tokens.flow, { transactionId: HOSTILE.transactionId, features, segment: HOSTILE.segment, accountRef: HOSTILE.accountRef });
+    expect(scored.status).toBe(200);
+    expect(scored.body).toMatchObject({ decision: "review", segment: HOSTILE.segment });
+
+    let id = 0;
+    await until(async () => {
+      const page1 = await api<{ items: { id: number; transactionId: string }[] }>(`/v1/review/items?segment=${encodeURIComponent(HOSTILE.segment)}`, stack.tokens.analyst);
+      id = page1.body.items.find((i) => i.transactionId === HOSTILE.transactionId)?.id ?? 0;
+      return id > 0;
+    }, "the hostile flag in the queue", 15_000);
+    expect((await api(`/v1/review/items/${id}/claim`, stack.tokens.analyst, {})).status).toBe(200);
+    expect((await api(`/v1/review/items/${id}/decision`, stack.tokens.analyst, { outcome: "fraud", note: HOSTILE.note })).status).toBe(200);
+    // Read back through the API: every string exactly as sent, and the audit table still there.
+    const detail = await api<{ item: { transactionId: string; segment: string; accountRef: string; decision: { note: string } }; events: { note: string | null }[] }>(`/v1/review/items/${id}`, stack.tokens.analyst);
+    expect(detail.body.item).toMatchObject({ transactionId: HOSTILE.transactionId, segment: HOSTILE.segment, accountRef: HOSTILE.accountRef, decision: { note: HOSTILE.note } });
+    expect(detail.body.events.map((e) => e.note)).toContain(HOSTILE.note);
+
+    // In the browser: the payment view shows them as text; no dialog, no injected element, no script ran.
+    let dialogs = 0;
+    page.on("dialog", (dialog) => {
+      dialogs++;
+      void dialog.dismiss();
+    });
+    await page.goto(`${stack.base}/#/item/${id}`);
+    await page.getByTestId("decision-note").waitFor();
+    expect(await page.getByTestId("decision-note").innerText()).toBe(HOSTILE.note);
+    const shown = await page.evaluate(() => document.body.innerText);
+    for (const value of [HOSTILE.transactionId, HOSTILE.accountRef, HOSTILE.segment]) expect(shown).toContain(value);
+    const injected = await page.evaluate(
+      () => document.querySelectorAll("script:not([src]), img[src='x'], svg[onload], iframe, [onerror], [onload], [onclick]").length,
+    );
+    expect(injected).toBe(0);
+    expect(await page.evaluate(() => (window as unknown as { __injected?: string }).__injected)).toBeUndefined();
+    expect(dialogs).toBe(0);
   });
 });

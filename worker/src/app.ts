@@ -9,6 +9,7 @@ import { noStore, securityHeaders } from "./middleware/headers";
 import { problemResponse } from "./problems";
 import { echoRoutes } from "./routes/echo";
 import { healthRoutes } from "./routes/health";
+import { insightRoutes } from "./routes/insights";
 import { modelRoutes } from "./routes/models";
 import { openApiRoutes } from "./routes/openapi";
 import { reviewRoutes } from "./routes/review";
@@ -25,6 +26,7 @@ app.route("/v1", scoreRoutes);
 app.route("/v1", echoRoutes);
 app.route("/v1", modelRoutes);
 app.route("/v1/review", reviewRoutes);
+app.route("/v1/insights", insightRoutes);
 app.route("/", openApiRoutes);
 
 app.notFound((c) =>

@@ -11,7 +11,7 @@ import type { HandoffMessage } from "./storage/messages";
 export interface Env {
   /** Model artifacts under `model:<version>` (immutable) and the pointer under `pointer:active`. */
   MODELS: KVNamespace;
-  /** Review store (tables `review_items`, `shadow_scores`, `model_events`). */
+  /** Review store (tables `review_items`, `shadow_scores`, `model_events`, and the loop's counts and reports). */
   DB: D1Database;
   /** Producer of the hand-off queue `isodense-flags`. */
   FLAGS: Queue<HandoffMessage>;
@@ -21,6 +21,12 @@ export interface Env {
   MODEL_REFRESH_SECONDS: string;
   /** Most payments in one batch call, e.g. "100". */
   MAX_BATCH: string;
+  /** Flush an isolate's traffic counts after this many payments, e.g. "500" (default 500). */
+  DRIFT_FLUSH_PAYMENTS?: string;
+  /** …or after this many seconds, e.g. "30" (default 30). */
+  DRIFT_FLUSH_SECONDS?: string;
+  /** A live model older than this many days is marked due for refit by the weekly report (default 28). */
+  REFIT_AFTER_DAYS?: string;
   /** Secret: comma-separated `user:token` entries for the payment flow (score only). */
   FLOW_CREDENTIALS?: string;
   /** Secret: comma-separated `user:token` entries for fraud analysts (review, next issue). */

@@ -1,6 +1,8 @@
-// Worker entry point: wiring only (HTTP → Hono app, queue batches → review-store writer).
+// Worker entry point: wiring only (HTTP → Hono app, queue batches → review-store writer, cron →
+// weekly drift and label-count report).
 import { app } from "./app";
 import type { Env } from "./env";
+import { runWeeklyReport } from "./insights/weekly-report";
 import { handleHandoffBatch } from "./storage/queue-consumer";
 
 export type { Env } from "./env";
@@ -10,4 +12,7 @@ export type { ScoreAnswer } from "./routes/schemas";
 export default {
   fetch: app.fetch,
   queue: handleHandoffBatch,
+  scheduled(controller, env, ctx) {
+    ctx.waitUntil(runWeeklyReport(env, controller.cron, new Date(controller.scheduledTime)));
+  },
 } satisfies ExportedHandler<Env, unknown>;

@@ -1,7 +1,8 @@
 /**
- * Access control on the real worker: every route against every kind of caller (no token, unknown
- * token, payment flow, analyst, admin), the security headers on every answer, JSON 404s, and
- * configuration errors that name the secret or variable without revealing its value.
+ * Access control on the real worker: malformed Authorization headers, per-user identities, JSON 404s
+ * with the security headers, the OpenAPI security declarations, and configuration errors that name
+ * the secret or variable without revealing its value. The role × route matrix (every route against
+ * every kind of caller) is in access-matrix.test.ts.
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { publishModel, startWorker, type RunningWorker } from "./harness";
@@ -19,14 +20,12 @@ afterAll(async () => {
   await worker?.dispose();
 });
 
-type Caller = "anonymous" | "unknown" | "flow" | "analyst" | "admin";
-
 interface Route {
   method: string;
   path: string;
   body?: unknown;
   /** Roles allowed; "public" when no credential is needed. */
-  allowed: Caller[] | "public";
+  allowed: ("flow" | "analyst" | "admin")[] | "public";
 }
 
 const SCORE_BODY = { transactionId: "acc-1", features: UNUSUAL_PAYMENT };
@@ -45,26 +44,6 @@ const ROUTES: Route[] = [
   { method: "PUT", path: "/v1/models/shadow", body: { version: null }, allowed: ["admin"] },
 ];
 
-function tokenOf(caller: Caller): string | null {
-  switch (caller) {
-    case "anonymous":
-      return null;
-    case "unknown":
-      return "test-unknown-0123456789abcdef0123456789abcdef";
-    default:
-      return worker.tokens[caller];
-  }
-}
-
-async function call(route: Route, caller: Caller): Promise<Response> {
-  return worker.fetch(route.path, {
-    method: route.method,
-    headers: route.body === undefined ? {} : { "content-type": "application/json" },
-    body: route.body === undefined ? undefined : JSON.stringify(route.body),
-    token: tokenOf(caller),
-  });
-}
-
 function expectSecurityHeaders(response: Response, what: string): void {
   expect(response.headers.get("cache-control"), what).toBe("no-store");
   expect(response.headers.get("x-content-type-options"), what).toBe("nosniff");
@@ -74,34 +53,8 @@ function expectSecurityHeaders(response: Response, what: string): void {
   expect(response.headers.get("content-type"), what).toMatch(/^application\/json/);
 }
 
-describe("every route against every caller", () => {
-  for (const route of ROUTES) {
-    test(`${route.method} ${route.path} lets through exactly ${route.allowed === "public" ? "everyone" : route.allowed.join(" and ")}`, async () => {
-      for (const caller of ["anonymous", "unknown", "flow", "analyst", "admin"] as Caller[]) {
-        const response = await call(route, caller);
-        const what = `${route.method} ${route.path} as ${caller}`;
-        expectSecurityHeaders(response, what);
-        const body = (await response.json()) as { error?: string; problems?: { field: string; rule: string }[] };
-        if (route.allowed === "public") {
-          expect([200, 503], what).toContain(response.status);
-          continue;
-        }
-        if (caller === "anonymous" || caller === "unknown") {
-          expect(response.status, what).toBe(401);
-          expect(body.error).toBe("unauthorized");
-          expect(body.problems?.[0].field).toBe("authorization");
-          expect(response.headers.get("www-authenticate"), what).toMatch(/^Bearer realm="isodense"/);
-        } else if (route.allowed.includes(caller)) {
-          expect([401, 403], `${what} answered ${response.status}`).not.toContain(response.status);
-        } else {
-          expect(response.status, what).toBe(403);
-          expect(body.error).toBe("forbidden");
-          expect(body.problems?.[0].rule).toContain(`role ${caller} may not call ${route.method}`);
-        }
-      }
-    });
-  }
-
+// Every route against every caller is in access-matrix.test.ts, which reads the route list from the app.
+describe("authorization header and identities", () => {
   test("a malformed Authorization header is a 401 naming the expected form", async () => {
     for (const header of ["Basic dXNlcjpwYXNz", `Bearer ${worker.tokens.flow} extra`, "Bearer", worker.tokens.flow]) {
       const response = await worker.fetch("/v1/score", {

@@ -17,6 +17,7 @@ import type {
   StateCounts,
   WhoAmI,
 } from "../../../worker/src/review/contract";
+import type { HistogramData, ModelPageData, ModelPointer, OperatingData, PublishedCutoff, ShadowData } from "../../../worker/src/insights/contract";
 
 /** A failed call, already worded for the person at the keyboard. */
 export class ApiError extends Error {
@@ -143,3 +144,12 @@ export const decideItem = (id: number, outcome: Outcome, note?: string): Promise
 export const undoDecision = (id: number): Promise<ActionResult> => send("POST", `/v1/review/items/${id}/undo`, {});
 export const daySummary = (): Promise<DaySummary> => send("GET", "/v1/review/summary");
 export const facets = (): Promise<Facets> => send("GET", "/v1/review/facets");
+
+// The model page (`/v1/insights`, worker/src/routes/insights.ts); rollback is the models route.
+export const modelPage = (): Promise<ModelPageData> => send("GET", "/v1/insights/model");
+export const operatingTable = (version: string): Promise<OperatingData> => send("GET", "/v1/insights/operating", undefined, { version });
+export const shadowComparison = (): Promise<ShadowData> => send("GET", "/v1/insights/shadow");
+export const scoreHistogram = (): Promise<HistogramData> => send("GET", "/v1/insights/histogram");
+export const publishCutoff = (body: { fromVersion: string; cutoffMahalanobisSq: number; flagRate: number | null; reason: string; confirm: "publish" }): Promise<PublishedCutoff> =>
+  send("POST", "/v1/insights/publish-cutoff", body);
+export const rollbackModel = (): Promise<{ pointer: ModelPointer; changed: boolean }> => send("POST", "/v1/models/rollback", {});

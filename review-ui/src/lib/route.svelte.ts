@@ -1,10 +1,11 @@
 /**
- * Hash routing for two screens: `#/` the queue and `#/item/<id>` one payment. Hash routes keep the
+ * Hash routing for three screens: `#/` the queue, `#/item/<id>` one payment and `#/model` the model page. Hash routes keep the
  * worker's asset router out of the way and survive a reload.
  */
-export type View = { name: "queue" } | { name: "item"; id: number };
+export type View = { name: "queue" } | { name: "item"; id: number } | { name: "model" };
 
 function parse(hash: string): View {
+  if (hash === "#/model") return { name: "model" };
   const match = /^#\/item\/(\d{1,15})$/.exec(hash);
   return match ? { name: "item", id: Number(match[1]) } : { name: "queue" };
 }

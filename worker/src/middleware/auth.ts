@@ -5,6 +5,7 @@
 import type { MiddlewareHandler } from "hono";
 import type { AppEnv } from "../app-env";
 import { problemResponse } from "../problems";
+import { clientKey, credentialFailures } from "./credential-limiter";
 import { credentialTable, type Role } from "./credentials";
 
 const CHALLENGE = { "www-authenticate": 'Bearer realm="isodense"' };
@@ -22,8 +23,21 @@ export function authenticate(): MiddlewareHandler<AppEnv> {
     if (header === undefined) {
       return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "is required: expected 'Bearer <token>'" }], { headers: CHALLENGE });
     }
+    // Too many wrong credentials from this client lately: refuse before looking at this one.
+    const client = clientKey(c.req.raw.headers);
+    const verdict = credentialFailures.check(client, Date.now());
+    if (verdict.limited) {
+      return problemResponse(
+        c,
+        429,
+        "too-many-credential-failures",
+        [{ field: "authorization", rule: `${verdict.failures} wrong credentials from this client in the last 60 s; retry after ${verdict.retryAfterSeconds} s` }],
+        { headers: { "retry-after": String(verdict.retryAfterSeconds) } },
+      );
+    }
     const match = /^Bearer[ ]+([^\s]+)\s*$/i.exec(header);
     if (!match) {
+      credentialFailures.recordFailure(client, Date.now());
       return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "must be 'Bearer <token>' (one token, Bearer scheme)" }], {
         headers: CHALLENGE,
       });
@@ -31,6 +45,7 @@ export function authenticate(): MiddlewareHandler<AppEnv> {
     const table = await credentialTable(c.env);
     const principal = await table.identify(match[1]);
     if (principal === null) {
+      credentialFailures.recordFailure(client, Date.now());
       return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "the bearer token is not a known credential" }], {
         headers: { "www-authenticate": 'Bearer realm="isodense", error="invalid_token"' },
       });

@@ -18,6 +18,8 @@ import {
   scoreRequestSchema,
   shadowRequestSchema,
 } from "./schemas";
+import { countsQuerySchema, decisionBodySchema, exportQuerySchema, listQuerySchema } from "../review/schemas";
+import { modelQuerySchema, operatingQuerySchema, publishCutoffSchema, shadowQuerySchema, windowQuerySchema } from "../insights/schemas";
 
 type Schema = z.ZodType;
 
@@ -32,6 +34,8 @@ const components: Record<string, Schema> = {
   ModelArtifact: modelArtifactSchema,
   Pointer: pointerAnswerSchema,
   ShadowRequest: shadowRequestSchema,
+  DecisionRequest: decisionBodySchema,
+  PublishCutoffRequest: publishCutoffSchema,
 };
 
 const ref = (name: string) => ({ $ref: `#/components/schemas/${name}` });
@@ -50,6 +54,24 @@ const BODY_ERRORS = {
   "413": error("Body larger than the route's limit."),
   "415": error("Content type is not application/json."),
 };
+
+/** Query parameters of a GET route, one per key of its (strict object) zod schema. */
+function queryParameters(schema: z.ZodObject): Record<string, unknown>[] {
+  const properties = (z.toJSONSchema(schema, { unrepresentable: "any" }) as { properties?: Record<string, unknown> }).properties ?? {};
+  return Object.entries(properties).map(([name, property]) => ({ name, in: "query", required: false, schema: property }));
+}
+
+const itemParameter = { name: "id", in: "path", required: true, schema: { type: "string", pattern: "^[1-9][0-9]{0,15}$" } };
+const READ_ONLY = (summary: string, description: string, parameters: Record<string, unknown>[] = []) => ({
+  get: operation(summary, { description, parameters, responses: { "200": { description: "JSON answer.", ...ANY_OBJECT }, "400": error("A query parameter breaks its rule."), ...AUTH_ERRORS } }),
+});
+const ITEM_ACTION = (summary: string, description: string) => ({
+  post: operation(summary, {
+    description,
+    parameters: [itemParameter],
+    responses: { "200": { description: "The item after the change.", ...ANY_OBJECT }, ...AUTH_ERRORS, "404": error("No such item."), "409": error("Someone else holds the item, or its state does not allow the change.") },
+  }),
+});
 
 const versionParameter = { name: "version", in: "path", required: true, schema: { type: "string", maxLength: 200 } };
 
@@ -173,6 +195,47 @@ export function openApiDocument() {
             "409": error("No live model, or the shadow equals the live version."),
             "422": error("The stored artifact does not verify."),
           },
+        }),
+      },
+      "/v1/review/me": READ_ONLY("Who is signed in", "Roles analyst, admin."),
+      "/v1/review/items": READ_ONLY("List review items", "Roles analyst, admin. Filters, sort and keyset paging with an opaque cursor.", queryParameters(listQuerySchema)),
+      "/v1/review/counts": READ_ONLY("Counts per state under the filters", "Roles analyst, admin.", queryParameters(countsQuerySchema)),
+      "/v1/review/facets": READ_ONLY("Values the filters can take", "Roles analyst, admin."),
+      "/v1/review/summary": READ_ONLY("Today's figures against the daily capacity", "Roles analyst, admin."),
+      "/v1/review/items/{id}": {
+        get: operation("One item with its evidence", {
+          description: "Roles analyst, admin. Reasons, the pair plot's marginal Gaussian, the account's recent flags and the audit trail.",
+          parameters: [itemParameter],
+          responses: { "200": { description: "The item and its evidence.", ...ANY_OBJECT }, ...AUTH_ERRORS, "404": error("No such item.") },
+        }),
+      },
+      "/v1/review/items/{id}/claim": ITEM_ACTION("Take an item", "Roles analyst, admin. A claim lasts 15 minutes; the loser of a race gets 409 naming the holder."),
+      "/v1/review/items/{id}/release": ITEM_ACTION("Give a claimed item back", "Roles analyst, admin. Only the holder may release."),
+      "/v1/review/items/{id}/undo": ITEM_ACTION("Undo your last decision", "Roles analyst, admin. Within 5 minutes; audited."),
+      "/v1/review/items/{id}/decision": {
+        post: operation("Confirm as fraud or dismiss as legitimate", {
+          description: "Roles analyst, admin. Needs your live claim; every change is appended to the audit trail.",
+          parameters: [itemParameter],
+          requestBody: { required: true, ...json("DecisionRequest") },
+          responses: { "200": { description: "The item after the decision.", ...ANY_OBJECT }, ...BODY_ERRORS, ...AUTH_ERRORS, "404": error("No such item."), "409": error("No live claim of yours on the item.") },
+        }),
+      },
+      "/v1/review/export": {
+        get: operation("Export the labelled set", {
+          description: "Roles analyst, admin. CSV (readable by `isodense tune` / `refit` as is) or NDJSON; weight = 1/inclusion probability.",
+          parameters: queryParameters(exportQuerySchema),
+          responses: { "200": { description: "text/csv or application/x-ndjson." }, "400": error("A query parameter breaks its rule."), ...AUTH_ERRORS },
+        }),
+      },
+      "/v1/insights/model": READ_ONLY("The model page: live and shadow versions, reports, drift, daily flag rates", "Roles analyst, admin.", queryParameters(modelQuerySchema)),
+      "/v1/insights/operating": READ_ONLY("Labelled operating table and estimates for a model", "Roles analyst, admin.", queryParameters(operatingQuerySchema)),
+      "/v1/insights/shadow": READ_ONLY("Live against shadow on traffic so far", "Roles analyst, admin.", queryParameters(shadowQuerySchema)),
+      "/v1/insights/histogram": READ_ONLY("Score histogram of recent traffic", "Roles analyst, admin.", queryParameters(windowQuerySchema)),
+      "/v1/insights/publish-cutoff": {
+        post: operation("Publish a new cutoff as a new version and make it live", {
+          description: "Role admin. Same parameters, new cutoff; audited with who and why; needs `confirm: \"publish\"`.",
+          requestBody: { required: true, ...json("PublishCutoffRequest") },
+          responses: { "201": { description: "The new version and pointer.", ...ANY_OBJECT }, ...BODY_ERRORS, ...AUTH_ERRORS, "404": error("The version is not stored."), "409": error("No live model, or the live version changed since the page was loaded."), "422": error("The stored artifact does not verify.") },
         }),
       },
       "/openapi.json": {

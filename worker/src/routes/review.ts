@@ -16,11 +16,11 @@
  * Every refusal is `{ error, problems: [{ field, rule }] }`; a 409 on a held item adds `claim`.
  */
 import { Hono, type Context } from "hono";
-import type { z } from "zod";
 import type { AppEnv } from "../app-env";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
+import { parseQuery } from "./query";
 import { claimItem, decideItem, releaseItem, undoDecision, type Actor, type ActionResult as StoreResult } from "../review/actions";
 import type { ActionResult, ItemDetail, QueuePage, SortDirection, SortKey, WhoAmI } from "../review/contract";
 import { decodeCursor } from "../review/cursor";
@@ -173,7 +173,18 @@ async function act(c: ReviewContext, run: (env: AppEnv["Bindings"], id: number, 
   if (id instanceof Response) return id;
   const { user, role } = c.get("principal");
   const actor: Actor = { user, role, nowMs: Date.now() };
-  const result = await run(c.env, id, actor);
+  let result: StoreResult;
+  try {
+    result = await run(c.env, id, actor);
+  } catch (error) {
+    // The state change and its audit row are one D1 batch (one transaction): when D1 fails,
+    // neither was written, so the analyst may simply try again.
+    console.error(JSON.stringify({ event: "review-store-unavailable", path: new URL(c.req.url).pathname, error: String(error) }));
+    return problemResponse(c, 503, "review-store-unavailable", [{ field: "id", rule: `item ${id} was not changed: the review store could not be written; nothing was recorded, try again` }], {
+      retryable: true,
+      headers: { "retry-after": "2" },
+    });
+  }
   if (!result.ok) {
     const body: Record<string, unknown> = { error: result.error, problems: result.problems };
     if (result.claim) body.claim = result.claim;
@@ -199,18 +210,6 @@ function itemId(c: ReviewContext): number | Response {
   return id;
 }
 
-/** Validates the query string: each parameter at most once, only known names, each by its rule. */
-function parseQuery<S extends z.ZodType>(c: ReviewContext, schema: S, keys: readonly string[]): z.infer<S> | Response {
-  const all = c.req.queries();
-  const single: Record<string, string> = {};
-  for (const [name, values] of Object.entries(all)) {
-    if (values.length > 1) return problemResponse(c, 400, "invalid-query", [{ field: name, rule: `must be given once. Actual: ${values.length} times` }]);
-    single[name] = values[0];
-  }
-  const parsed = schema.safeParse(single);
-  if (!parsed.success) return problemResponse(c, 400, "invalid-query", problemsFromZod(parsed.error, single, "", keys));
-  return parsed.data;
-}
 
 /** `from` and `to` as a half-open ms range, refusing a range that ends before it starts. */
 function checkedRange(c: ReviewContext, from: string | undefined, to: string | undefined): { fromMs?: number; toMs?: number } | Response {

@@ -9,6 +9,7 @@
 import { Hono, type Context } from "hono";
 import type { AppEnv } from "../app-env";
 import { readSettings, type Problem, type Settings } from "../env";
+import { countScored } from "../insights/count-scored";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
@@ -40,7 +41,8 @@ scoreRoutes.post("/score", authenticate(), allow("flow"), jsonBody(BODY_LIMITS.s
     if (remembered.bodyHash === bodyHash) return c.json(remembered.answer);
     return problemResponse(c, 409, "conflict", [conflictProblem("transactionId", payment.transactionId, snapshot.live.version)]);
   }
-  const scored = scorePayment(snapshot, payment, await auditPosition(payment.transactionId), settings.auditSampleRate, new Date().toISOString());
+  const scoredAt = new Date().toISOString();
+  const scored = scorePayment(snapshot, payment, await auditPosition(payment.transactionId), settings.auditSampleRate, scoredAt);
   if (!scored.ok) return problemResponse(c, 400, "invalid-request", scored.problems);
   const { answer, review, shadow } = scored.value;
   if (review) {
@@ -49,6 +51,7 @@ scoreRoutes.post("/score", authenticate(), allow("flow"), jsonBody(BODY_LIMITS.s
   }
   if (shadow) c.executionCtx.waitUntil(sendShadowComparisons(c.env.FLAGS, [shadow]));
   answers.set(key, { bodyHash, answer });
+  countScored(c.env, c.executionCtx, snapshot.live, [{ raw: payment.raw, answer, scoredAt }]);
   return c.json(answer);
 });
 
@@ -130,6 +133,8 @@ scoreRoutes.post("/score/batch", authenticate(), allow("flow"), jsonBody(BODY_LI
     if (entry.scored.shadow) shadows.push(entry.scored.shadow);
   }
   if (shadows.length > 0) c.executionCtx.waitUntil(sendShadowComparisons(c.env.FLAGS, shadows));
+  const fresh = valid.filter((e) => entries[e.index] === e && e.scored);
+  countScored(c.env, c.executionCtx, snapshot.live, fresh.map((e) => ({ raw: e.payment.raw, answer: e.scored!.answer, scoredAt })));
 
   const counts = { scored: 0, refused: 0, review: 0, auditSample: 0 };
   const results = entries.map((entry) => {

@@ -45,6 +45,9 @@ export class ModelLoadError extends Error {
   }
 }
 
+/** Longest a request waits for a pointer refresh started by another request (ms). */
+const SHARED_REFRESH_WAIT_MS = 2000;
+
 /**
  * Fetches, verifies and compiles one stored version.
  *
@@ -127,6 +130,7 @@ export class ModelCache {
   private pointer: ModelPointer | null = null;
   private checkedAt = Number.NEGATIVE_INFINITY;
   private refreshing: Promise<void> | null = null;
+  private refreshingSince = 0;
   private loadFailures = 0;
   private shadowLoadFailures = 0;
   private lastFailure: LoadFailure | null = null;
@@ -163,13 +167,24 @@ export class ModelCache {
     };
   }
 
-  private refresh(env: Pick<Env, "MODELS">, now: number): Promise<void> {
+  private async refresh(env: Pick<Env, "MODELS">, now: number): Promise<void> {
+    // A shared refresh older than the wait below is abandoned: see the comment further down.
+    if (this.refreshing && Date.now() - this.refreshingSince > SHARED_REFRESH_WAIT_MS) this.refreshing = null;
     if (!this.refreshing) {
-      this.refreshing = this.reload(env, now).finally(() => {
-        this.refreshing = null;
+      this.refreshingSince = Date.now();
+      const attempt: Promise<void> = this.reload(env, now).finally(() => {
+        if (this.refreshing === attempt) this.refreshing = null;
       });
+      this.refreshing = attempt;
+      return attempt;
     }
-    return this.refreshing;
+    // Another request's refresh. In workerd its KV I/O belongs to that request: if that request is
+    // cancelled (its client went away), the promise never settles, and every request awaiting it
+    // would hang until the runtime kills it (found by worker/test/fuzz-scoring.test.ts). So wait a
+    // bounded time, then go on with the cached model.
+    let timer: ReturnType<typeof setTimeout> | null = null;
+    await Promise.race([this.refreshing, new Promise<void>((resolve) => (timer = setTimeout(resolve, SHARED_REFRESH_WAIT_MS)))]);
+    if (timer !== null) clearTimeout(timer);
   }
 
   private async reload(env: Pick<Env, "MODELS">, now: number): Promise<void> {

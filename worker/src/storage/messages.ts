@@ -4,6 +4,7 @@
  * message from an older or newer deployment that does not fit is never half-written.
  */
 import { z } from "zod";
+import { countsMessageSchema, type CountsMessage } from "../insights/counts-message";
 
 const finite = z.number().refine(Number.isFinite, "must be finite");
 
@@ -50,15 +51,16 @@ export const shadowMessageSchema = z.object({
   scoredAt: z.string().min(1),
 });
 
-/** Any message on the hand-off queue. */
-export const handoffMessageSchema = z.discriminatedUnion("kind", [reviewMessageSchema, shadowMessageSchema]);
+/** Any message on the hand-off queue (traffic counts: `insights/counts-message.ts`). */
+export const handoffMessageSchema = z.discriminatedUnion("kind", [reviewMessageSchema, shadowMessageSchema, countsMessageSchema]);
 
 /** A review-store item in flight. */
 export type ReviewMessage = z.infer<typeof reviewMessageSchema>;
 /** A shadow comparison in flight. */
 export type ShadowMessage = z.infer<typeof shadowMessageSchema>;
 /** Body of a message on `isodense-flags` (and, after five failed deliveries, `isodense-flags-dead`). */
-export type HandoffMessage = ReviewMessage | ShadowMessage;
+export type HandoffMessage = ReviewMessage | ShadowMessage | CountsMessage;
+export type { CountsMessage };
 
 /** Production caps one queue message at 128 KB and one `sendBatch` at 256 KB and 100 messages. */
 export const QUEUE_LIMITS = { messageBytes: 128_000, batchBytes: 256_000, batchMessages: 100 } as const;

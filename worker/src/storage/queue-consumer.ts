@@ -1,6 +1,6 @@
 /**
  * Consumer of the hand-off queue: writes flagged and audit-sampled payments (and shadow
- * comparisons) to D1, idempotently, and never throws.
+ * comparisons, and aggregated traffic counts) to D1, idempotently, and never throws.
  *
  * Why never throw: if `queue()` throws, the runtime retries the whole batch, including messages
  * already acknowledged (the local simulator does exactly that). So every message is settled
@@ -19,6 +19,7 @@
  */
 import type { Env } from "../env";
 import { handoffMessageSchema, type HandoffMessage } from "./messages";
+import { countsStatements } from "../insights/counts-store";
 import { reviewItemInsert, shadowScoreInsert } from "./review-store";
 
 /** Queues whose name ends with this suffix are dead-letter queues. */
@@ -62,7 +63,7 @@ export async function handleHandoffBatch(batch: MessageBatch<unknown>, env: Env)
 /** A message whose body validated, with its prepared insert. */
 interface Writable {
   message: Message<unknown>;
-  statement: D1PreparedStatement;
+  statements: D1PreparedStatement[];
 }
 
 /** Main queue: one transaction for the whole batch; all-or-nothing, then ack or retry each. */
@@ -70,15 +71,15 @@ async function writeAsOneBatch(batch: MessageBatch<unknown>, env: Env): Promise<
   const receivedAt = new Date().toISOString();
   const writable: Writable[] = [];
   for (const message of batch.messages) {
-    const statement = prepare(message, env, receivedAt);
-    if (statement) writable.push({ message, statement });
+    const statements = prepare(message, env, receivedAt);
+    if (statements) writable.push({ message, statements });
     // A body that does not validate can never be written; retrying sends it on to the
     // dead-letter queue, where it is logged in full instead of vanishing here.
     else settle(() => message.retry());
   }
   if (writable.length === 0) return;
   try {
-    await env.DB.batch(writable.map((w) => w.statement));
+    await env.DB.batch(writable.flatMap((w) => w.statements));
   } catch (error) {
     logEvent("review-store-write-failed", { queue: batch.queue, messages: writable.length, error: describeError(error) });
     for (const w of writable) settle(() => w.message.retry());
@@ -91,15 +92,15 @@ async function writeAsOneBatch(batch: MessageBatch<unknown>, env: Env): Promise<
 async function writeOneByOne(batch: MessageBatch<unknown>, env: Env): Promise<void> {
   const receivedAt = new Date().toISOString();
   for (const message of batch.messages) {
-    const statement = prepare(message, env, receivedAt);
-    if (!statement) {
+    const statements = prepare(message, env, receivedAt);
+    if (!statements) {
       // Nothing can ever write it: keep the whole body in the logs and stop redelivering.
       logEvent("handoff-message-unwritable", { queue: batch.queue, id: message.id, body: message.body });
       settle(() => message.ack());
       continue;
     }
     try {
-      await env.DB.batch([statement]);
+      await env.DB.batch(statements);
       settle(() => message.ack());
     } catch (error) {
       const finalAttempt = message.attempts >= DEAD_LETTER_MAX_RETRIES + 1;
@@ -115,8 +116,8 @@ async function writeOneByOne(batch: MessageBatch<unknown>, env: Env): Promise<vo
   }
 }
 
-/** Validates a body and prepares its insert; null when the body is not a hand-off message. */
-function prepare(message: Message<unknown>, env: Env, receivedAt: string): D1PreparedStatement | null {
+/** Validates a body and prepares its statements; null when the body is not a hand-off message. */
+function prepare(message: Message<unknown>, env: Env, receivedAt: string): D1PreparedStatement[] | null {
   const parsed = handoffMessageSchema.safeParse(message.body);
   if (!parsed.success) {
     logEvent("handoff-message-invalid", {
@@ -133,8 +134,9 @@ function prepare(message: Message<unknown>, env: Env, receivedAt: string): D1Pre
   }
 }
 
-function statementFor(env: Env, body: HandoffMessage, receivedAt: string): D1PreparedStatement {
-  return body.kind === "review" ? reviewItemInsert(env, body, receivedAt) : shadowScoreInsert(env, body);
+function statementFor(env: Env, body: HandoffMessage, receivedAt: string): D1PreparedStatement[] {
+  if (body.kind === "counts") return countsStatements(env, body, receivedAt);
+  return [body.kind === "review" ? reviewItemInsert(env, body, receivedAt) : shadowScoreInsert(env, body)];
 }
 
 /** `ack()`/`retry()` are not expected to throw; if one does, the handler must still not throw. */

@@ -1,0 +1,397 @@
+/**
+ * Soak: a bounded, long run of `POST /v1/score` against `wrangler dev` on 127.0.0.1, with review
+ * traffic (list, claim, decide) from a second process at the same time.
+ *
+ * - SOAK_REQUESTS scoring calls (default 200,000) at SOAK_CONNECTIONS (default 48) with autocannon's
+ *   `amount`, each with a fresh transactionId, so every call is scored and every flag handed off.
+ * - Zero errors required: any non-2xx, socket error or timeout fails the run (exit code 1).
+ * - Memory: resident set size of the workerd process that wrangler starts, read from
+ *   /proc/<pid>/status after a warm-up and again after the soak (after a short settle); the
+ *   difference must stay within 10 % of the warmed-up figure. Peak RSS is sampled once a second.
+ * - Review traffic: bench/soak-review.ts in its own Node process works the queue as an analyst for
+ *   as long as the soak runs; its counts and latencies are part of the summary.
+ *
+ * Writes bench/results/soak.json. Environment: SOAK_REQUESTS, SOAK_CONNECTIONS, PORT.
+ */
+import { spawn, type ChildProcess } from "node:child_process";
+import { once } from "node:events";
+import { cpSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from "node:fs";
+import { createRequire } from "node:module";
+import { createServer, type AddressInfo } from "node:net";
+import { cpus, tmpdir } from "node:os";
+import { dirname, join, resolve } from "node:path";
+import { fileURLToPath } from "node:url";
+import { randomBytes } from "node:crypto";
+import { publishCommand } from "../cli/commands/publish";
+import type { CommandIO } from "../cli/io";
+import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
+
+const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
+const TOTAL = Number(process.env.SOAK_REQUESTS ?? 200_000);
+const CONNECTIONS = Number(process.env.SOAK_CONNECTIONS ?? 48);
+const FEATURES = 16;
+const MEMORY_TOLERANCE = 0.1;
+const WARM_UP = Number(process.env.SOAK_WARM_UP ?? 20_000);
+
+interface AutocannonRequest {
+  method: string;
+  path: string;
+  headers: Record<string, string>;
+  body?: string;
+}
+interface AutocannonResult {
+  requests: { total: number };
+  duration: number;
+  non2xx: number;
+  errors: number;
+  timeouts: number;
+}
+interface AutocannonInstance extends Promise<AutocannonResult> {
+  on(event: "response", listener: (client: unknown, statusCode: number, bytes: number, responseTimeMs: number) => void): void;
+}
+type Autocannon = (options: {
+  url: string;
+  connections: number;
+  amount: number;
+  timeout: number;
+  requests: { method: string; path: string; headers: Record<string, string>; setupRequest: (req: AutocannonRequest) => AutocannonRequest }[];
+}) => AutocannonInstance;
+const autocannon = createRequire(import.meta.url)("autocannon") as Autocannon;
+
+// --- invented data: a correlated Gaussian in 16 dimensions -----------------------------------
+
+function seededNormal(seed: number): () => number {
+  let state = seed >>> 0;
+  const uniform = () => {
+    state = (state + 0x6d2b79f5) >>> 0;
+    let t = state;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
+}
+const names = Array.from({ length: FEATURES }, (_, i) => `signal${String(i + 1).padStart(2, "0")}`);
+const normal = seededNormal(16);
+const loadings = names.map((_, i) => Array.from({ length: i + 1 }, (_, j) => (j === i ? 1 : 0.3 * normal())));
+const sample = () => {
+  const z = names.map(() => normal());
+  return loadings.map((row, i) => 5 + i + row.reduce((s, l, j) => s + l * z[j], 0));
+};
+
+// --- processes -----------------------------------------------------------------------------
+
+const quietEnv = { ...process.env, WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "false", WRANGLER_HIDE_BANNER: "true" };
+const wranglerBin = join(root, "node_modules/.bin/wrangler");
+
+async function freePort(): Promise<number> {
+  const server = createServer().listen(0, "127.0.0.1");
+  await once(server, "listening");
+  const port = (server.address() as AddressInfo).port;
+  server.close();
+  await once(server, "close");
+  return port;
+}
+
+/**
+ * Bundles the worker once into `dir` and writes a copy of wrangler.toml that runs that bundle
+ * as it is (`--no-bundle`), with absolute paths, so that edits to the sources during the soak
+ * (wrangler dev watches them) cannot reload the worker half-way through the measurement.
+ */
+async function frozenConfig(dir: string): Promise<string> {
+  const { build } = await import("esbuild");
+  // Its own folder: wrangler dev watches the entry's folder, and the state folder changes constantly.
+  mkdirSync(join(dir, "frozen"), { recursive: true });
+  const bundle = join(dir, "frozen", "worker.js");
+  await build({
+    entryPoints: [join(root, "worker/src/index.ts")],
+    bundle: true,
+    format: "esm",
+    platform: "neutral",
+    target: "es2022",
+    conditions: ["workerd", "worker", "browser"],
+    mainFields: ["module", "main"],
+    outfile: bundle,
+    logLevel: "silent",
+  });
+  const original = readFileSync(join(root, "wrangler.toml"), "utf8");
+  // The review app's files too: a rebuild of review-ui/dist during the soak would restart workerd.
+  const assets = join(dir, "frozen-assets");
+  const frozen = original
+    .replace(/^main\s*=.*$/m, `main = ${JSON.stringify(bundle)}`)
+    .replace(/^directory\s*=\s*"([^"]+)"/m, (_m, d: string) => {
+      cpSync(join(root, d), assets, { recursive: true });
+      return `directory = ${JSON.stringify(assets)}`;
+    })
+    .replace(/^migrations_dir\s*=\s*"([^"]+)"/m, (_m, d: string) => `migrations_dir = ${JSON.stringify(join(root, d))}`);
+  const config = join(dir, "frozen", "wrangler.toml");
+  writeFileSync(config, frozen);
+  return config;
+}
+
+function runToEnd(args: string[]): Promise<void> {
+  return new Promise((ok, fail) => {
+    const child = spawn(wranglerBin, args, { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] });
+    child.on("exit", (code) => (code === 0 ? ok() : fail(new Error(`wrangler ${args.slice(0, 3).join(" ")} exited with ${code}`))));
+  });
+}
+
+async function waitForHealth(url: string, child: ChildProcess): Promise<void> {
+  const deadline = Date.now() + 90_000;
+  while (Date.now() < deadline) {
+    if (child.exitCode !== null) throw new Error(`wrangler dev exited with ${child.exitCode}`);
+    try {
+      await (await fetch(`${url}/v1/health`)).arrayBuffer();
+      return;
+    } catch {
+      await new Promise((r) => setTimeout(r, 300));
+    }
+  }
+  throw new Error("wrangler dev did not answer within 90 s");
+}
+
+/** Parent pid of a process, from /proc/<pid>/stat (field 4, after the parenthesised name). */
+function parentOf(pid: number): number | null {
+  try {
+    const stat = readFileSync(`/proc/${pid}/stat`, "utf8");
+    return Number(stat.slice(stat.lastIndexOf(")") + 2).split(" ")[1]);
+  } catch {
+    return null;
+  }
+}
+
+/** The workerd processes descending from `ancestor` (wrangler starts one). */
+function workerdDescendants(ancestor: number): number[] {
+  const found: number[] = [];
+  for (const entry of readdirSync("/proc")) {
+    if (!/^\d+$/.test(entry)) continue;
+    const pid = Number(entry);
+    let comm = "";
+    try {
+      comm = readFileSync(`/proc/${pid}/comm`, "utf8").trim();
+    } catch {
+      continue;
+    }
+    if (comm !== "workerd") continue;
+    for (let p: number | null = pid, hops = 0; p !== null && p > 1 && hops < 10; p = parentOf(p), hops++) {
+      if (p === ancestor) {
+        found.push(pid);
+        break;
+      }
+    }
+  }
+  return found;
+}
+
+/** Resident set size in MiB (VmRSS) of one process. */
+function rssMiB(pid: number): number {
+  const match = /VmRSS:\s+(\d+) kB/.exec(readFileSync(`/proc/${pid}/status`, "utf8"));
+  if (!match) throw new Error(`no VmRSS for pid ${pid}`);
+  return Number(match[1]) / 1024;
+}
+
+// --- load ------------------------------------------------------------------------------------
+
+const payloads = Array.from({ length: 4096 }, () => sample().map((v) => Number(v.toFixed(4))));
+const runId = randomBytes(4).toString("hex");
+let counter = 0;
+function nextBody(): string {
+  const values = payloads[counter % payloads.length];
+  const features: Record<string, number> = {};
+  for (let i = 0; i < FEATURES; i++) features[names[i]] = values[i];
+  counter++;
+  return JSON.stringify({ transactionId: `soak-${runId}-${counter}`, features, accountRef: `acct-${counter % 1499}` });
+}
+
+async function score(url: string, token: string, amount: number, onTime?: (ms: number) => void) {
+  const instance = autocannon({
+    url,
+    connections: CONNECTIONS,
+    amount,
+    timeout: 30,
+    requests: [
+      {
+        method: "POST",
+        path: "/v1/score",
+        headers: { "content-type": "application/json", authorization: `Bearer ${token}` },
+        setupRequest: (req) => ({ ...req, body: nextBody() }),
+      },
+    ],
+  });
+  const statuses = new Map<number, number>();
+  instance.on("response", (_c, status, _b, ms) => {
+    statuses.set(status, (statuses.get(status) ?? 0) + 1);
+    if (status >= 200 && status < 300) onTime?.(ms);
+  });
+  const result = await instance;
+  return { result, statuses: Object.fromEntries(statuses) };
+}
+
+function percentile(sorted: Float64Array, q: number): number {
+  return sorted[Math.min(sorted.length - 1, Math.max(0, Math.ceil(q * sorted.length) - 1))];
+}
+const r2 = (x: number) => Math.round(x * 100) / 100;
+
+// --- run -------------------------------------------------------------------------------------
+
+const work = mkdtempSync(join(tmpdir(), "isodense-soak-"));
+const state = join(work, "state");
+mkdirSync(state);
+const flowToken = `soak-flow-${randomBytes(20).toString("hex")}`;
+const analystToken = `soak-analyst-${randomBytes(20).toString("hex")}`;
+const adminToken = `soak-admin-${randomBytes(20).toString("hex")}`;
+const envFile = join(work, "soak.env");
+writeFileSync(envFile, `FLOW_CREDENTIALS="soak:${flowToken}"\nANALYST_CREDENTIALS="soak-analyst:${analystToken}"\nADMIN_CREDENTIALS="soak-admin:${adminToken}"\n`);
+let wrangler: ChildProcess | undefined;
+let reviewer: ChildProcess | undefined;
+let failed = false;
+
+try {
+  const rows: FitRow[] = Array.from({ length: 20_000 }, () => ({ values: Float64Array.from(sample()), segment: null }));
+  const features: FeatureDeclaration[] = names.map((name) => ({ name, transform: "none" }));
+  const { artifact } = await fitModel(
+    { async *pass() { yield* rows; } },
+    { features, shape: "full", estimator: "classical", segmentBy: null, cutoffRate: 0.01, version: "msoak-16", createdAt: "2026-03-02T09:00:00.000Z", source: "soak (invented data)" },
+  );
+  const modelFile = join(work, "model.json");
+  writeFileSync(modelFile, JSON.stringify(artifact));
+  const config = await frozenConfig(work);
+  await runToEnd(["d1", "migrations", "apply", "isodense-review", "--local", "--persist-to", state, "--config", config]);
+
+  const port = Number(process.env.PORT ?? (await freePort()));
+  const url = `http://127.0.0.1:${port}`;
+  console.log(`starting wrangler dev on ${url}`);
+  wrangler = spawn(
+    wranglerBin,
+    ["dev", "--config", config, "--no-bundle", "--ip", "127.0.0.1", "--port", String(port), "--persist-to", state, "--env-file", envFile, "--show-interactive-dev-session=false", "--log-level", "warn"],
+    { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] },
+  );
+  await waitForHealth(url, wrangler);
+  const quiet: CommandIO = { stdout: { write: () => true }, stderr: { write: (t: string) => process.stderr.write(t), isTTY: false } as never };
+  if ((await publishCommand([modelFile, "--url", url, "--token", adminToken, "--activate"], quiet)) !== 0) throw new Error("publishing the soak model failed");
+
+  const wranglerPid = wrangler.pid!;
+  const workerds = new Set<number>();
+  /** Sum of VmRSS over the live workerd processes under wrangler (found afresh on each read). */
+  const rssAll = () => {
+    let total = 0;
+    for (const pid of workerdDescendants(wranglerPid)) {
+      try {
+        total += rssMiB(pid);
+        workerds.add(pid);
+      } catch {
+        /* exited between listing and reading */
+      }
+    }
+    if (total === 0) throw new Error("no workerd process found under wrangler dev");
+    return total;
+  };
+  rssAll();
+  const pidsAtStart = () => workerDescendantsKey();
+  function workerDescendantsKey(): string {
+    return workerdDescendants(wranglerPid).sort((a, b) => a - b).join(",");
+  }
+
+  // Warm-up: fills the per-isolate answer memory (5,000 entries) several times over and lets V8's
+  // heap and SQLite's page cache reach their working size, so "before" is the steady state.
+  console.log(`warming up with ${WARM_UP.toLocaleString("en")} calls`);
+  const warm = await score(url, flowToken, WARM_UP);
+  console.log(`warm-up statuses: ${JSON.stringify(warm.statuses)}`);
+  await new Promise((r) => setTimeout(r, 2000));
+  const rssBefore = rssAll();
+  const pidsBefore = pidsAtStart();
+
+  const reviewOut = join(work, "review.json");
+  reviewer = spawn(process.execPath, ["bin/run-ts.js", "bench/soak-review.ts", url, analystToken, reviewOut], { cwd: root, stdio: ["ignore", "inherit", "inherit"] });
+
+  let rssPeak = rssBefore;
+  // RSS per workerd process every 5 s, to tell a plateau (V8 and SQLite growing to their working
+  // size) from steady growth, and which process grows.
+  const timeline: { seconds: number; rssMiBByPid: Record<number, number> }[] = [];
+  const soakStart = Date.now();
+  let ticks = 0;
+  const sampler = setInterval(() => {
+    try {
+      rssPeak = Math.max(rssPeak, rssAll());
+      if (ticks++ % 5 === 0) {
+        const byPid: Record<number, number> = {};
+        for (const pid of workerdDescendants(wranglerPid)) byPid[pid] = r2(rssMiB(pid));
+        timeline.push({ seconds: Math.round((Date.now() - soakStart) / 1000), rssMiBByPid: byPid });
+      }
+    } catch {
+      /* the process may be between reads */
+    }
+  }, 1000);
+  console.log(`soaking: ${TOTAL.toLocaleString("en")} /v1/score calls at ${CONNECTIONS} connections (RSS before ${r2(rssBefore)} MiB)`);
+  const times: number[] = [];
+  const started = Date.now();
+  const soak = await score(url, flowToken, TOTAL, (ms) => times.push(ms));
+  const seconds = (Date.now() - started) / 1000;
+  clearInterval(sampler);
+
+  if (reviewer.exitCode === null) {
+    reviewer.kill("SIGTERM");
+    await once(reviewer, "exit");
+  }
+  const review = JSON.parse(readFileSync(reviewOut, "utf8")) as { errors: number } & Record<string, unknown>;
+  await new Promise((r) => setTimeout(r, 3000));
+  const rssAfter = rssAll();
+  // A workerd restart (wrangler restarts it on a crash or a reload) makes before/after meaningless.
+  const restarted = pidsAtStart() !== pidsBefore;
+
+  const sorted = Float64Array.from(times).sort();
+  const errors = soak.result.non2xx + soak.result.errors + soak.result.timeouts;
+  const memoryChange = (rssAfter - rssBefore) / rssBefore;
+  const summary = {
+    measuredAt: new Date().toISOString(),
+    machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version },
+    setup: {
+      warmUpCalls: WARM_UP,
+      warmUpStatuses: warm.statuses,
+      server: "wrangler dev (local simulator) on 127.0.0.1; autocannon and the review process on the same machine",
+      model: { version: artifact.version, features: FEATURES, covarianceShape: artifact.covarianceShape },
+      connections: CONNECTIONS,
+      body: `${FEATURES} features, fresh transactionId per call`,
+    },
+    score: {
+      requested: TOTAL,
+      answered2xx: times.length,
+      errors,
+      statuses: soak.statuses,
+      seconds: r2(seconds),
+      requestsPerSecond: r2(times.length / seconds),
+      latencyMs: { p50: r2(percentile(sorted, 0.5)), p90: r2(percentile(sorted, 0.9)), p99: r2(percentile(sorted, 0.99)), max: r2(sorted[sorted.length - 1]) },
+    },
+    memory: {
+      process: "workerd (child of wrangler dev), VmRSS from /proc",
+      pids: [...workerds],
+      beforeMiB: r2(rssBefore),
+      afterMiB: r2(rssAfter),
+      peakMiB: r2(rssPeak),
+      change: Number(memoryChange.toFixed(4)),
+      tolerance: MEMORY_TOLERANCE,
+      workerdRestarted: restarted,
+      timeline,
+    },
+    review,
+    met: { allScored: times.length === TOTAL && errors === 0, memory: !restarted && Math.abs(memoryChange) <= MEMORY_TOLERANCE, reviewErrors: review.errors === 0 },
+  };
+  mkdirSync(join(root, "bench/results"), { recursive: true });
+  writeFileSync(join(root, "bench/results/soak.json"), JSON.stringify(summary, null, 2) + "\n");
+  console.log(
+    `scored ${times.length.toLocaleString("en")} / ${TOTAL.toLocaleString("en")} in ${r2(seconds)} s (${summary.score.requestsPerSecond} req/s), errors ${errors}, ` +
+      `p50 ${summary.score.latencyMs.p50} ms, p99 ${summary.score.latencyMs.p99} ms; workerd RSS ${summary.memory.beforeMiB} → ${summary.memory.afterMiB} MiB ` +
+      `(${(memoryChange * 100).toFixed(1)} %, peak ${summary.memory.peakMiB}); review: ${JSON.stringify(review)}`,
+  );
+  console.log("written bench/results/soak.json");
+  failed = !(summary.met.allScored && summary.met.memory && summary.met.reviewErrors);
+  if (failed) console.error(`soak targets NOT met: ${JSON.stringify(summary.met)}`);
+} finally {
+  if (reviewer && reviewer.exitCode === null) reviewer.kill("SIGTERM");
+  if (wrangler && wrangler.exitCode === null) {
+    wrangler.kill("SIGTERM");
+    await Promise.race([once(wrangler, "exit"), new Promise((r) => setTimeout(r, 5000))]);
+  }
+  rmSync(work, { recursive: true, force: true });
+}
+if (failed) process.exitCode = 1;

@@ -1,0 +1,152 @@
+/**
+ * The model page in a real browser against `wrangler dev`: the demo queue is scored and decided
+ * from the demo ledger's labels (scripts/demo-decisions.ts), then an admin opens the model page, moves the
+ * cutoff and sees the expected flags, precision and recall change, publishes the cutoff (a new
+ * live version), and rolls back to the previous one. An analyst sees the page read-only. The
+ * screenshot goes to test-output/screenshots (docs/screenshots with UPDATE_SCREENSHOTS=1).
+ */
+import { mkdir, rm } from "node:fs/promises";
+import { join } from "node:path";
+import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import type { Browser, Page } from "playwright-core";
+import { generateLedger, type LedgerRow } from "../../demo-ledger/generate";
+import { retuneArtifact, type ModelArtifact } from "../../shared-model/src";
+import { decideFromLedger } from "../../scripts/demo-decisions";
+import { seedDemoQueue } from "./demo-queue";
+import { launchChromium, repoRoot, startStack, type Stack } from "./stack";
+
+let stack: Stack;
+let browser: Browser;
+let page: Page;
+let liveVersion: string;
+const shots = process.env.UPDATE_SCREENSHOTS === "1" ? join(repoRoot, "docs/screenshots") : join(repoRoot, "test-output/screenshots");
+
+beforeAll(async () => {
+  stack = await startStack(`e2e-model-${process.pid}`, { AUDIT_SAMPLE_RATE: "0.03", DRIFT_FLUSH_PAYMENTS: "100" });
+  const seeded = await seedDemoQueue(stack.base, stack.tokens);
+  liveVersion = seeded.version;
+  const labels = new Map<string, "fraud" | "legitimate">();
+  const ledger = [...generateLedger({ rows: 14_000 })];
+  for (const row of ledger) labels.set(row.paymentId, row.label);
+  await scoreWithShadow(ledger.slice(-600));
+  await decideFromLedger(stack.base, stack.tokens.analyst, (id) => labels.get(id));
+  browser = await launchChromium();
+  page = await browser.newPage({ viewport: { width: 1360, height: 1000 } });
+  await mkdir(shots, { recursive: true });
+});
+
+afterAll(async () => {
+  await browser?.close();
+  await stack?.stop();
+  if (stack) await rm(join(stack.stateDir, "state"), { recursive: true, force: true });
+});
+
+async function api(path: string, token: string, body?: unknown, method = body === undefined ? "GET" : "POST"): Promise<unknown> {
+  const res = await fetch(`${stack.base}${path}`, {
+    method,
+    headers: { authorization: `Bearer ${token}`, ...(body === undefined ? {} : { "content-type": "application/json" }) },
+    body: body === undefined ? undefined : JSON.stringify(body),
+  });
+  if (!res.ok) throw new Error(`${method} ${path} answered ${res.status}: ${await res.text()}`);
+  return res.json();
+}
+
+/** Sets a stricter-cutoff copy of the live model as shadow and scores the last payments again under new ids. */
+async function scoreWithShadow(rows: LedgerRow[]): Promise<void> {
+  const { artifact } = (await api(`/v1/models/${liveVersion}`, stack.tokens.admin)) as { artifact: ModelArtifact };
+  const shadow = await retuneArtifact(artifact, artifact.cutoff.mahalanobisSq * 1.3, "manual", null);
+  await api("/v1/models", stack.tokens.admin, shadow);
+  await api("/v1/models/shadow", stack.tokens.admin, { version: shadow.version }, "PUT");
+  const features = Object.keys(rows[0]).filter((k) => artifact.features.some((f) => f.name === k));
+  for (let start = 0; start < rows.length; start += 100) {
+    const payments = rows.slice(start, start + 100).map((r) => ({
+      transactionId: `${r.paymentId}-again`,
+      features: Object.fromEntries(features.map((k) => [k, r[k as keyof LedgerRow] as number])),
+      segment: r.channel,
+    }));
+    await api("/v1/score/batch", stack.tokens.flow, { payments });
+  }
+}
+
+async function until(check: () => Promise<boolean>, what: string, timeoutMs = 15_000): Promise<void> {
+  const deadline = Date.now() + timeoutMs;
+  while (!(await check())) {
+    if (Date.now() > deadline) throw new Error(`timed out waiting for ${what}`);
+    await new Promise((r) => setTimeout(r, 50));
+  }
+}
+
+const text = (testId: string) => page.getByTestId(testId).first().innerText();
+
+async function signIn(target: Page, token: string): Promise<void> {
+  await target.goto(`${stack.base}/#/model`);
+  await target.getByLabel("Personal credential").fill(token);
+  await target.getByRole("button", { name: "Sign in" }).click();
+  await target.getByTestId("model-screen").waitFor();
+}
+
+describe("the model page in Chromium", () => {
+  it("shows the live version, the cutoff figures, the PR curve, the histogram and the drift table", async () => {
+    await signIn(page, stack.tokens.admin);
+    await page.getByTestId("expected-flags").waitFor();
+    expect(await text("version-id")).toBe(liveVersion);
+    await page.getByTestId("pr-curve").waitFor();
+    await page.getByTestId("score-histogram").waitFor();
+    const drift = await text("drift-table");
+    expect(drift).toContain("score (d²)");
+    expect(drift).toMatch(/stable|watch|shifted/);
+    expect(await text("precision")).toMatch(/%/);
+    await page.getByTestId("shadow-panel").waitFor();
+    expect(await text("shadow-agreement")).toMatch(/^\d+\.\d\d % of payments$/);
+  });
+
+  it("moves the cutoff and sees expected flags, precision and recall change without publishing", async () => {
+    const before = { flags: await text("expected-flags"), precision: await text("precision"), recall: await text("recall") };
+    const live = Number((await page.getByTestId("cutoff-input").inputValue()));
+    expect(live).toBeGreaterThan(0);
+    await page.getByTestId("cutoff-input").fill(String(Math.round(live * 0.6 * 100) / 100));
+    await page.getByTestId("cutoff-input").press("Enter");
+    await until(async () => (await text("expected-flags")) !== before.flags, "the expected flags to change");
+    const lower = { flags: await text("expected-flags"), precision: await text("precision"), recall: await text("recall") };
+    expect(Number(lower.flags.replace(/,/g, ""))).toBeGreaterThan(Number(before.flags.replace(/,/g, "")));
+    expect(lower.recall).not.toBe(before.recall);
+    expect(lower.precision).not.toBe(before.precision);
+    // The slider moves the same figures.
+    await page.getByTestId("cutoff-slider").fill(String(Math.round(live * 0.8)));
+    await until(async () => (await text("expected-flags")) !== lower.flags, "the slider to move the figures");
+    await page.getByTestId("pr-considered").waitFor();
+    // The whole page in one viewport, so the fixed status line sits at the bottom, not mid-page.
+    const height = await page.evaluate(() => document.documentElement.scrollHeight);
+    await page.setViewportSize({ width: 1360, height });
+    await page.screenshot({ path: join(shots, "model-page.png") });
+    await page.setViewportSize({ width: 1360, height: 1000 });
+    // Nothing was published by moving the control.
+    expect(await text("version-id")).toBe(liveVersion);
+  });
+
+  it("publishes the considered cutoff after a confirmation step, then rolls back to the previous version", async () => {
+    await page.getByTestId("publish-start").click();
+    await page.getByTestId("publish-reason").fill("catch more of the weekend card testing");
+    await page.getByTestId("publish-confirm").click();
+    await until(async () => (await page.getByTestId("model-notice").count()) > 0 && (await text("model-notice")).startsWith("Published"), "the publish notice");
+    const published = await text("version-id");
+    expect(published).not.toBe(liveVersion);
+    const health = (await (await fetch(`${stack.base}/v1/health`)).json()) as { model: { version: string } };
+    expect(health.model.version).toBe(published);
+
+    await page.getByTestId("rollback-start").click();
+    await page.getByTestId("rollback-confirm").click();
+    await until(async () => (await text("model-notice")).startsWith("Rolled back"), "the rollback notice");
+    expect(await text("version-id")).toBe(liveVersion);
+  });
+
+  it("shows an analyst the page read-only", async () => {
+    const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });
+    const analystPage = await context.newPage();
+    await signIn(analystPage, stack.tokens.analyst);
+    await analystPage.getByTestId("expected-flags").waitFor();
+    expect(await analystPage.getByTestId("admin-actions").count()).toBe(0);
+    expect(await analystPage.getByText("publishing one or rolling back is for admins").count()).toBe(1);
+    await context.close();
+  });
+});

@@ -1,0 +1,90 @@
+/**
+ * The figures of the weekly report, from counts already read: PSI per model column and for d²
+ * against the training reference, each day's flag rate against the expected rate, and the reasons
+ * (if any) the live model is due for refit. Pure: the worker reads, this computes.
+ */
+import { DriftInputError, driftLevel, flagRateCheck, referencePsi, type DriftLevel, type FlagRateCheck } from "../../../shared-model/src";
+import type { TallyModel } from "./tally";
+import { SCORE_ROW } from "./tally";
+import type { BucketTotals, DayVolume } from "./traffic-queries";
+import type { DayFlagRate, DriftEntry } from "./contract";
+export type { DayFlagRate, DriftEntry };
+
+
+/**
+ * PSI and alert level per model column and for d² (alert levels 0.1 and 0.25, see `drift.ts`).
+ * A column without traffic, or whose reference edges are all equal, gets a null PSI and a note
+ * instead of failing the whole table.
+ *
+ * @example
+ * driftEntries(live, totals) // [{ name: "amount", psi: 0.03, level: "stable", payments: 9120, note: null }, …]
+ */
+export function driftEntries(model: TallyModel, totals: BucketTotals): DriftEntry[] {
+  const edges = model.artifact.reference.columnEdges;
+  const rows: DriftEntry[] = [];
+  const add = (name: string, cuts: readonly number[] | undefined, counts: number[] | undefined): void => {
+    const payments = counts ? counts.reduce((a, b) => a + b, 0) : 0;
+    if (!cuts || !counts || cuts.length === 0) {
+      rows.push({ name, psi: null, level: null, payments, note: "the artifact stores no reference edges for it" });
+      return;
+    }
+    if (payments === 0) {
+      rows.push({ name, psi: null, level: null, payments, note: "no payments counted in the window" });
+      return;
+    }
+    try {
+      const value = referencePsi(cuts, counts);
+      rows.push({ name, psi: value, level: driftLevel(value), payments, note: null });
+    } catch (error) {
+      if (!(error instanceof DriftInputError)) throw error;
+      rows.push({ name, psi: null, level: null, payments, note: `${error.field}: ${error.rule}` });
+    }
+  };
+  model.artifact.columns.forEach((name, j) => add(name, edges[j], totals.columns[j]));
+  add(SCORE_ROW, model.artifact.reference.scoreEdges, totals.score);
+  return rows;
+}
+
+
+/**
+ * Each day's flag rate, checked with a 95 % Wilson interval against `expectedRate` (the artifact's
+ * `cutoff.flagRate`; null when the artifact does not state one).
+ *
+ * @example
+ * dayFlagRates([{ day: "2026-12-01", scored: 263, flagged: 81 }], 0.25)[0].check?.verdict // "above"
+ */
+export function dayFlagRates(volumes: readonly DayVolume[], expectedRate: number | null): DayFlagRate[] {
+  return volumes.map((v) => ({
+    ...v,
+    rate: v.scored > 0 ? v.flagged / v.scored : null,
+    check: v.scored > 0 && expectedRate !== null ? flagRateCheck(v.flagged, v.scored, expectedRate) : null,
+  }));
+}
+
+/**
+ * Why the live model is due for refit: a column or the score "shifted", a day's flag rate outside
+ * its interval, or the model older than `refitAfterDays`. Empty when none applies.
+ *
+ * @example
+ * refitReasons(drift, rates, 35, 28) // ["the model is 35 days old (refit after 28)"]
+ */
+export function refitReasons(drift: readonly DriftEntry[], rates: readonly DayFlagRate[], ageDays: number, refitAfterDays: number): string[] {
+  const reasons: string[] = [];
+  for (const row of drift) {
+    if (row.level === "shifted") reasons.push(`${row.name} shifted (PSI ${row.psi!.toFixed(3)} ≥ 0.25)`);
+  }
+  for (const day of rates) {
+    const check = day.check;
+    if (check && check.verdict !== "as-expected") {
+      reasons.push(
+        `flag rate on ${day.day} is ${check.verdict} the expected ${pct(check.expectedRate)} (observed ${pct(check.observedRate)}, 95 % interval ${pct(check.low)}–${pct(check.high)})`,
+      );
+    }
+  }
+  if (ageDays > refitAfterDays) reasons.push(`the model is ${Math.floor(ageDays)} days old (refit after ${refitAfterDays})`);
+  return reasons;
+}
+
+function pct(share: number): string {
+  return `${(share * 100).toFixed(2)} %`;
+}

@@ -1,0 +1,223 @@
+/**
+ * The insights API behind the model page, mounted at `/v1/insights` (analysts read, admins act):
+ *
+ * - GET  /model              live and shadow versions (fit report, diagnostics, refit mark), the
+ *                            latest weekly report, the drift table and daily flag rates (?days=7)
+ * - GET  /operating          the labelled operating table of a version (?version, ?days, ?cutoff)
+ * - GET  /shadow             the live/shadow comparison so far (?shadowVersion)
+ * - GET  /histogram          d² bucket counts against the reference edges (?version, ?days)
+ * - POST /publish-cutoff     admin: a new version with a retuned cutoff, stored and activated,
+ *                            audited in model_events (rollback: POST /v1/models/rollback)
+ *
+ * Every refusal is `{ error, problems: [{ field, rule }] }`.
+ */
+import { Hono, type Context } from "hono";
+import { canonicalJson } from "../../../shared-model/src";
+import type { AppEnv } from "../app-env";
+import type { HistogramData, ModelEventRow, ModelPageData, OperatingData, ShadowData, StoredReport } from "../insights/contract";
+import { publishCutoff } from "../insights/publish-cutoff";
+import { figuresAtCutoff } from "../insights/operating";
+import { dayFlagRates, driftEntries } from "../insights/drift-report";
+import {
+  MODEL_QUERY_KEYS,
+  modelQuerySchema,
+  OPERATING_QUERY_KEYS,
+  operatingQuerySchema,
+  PUBLISH_CUTOFF_KEYS,
+  publishCutoffSchema,
+  SHADOW_QUERY_KEYS,
+  shadowQuerySchema,
+  WINDOW_QUERY_KEYS,
+  windowQuerySchema,
+} from "../insights/schemas";
+import { shadowComparison } from "../insights/shadow-comparison";
+import { bucketTotals, dailyVolumes, dayBefore, labelledRows } from "../insights/traffic-queries";
+import { versionSummary } from "../insights/version-summary";
+import { allow, authenticate } from "../middleware/auth";
+import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
+import { problemResponse, problemsFromZod } from "../problems";
+import { parseQuery } from "./query";
+import { loadModel, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
+import { readArtifactText, readPointer, type ModelPointer } from "../storage/model-store";
+
+type InsightsContext = Context<AppEnv>;
+
+/** Days of traffic the page looks at unless `?days=` says otherwise. */
+const DEFAULT_DAYS = 7;
+
+/** Hono sub-app of the insights API; mount with `app.route("/v1/insights", insightRoutes)`. */
+export const insightRoutes = new Hono<AppEnv>();
+
+insightRoutes.use("*", authenticate(), allow("analyst"));
+
+insightRoutes.get("/model", async (c) => {
+  const query = parseQuery(c, modelQuerySchema, MODEL_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  const days = query.days ?? DEFAULT_DAYS;
+  const pointer = await readPointer(c.env);
+  if (pointer === null) return noActiveModel(c);
+  const live = await modelOrProblem(c, pointer.version, "pointer.version");
+  if (live instanceof Response) return live;
+  const shadow = pointer.shadow === null ? null : await modelOrProblem(c, pointer.shadow, "pointer.shadow");
+  if (shadow instanceof Response) return shadow;
+  const now = new Date();
+  const fromDay = dayBefore(now, days - 1);
+  const toDay = dayBefore(now, 0);
+  const [activeSummary, shadowSummary, totals, volumes, report, events] = await Promise.all([
+    versionSummary(c.env, live.artifact),
+    shadow ? versionSummary(c.env, shadow.artifact) : Promise.resolve(null),
+    bucketTotals(c.env, live, fromDay, toDay),
+    dailyVolumes(c.env, live.version, fromDay, toDay),
+    latestReport(c.env),
+    recentEvents(c.env),
+  ]);
+  return c.json({
+    pointer,
+    active: activeSummary,
+    shadow: shadowSummary,
+    report,
+    drift: { fromDay, toDay, payments: totals.payments, rows: driftEntries(live, totals) },
+    dailyFlags: dayFlagRates(volumes, live.artifact.cutoff.flagRate),
+    events,
+  } satisfies ModelPageData);
+});
+
+insightRoutes.get("/operating", async (c) => {
+  const query = parseQuery(c, operatingQuerySchema, OPERATING_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  const resolved = await versionOrLive(c, query.version);
+  if (resolved instanceof Response) return resolved;
+  const { model } = resolved;
+  const days = query.days ?? DEFAULT_DAYS;
+  const now = new Date();
+  const sources = await sameParameterVersions(c.env, model, resolved.pointer);
+  const [rows, volumes, undecided] = await Promise.all([
+    labelledRows(c.env, sources),
+    dailyVolumes(c.env, model.version, dayBefore(now, days - 1), dayBefore(now, 0)),
+    c.env.DB.prepare("SELECT COUNT(*) AS n FROM review_status WHERE model_version IN (SELECT value FROM json_each(?1)) AND decided = 0")
+      .bind(JSON.stringify(sources))
+      .first<{ n: number }>(),
+  ]);
+  const scored = volumes.reduce((a, v) => a + v.scored, 0);
+  const flagged = volumes.reduce((a, v) => a + v.flagged, 0);
+  const scoredPerDay = volumes.length > 0 ? scored / volumes.length : null;
+  const atCutoff = query.cutoff === undefined ? null : figuresAtCutoff(rows, query.cutoff, scoredPerDay);
+  return c.json({
+    version: model.version,
+    labelVersions: sources,
+    columns: model.artifact.columns.length,
+    cutoff: model.artifact.cutoff,
+    labels: { ...rows, labelled: rows.fraud.length, fraudCount: rows.fraud.reduce((a, b) => a + b, 0), undecided: Number(undecided?.n ?? 0) },
+    traffic: { days, daysWithTraffic: volumes.length, scored, flagged, scoredPerDay },
+    atCutoff: typeof atCutoff === "string" ? null : atCutoff,
+    unavailable: typeof atCutoff === "string" ? atCutoff : null,
+  } satisfies OperatingData);
+});
+
+insightRoutes.get("/shadow", async (c) => {
+  const query = parseQuery(c, shadowQuerySchema, SHADOW_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  const pointer = await readPointer(c.env);
+  if (pointer === null) return noActiveModel(c);
+  const shadowVersion = query.shadowVersion ?? pointer.shadow;
+  if (shadowVersion === null) return c.json({ pointer, comparison: null } satisfies ShadowData);
+  return c.json({ pointer, comparison: await shadowComparison(c.env, pointer.version, shadowVersion) } satisfies ShadowData);
+});
+
+insightRoutes.get("/histogram", async (c) => {
+  const query = parseQuery(c, windowQuerySchema, WINDOW_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  const resolved = await versionOrLive(c, query.version);
+  if (resolved instanceof Response) return resolved;
+  const { model } = resolved;
+  const days = query.days ?? DEFAULT_DAYS;
+  const now = new Date();
+  const totals = await bucketTotals(c.env, model, dayBefore(now, days - 1), dayBefore(now, 0));
+  const edges = model.artifact.reference.scoreEdges;
+  return c.json({
+    version: model.version,
+    days,
+    edges,
+    counts: totals.score,
+    payments: totals.payments,
+    // Decile edges: each bucket held 1/(edges + 1) of the training traffic.
+    expectedShare: 1 / (edges.length + 1),
+    cutoffMahalanobisSq: model.artifact.cutoff.mahalanobisSq,
+  } satisfies HistogramData);
+});
+
+insightRoutes.post("/publish-cutoff", allow("admin"), jsonBody(BODY_LIMITS.small), async (c) => {
+  const body = c.get("body");
+  const parsed = publishCutoffSchema.safeParse(body);
+  if (!parsed.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(parsed.error, body, "", PUBLISH_CUTOFF_KEYS));
+  const outcome = await publishCutoff(c.env, c.get("principal").user, parsed.data);
+  if (outcome.ok) return c.json(outcome.value, 201);
+  return problemResponse(c, outcome.status, outcome.error, outcome.problems, outcome.retryable ? { retryable: true } : {});
+});
+
+
+function noActiveModel(c: InsightsContext): Response {
+  return problemResponse(c, 409, "no-active-model", [{ field: "pointer", rule: "no model has been activated yet; publish and activate one first" }]);
+}
+
+/** Loads a version, answering 404/422 (naming `field`) when it is not stored or does not verify. */
+async function modelOrProblem(c: InsightsContext, version: string, field: string): Promise<LoadedModel | Response> {
+  try {
+    return await loadModel(c.env, version);
+  } catch (error) {
+    if (!(error instanceof ModelLoadError)) throw error;
+    if (error.code === "artifact-missing") return problemResponse(c, 404, "unknown-version", [{ field, rule: `no model version ${JSON.stringify(version)} is stored` }]);
+    if (error.code === "artifact-invalid") return problemResponse(c, 422, "artifact-refused", [{ field, rule: `the stored artifact of ${version} does not verify` }]);
+    throw error;
+  }
+}
+
+/** The requested version, or the live one. */
+async function versionOrLive(c: InsightsContext, version: string | undefined): Promise<{ model: LoadedModel; pointer: ModelPointer | null } | Response> {
+  const pointer = await readPointer(c.env);
+  if (version === undefined && pointer === null) return noActiveModel(c);
+  const model = await modelOrProblem(c, version ?? pointer!.version, "version");
+  return model instanceof Response ? model : { model, pointer };
+}
+
+/**
+ * The version itself and the earlier live versions with the very same fitted features and segments
+ * (a cutoff retuned from it, or the model it was retuned from): a payment has the same d² under all
+ * of them, so their decisions are labels for this version too, with the weights they were drawn with.
+ */
+async function sameParameterVersions(env: AppEnv["Bindings"], model: LoadedModel, pointer: ModelPointer | null): Promise<string[]> {
+  // Canonical JSON: the parsed artifact and the stored text may order keys differently.
+  const fingerprint = canonicalJson([model.artifact.features, model.artifact.segments]);
+  const candidates = pointer ? [pointer.version, ...pointer.previous].filter((v) => v !== model.version) : [];
+  const same = await Promise.all(
+    candidates.map(async (version) => {
+      const text = await readArtifactText(env, version);
+      if (text === null) return null;
+      try {
+        const other = JSON.parse(text) as { features?: unknown; segments?: unknown };
+        return canonicalJson([other.features, other.segments]) === fingerprint ? version : null;
+      } catch {
+        return null;
+      }
+    }),
+  );
+  return [model.version, ...same.filter((v): v is string => v !== null)];
+}
+
+async function latestReport(env: AppEnv["Bindings"]): Promise<StoredReport | null> {
+  const row = await env.DB.prepare("SELECT id, created_at, run_by, status, report_json FROM model_reports ORDER BY id DESC LIMIT 1").first<{
+    id: number;
+    created_at: string;
+    run_by: string;
+    status: "ok" | "error";
+    report_json: string;
+  }>();
+  return row ? { id: row.id, createdAt: row.created_at, runBy: row.run_by, status: row.status, body: JSON.parse(row.report_json) as StoredReport["body"] } : null;
+}
+
+async function recentEvents(env: AppEnv["Bindings"]): Promise<ModelEventRow[]> {
+  const { results } = await env.DB.prepare(
+    "SELECT id, at, actor, action, from_version AS fromVersion, to_version AS toVersion, outcome, detail FROM model_events ORDER BY id DESC LIMIT 10",
+  ).all<ModelEventRow>();
+  return results;
+}

@@ -1,0 +1,216 @@
+/**
+ * The fault matrix, on the real worker (workerd through Miniflare, real local KV/D1/Queues).
+ *
+ * | fault | where it is tested |
+ * | --- | --- |
+ * | KV unreadable, a model cached: the cached model keeps serving | models.test.ts › "KV failures with a cached model" |
+ * | KV unreadable, nothing cached: 503 no-model | models.test.ts › "KV failures without a cached model" |
+ * | active pointer naming a missing (or tampered) version | models.test.ts › both KV suites |
+ * | D1 unavailable during the queue consumer: retries, dead-letter, zero loss, counted in the logs | handoff.test.ts › "D1 failure" |
+ * | D1 unavailable during a review decision: clear 503, no half-written audit row | here |
+ * | a claim that expires while the decision is on its way | here |
+ * | concurrent decisions on one item: exactly one wins | here |
+ * | worker restart mid-replay: no duplicate review items, none lost after the resend | here |
+ *
+ * Simultaneous claims (exactly one wins) and a claim that has expired before the decision are in
+ * review.test.ts › "claims".
+ */
+import { mkdtemp, rm } from "node:fs/promises";
+import { tmpdir } from "node:os";
+import { join } from "node:path";
+import { afterAll, beforeAll, describe, expect, test } from "vitest";
+import type { ActionResult, AuditEvent, ItemDetail } from "../src/review/contract";
+import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT } from "./fixtures";
+import { countRows, eventually, makeTokens, publishModel, startWorker, type D1Like, type RunningWorker } from "./harness";
+
+interface Refusal {
+  error: string;
+  problems: { field: string; rule: string }[];
+  retryable?: boolean;
+}
+
+describe("review decisions under faults", () => {
+  const tokens = makeTokens();
+  const idrisToken = `test-idris-${"5c1e".repeat(8)}`;
+  let worker: RunningWorker;
+  let db: D1Like;
+  let scored = 0;
+
+  beforeAll(async () => {
+    worker = await startWorker({
+      tokens,
+      vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" },
+      secrets: { ANALYST_CREDENTIALS: `rosa:${tokens.analyst},idris:${idrisToken}` },
+    });
+    db = await worker.db();
+    await publishModel(worker, await fitShopModel({ version: "mfault-review" }));
+  });
+  afterAll(async () => {
+    await worker?.dispose();
+  });
+
+  /** Flags `count` unusual payments the real way and returns their item ids. */
+  async function flag(count: number): Promise<number[]> {
+    const ids: string[] = [];
+    for (let k = 0; k < count; k++) {
+      const transactionId = `tx-fault-${++scored}`;
+      const response = await worker.post("/v1/score", { transactionId, features: { ...UNUSUAL_PAYMENT, amount: 2100 + 13 * scored }, segment: "web" }, tokens.flow);
+      expect(response.status).toBe(200);
+      ids.push(transactionId);
+    }
+    return eventually(async () => {
+      const { results } = await db
+        .prepare(`SELECT id, transaction_id FROM review_items WHERE transaction_id IN (${ids.map((_, i) => `?${i + 1}`).join(",")})`)
+        .bind(...ids)
+        .all<{ id: number; transaction_id: string }>();
+      return results.length === ids.length ? ids.map((t) => results.find((r) => r.transaction_id === t)!.id) : undefined;
+    }, 15_000);
+  }
+
+  const post = async <T>(path: string, body: unknown = {}, token = tokens.analyst) => {
+    const response = await worker.post(path, body, token);
+    return { status: response.status, body: (await response.json()) as T, headers: response.headers };
+  };
+  const eventsOf = async (id: number): Promise<AuditEvent[]> => {
+    const response = await worker.fetch(`/v1/review/items/${id}`, { token: tokens.analyst });
+    return ((await response.json()) as ItemDetail).events;
+  };
+
+  test("D1 failing during a decision answers a clear retryable 503 and writes neither the decision nor its audit row", async () => {
+    const [id] = await flag(1);
+    expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+    const statusBefore = await db.prepare("SELECT * FROM review_status WHERE item_id = ?1").bind(id).first();
+    // The audit table goes away: the batch (audit insert + state update) cannot commit.
+    await db.exec("ALTER TABLE review_events RENAME TO review_events_away");
+    let failed: { status: number; body: Refusal; headers: Headers };
+    try {
+      failed = await post<Refusal>(`/v1/review/items/${id}/decision`, { outcome: "fraud", note: "during the outage" });
+    } finally {
+      await db.exec("ALTER TABLE review_events_away RENAME TO review_events");
+    }
+    expect(failed.status).toBe(503);
+    expect(failed.body.error).toBe("review-store-unavailable");
+    expect(failed.body.retryable).toBe(true);
+    expect(failed.headers.get("retry-after")).toBe("2");
+    expect(failed.body.problems).toEqual([{ field: "id", rule: `item ${id} was not changed: the review store could not be written; nothing was recorded, try again` }]);
+    // Nothing half-written: the standing is untouched (still claimed by rosa) and the trail holds only the claim.
+    expect(await db.prepare("SELECT * FROM review_status WHERE item_id = ?1").bind(id).first()).toEqual(statusBefore);
+    expect((await eventsOf(id)).map((e) => e.action)).toEqual(["claim"]);
+    // After recovery the same decision goes through, once.
+    const retried = await post<ActionResult>(`/v1/review/items/${id}/decision`, { outcome: "fraud", note: "during the outage" });
+    expect(retried.status).toBe(200);
+    expect((await eventsOf(id)).map((e) => e.action)).toEqual(["claim", "decide"]);
+    expect(worker.logs.some((l) => l.message.includes('"event":"review-store-unavailable"'))).toBe(true);
+  });
+
+  test("a claim that runs out while the decision is on its way: the decision and the new claim never both count", async () => {
+    const ids = await flag(12);
+    for (const [k, id] of ids.entries()) {
+      expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+      // The claim ends a few milliseconds from now, while rosa's decision and idris's claim race.
+      await db.prepare("UPDATE review_status SET claim_expires_ms = ?2 WHERE item_id = ?1").bind(id, Date.now() + (k % 4) * 3).run();
+      const [decision, claim] = await Promise.all([
+        post<ActionResult & Refusal>(`/v1/review/items/${id}/decision`, { outcome: "legitimate" }),
+        post<ActionResult & Refusal>(`/v1/review/items/${id}/claim`, {}, idrisToken),
+      ]);
+      const trail = await eventsOf(id);
+      const decides = trail.filter((e) => e.action === "decide");
+      const final = (await (await worker.fetch(`/v1/review/items/${id}`, { token: tokens.analyst })).json()) as ItemDetail;
+      if (decision.status === 200) {
+        // Decided in time: exactly one decision row, by rosa, and the item is decided.
+        expect(decides.map((e) => e.actor)).toEqual(["rosa"]);
+        expect(final.item.decision).toMatchObject({ outcome: "legitimate", by: "rosa" });
+      } else {
+        // Too late: refused as claim-required (her claim ran out) or claimed-by-another, with no decision row.
+        expect(decision.status).toBe(409);
+        expect(["claim-required", "claimed-by-another"]).toContain(decision.body.error);
+        expect(decides).toEqual([]);
+        expect(final.item.decision).toBeNull();
+      }
+      // idris either took it (a claim row by idris) or was told who holds it; never both holders.
+      if (claim.status === 200) expect(trail.some((e) => e.action === "claim" && e.actor === "idris")).toBe(true);
+      else expect(claim.status).toBe(409);
+      expect(trail.filter((e) => e.action === "claim" && e.actor === "idris")).toHaveLength(claim.status === 200 ? 1 : 0);
+    }
+  });
+
+  test("two decisions on one item at the same moment: exactly one wins, one audit row", async () => {
+    const ids = await flag(6);
+    for (const id of ids) {
+      expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+      const answers = await Promise.all([
+        post<ActionResult & Refusal>(`/v1/review/items/${id}/decision`, { outcome: "fraud" }),
+        post<ActionResult & Refusal>(`/v1/review/items/${id}/decision`, { outcome: "legitimate" }),
+        post<ActionResult & Refusal>(`/v1/review/items/${id}/decision`, { outcome: "fraud" }, idrisToken),
+      ]);
+      const winners = answers.filter((a) => a.status === 200);
+      expect(winners).toHaveLength(1);
+      for (const loser of answers.filter((a) => a.status !== 200)) {
+        expect(loser.status).toBe(409);
+        expect(loser.body.problems[0].field).toBe("id");
+      }
+      const decides = (await eventsOf(id)).filter((e) => e.action === "decide");
+      expect(decides).toHaveLength(1);
+      const final = (await (await worker.fetch(`/v1/review/items/${id}`, { token: tokens.analyst })).json()) as ItemDetail;
+      expect(final.item.decision?.outcome).toBe(decides[0].toOutcome);
+    }
+  });
+});
+
+describe("worker restart mid-replay", () => {
+  test("a replay cut off by a restart and sent again in full stores every flag exactly once", { timeout: 120_000 }, async () => {
+    const dir = await mkdtemp(join(tmpdir(), "isodense-restart-"));
+    const tokens = makeTokens();
+    const vars = { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0.05" };
+    // Unusual payments among typical ones, 25 per batch call, as scripts/replay.ts sends them.
+    const payments = [
+      ...Array.from({ length: 40 }, (_, i) => ({ transactionId: `rp-u${i}`, features: { ...UNUSUAL_PAYMENT, amount: 1500 + 17 * i }, segment: "web" })),
+      ...shopPayments(160, 41).map((p, i) => scoreBody(`rp-t${i}`, p)),
+    ].sort((a, b) => String(a.transactionId).localeCompare(String(b.transactionId)));
+    const batches: (typeof payments)[] = [];
+    for (let i = 0; i < payments.length; i += 25) batches.push(payments.slice(i, i + 25));
+
+    const reviewIds = new Set<string>();
+    async function send(worker: RunningWorker, list: typeof batches): Promise<void> {
+      for (const batch of list) {
+        const response = await worker.post("/v1/score/batch", { payments: batch }, tokens.flow);
+        expect(response.status).toBe(200);
+        const body = (await response.json()) as { results: { outcome: string; result: { transactionId: string; decision: string; auditSample: boolean } }[] };
+        for (const r of body.results) {
+          expect(r.outcome).toBe("scored");
+          if (r.result.decision === "review" || r.result.auditSample) reviewIds.add(r.result.transactionId);
+        }
+      }
+    }
+
+    let first: RunningWorker | undefined = await startWorker({ persistDir: dir, tokens, vars });
+    let second: RunningWorker | undefined;
+    try {
+      await publishModel(first, await fitShopModel({ version: "mfault-replay" }));
+      // Half the replay, then the process goes away at once: whatever the local queue still held
+      // in memory is lost with it (production queues are durable; the resend covers both).
+      await send(first, batches.slice(0, Math.ceil(batches.length / 2)));
+      await first.dispose();
+      first = undefined;
+
+      second = await startWorker({ persistDir: dir, tokens, vars, skipMigrations: true });
+      const db = await second.db();
+      const storedAfterCut = await countRows(db, "review_items");
+      expect(storedAfterCut).toBeLessThanOrEqual(reviewIds.size);
+      await send(second, batches);
+      expect(reviewIds.size).toBeGreaterThanOrEqual(40);
+      await eventually(async () => ((await countRows(db, "review_items")) >= reviewIds.size ? true : undefined), 30_000, 300);
+      // Let any redelivery land before looking for duplicates.
+      await new Promise((r) => setTimeout(r, 2500));
+      const { results } = await db.prepare("SELECT transaction_id, COUNT(*) AS n FROM review_items GROUP BY transaction_id, model_version").all<{ transaction_id: string; n: number }>();
+      expect(results.map((r) => r.transaction_id).sort()).toEqual([...reviewIds].sort());
+      expect(results.filter((r) => r.n !== 1)).toEqual([]);
+      // One queue line per item as well (the trigger builds review_status from review_items).
+      expect(await countRows(db, "review_status")).toBe(reviewIds.size);
+    } finally {
+      await first?.dispose();
+      await second?.dispose();
+      await rm(dir, { recursive: true, force: true });
+    }
+  });
+});
