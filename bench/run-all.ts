@@ -1,7 +1,7 @@
 /**
  * `npm run bench`: the model core's figures — scoring kernel vectors/s against C, fit throughput and
  * peak memory for 100k and 1M rows of 32 columns — printed and written to bench/results/core.json.
- * The service benchmarks (worker load, review UI, the soak) run after it when their scripts exist.
+ * The service benchmarks (worker load, review UI, the soak) run after it; `--core` leaves them out.
  */
 import { execFileSync } from "node:child_process";
 import { existsSync, mkdirSync, writeFileSync } from "node:fs";
@@ -45,7 +45,9 @@ writeFileSync(new URL("core.json", resultsDir), JSON.stringify(summary, null, 2)
 console.log(`written bench/results/core.json`);
 
 // Service benchmarks live beside this one; run them when present.
-for (const script of ["worker-load.ts", "review-ui.ts", "soak.ts"]) {
+// `npm run bench -- --core` stops here: the model core's figures only, in about a minute.
+const coreOnly = process.argv.includes("--core");
+for (const script of coreOnly ? [] : ["worker-load.ts", "review-ui.ts", "soak.ts"]) {
   if (existsSync(new URL(script, import.meta.url))) {
     console.log(`\n— ${script} —`);
     execFileSync(process.execPath, ["bin/run-ts.js", `bench/${script}`], { cwd: root, stdio: "inherit" });
