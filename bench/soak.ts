@@ -16,82 +16,24 @@
 import { spawn, type ChildProcess } from "node:child_process";
 import { once } from "node:events";
 import { cpSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from "node:fs";
-import { createRequire } from "node:module";
-import { createServer, type AddressInfo } from "node:net";
 import { cpus, tmpdir } from "node:os";
-import { dirname, join, resolve } from "node:path";
-import { fileURLToPath } from "node:url";
+import { join } from "node:path";
 import { randomBytes } from "node:crypto";
 import { publishCommand } from "../cli/commands/publish";
 import type { CommandIO } from "../cli/io";
 import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
+import { autocannon, correlatedGaussian, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
-const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 const TOTAL = Number(process.env.SOAK_REQUESTS ?? 200_000);
 const CONNECTIONS = Number(process.env.SOAK_CONNECTIONS ?? 48);
 const FEATURES = 16;
 const MEMORY_TOLERANCE = 0.1;
 const WARM_UP = Number(process.env.SOAK_WARM_UP ?? 20_000);
 
-interface AutocannonRequest {
-  method: string;
-  path: string;
-  headers: Record<string, string>;
-  body?: string;
-}
-interface AutocannonResult {
-  requests: { total: number };
-  duration: number;
-  non2xx: number;
-  errors: number;
-  timeouts: number;
-}
-interface AutocannonInstance extends Promise<AutocannonResult> {
-  on(event: "response", listener: (client: unknown, statusCode: number, bytes: number, responseTimeMs: number) => void): void;
-}
-type Autocannon = (options: {
-  url: string;
-  connections: number;
-  amount: number;
-  timeout: number;
-  requests: { method: string; path: string; headers: Record<string, string>; setupRequest: (req: AutocannonRequest) => AutocannonRequest }[];
-}) => AutocannonInstance;
-const autocannon = createRequire(import.meta.url)("autocannon") as Autocannon;
-
-// --- invented data: a correlated Gaussian in 16 dimensions -----------------------------------
-
-function seededNormal(seed: number): () => number {
-  let state = seed >>> 0;
-  const uniform = () => {
-    state = (state + 0x6d2b79f5) >>> 0;
-    let t = state;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
-}
-const names = Array.from({ length: FEATURES }, (_, i) => `signal${String(i + 1).padStart(2, "0")}`);
-const normal = seededNormal(16);
-const loadings = names.map((_, i) => Array.from({ length: i + 1 }, (_, j) => (j === i ? 1 : 0.3 * normal())));
-const sample = () => {
-  const z = names.map(() => normal());
-  return loadings.map((row, i) => 5 + i + row.reduce((s, l, j) => s + l * z[j], 0));
-};
+// Invented data: a correlated Gaussian in 16 dimensions.
+const { names, sample } = correlatedGaussian(FEATURES, 16, 0.3, 5);
 
 // --- processes -----------------------------------------------------------------------------
-
-const quietEnv = { ...process.env, WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "false", WRANGLER_HIDE_BANNER: "true" };
-const wranglerBin = join(root, "node_modules/.bin/wrangler");
-
-async function freePort(): Promise<number> {
-  const server = createServer().listen(0, "127.0.0.1");
-  await once(server, "listening");
-  const port = (server.address() as AddressInfo).port;
-  server.close();
-  await once(server, "close");
-  return port;
-}
 
 /**
  * Bundles the worker once into `dir` and writes a copy of wrangler.toml that runs that bundle
@@ -127,27 +69,6 @@ async function frozenConfig(dir: string): Promise<string> {
   const config = join(dir, "frozen", "wrangler.toml");
   writeFileSync(config, frozen);
   return config;
-}
-
-function runToEnd(args: string[]): Promise<void> {
-  return new Promise((ok, fail) => {
-    const child = spawn(wranglerBin, args, { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] });
-    child.on("exit", (code) => (code === 0 ? ok() : fail(new Error(`wrangler ${args.slice(0, 3).join(" ")} exited with ${code}`))));
-  });
-}
-
-async function waitForHealth(url: string, child: ChildProcess): Promise<void> {
-  const deadline = Date.now() + 90_000;
-  while (Date.now() < deadline) {
-    if (child.exitCode !== null) throw new Error(`wrangler dev exited with ${child.exitCode}`);
-    try {
-      await (await fetch(`${url}/v1/health`)).arrayBuffer();
-      return;
-    } catch {
-      await new Promise((r) => setTimeout(r, 300));
-    }
-  }
-  throw new Error("wrangler dev did not answer within 90 s");
 }
 
 /** Parent pid of a process, from /proc/<pid>/stat (field 4, after the parenthesised name). */
@@ -227,9 +148,6 @@ async function score(url: string, token: string, amount: number, onTime?: (ms: n
   return { result, statuses: Object.fromEntries(statuses) };
 }
 
-function percentile(sorted: Float64Array, q: number): number {
-  return sorted[Math.min(sorted.length - 1, Math.max(0, Math.ceil(q * sorted.length) - 1))];
-}
 const r2 = (x: number) => Math.round(x * 100) / 100;
 
 // --- run -------------------------------------------------------------------------------------

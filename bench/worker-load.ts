@@ -19,77 +19,22 @@
 import { spawn, type ChildProcess } from "node:child_process";
 import { once } from "node:events";
 import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from "node:fs";
-import { createRequire } from "node:module";
-import { createServer, type AddressInfo } from "node:net";
 import { cpus, tmpdir } from "node:os";
-import { dirname, join, resolve } from "node:path";
-import { fileURLToPath } from "node:url";
+import { join } from "node:path";
 import { randomBytes } from "node:crypto";
 import { publishCommand } from "../cli/commands/publish";
 import type { CommandIO } from "../cli/io";
 import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
+import { autocannon, correlatedGaussian, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
-const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 const seconds = Number(process.env.BENCH_SECONDS ?? 10);
 const FEATURES = 32;
 const TRAINING_ROWS = 20_000;
 /** Alternating echo/score rounds per connection count. */
 const ROUNDS = 4;
 
-// ---------------------------------------------------------------------------------------------
-// autocannon (no bundled types): the slice used here
-// ---------------------------------------------------------------------------------------------
-
-interface AutocannonRequest {
-  method: string;
-  path: string;
-  headers: Record<string, string>;
-  body?: string;
-}
-interface AutocannonResult {
-  requests: { average: number; total: number };
-  latency: { p50: number; p99: number; average: number };
-  non2xx: number;
-  errors: number;
-  timeouts: number;
-}
-interface AutocannonInstance extends Promise<AutocannonResult> {
-  on(event: "response", listener: (client: unknown, statusCode: number, bytes: number, responseTimeMs: number) => void): void;
-}
-type Autocannon = (options: {
-  url: string;
-  connections: number;
-  duration: number;
-  requests: { method: string; path: string; headers: Record<string, string>; setupRequest: (req: AutocannonRequest) => AutocannonRequest }[];
-}) => AutocannonInstance;
-const autocannon = createRequire(import.meta.url)("autocannon") as Autocannon;
-
-// ---------------------------------------------------------------------------------------------
-// Invented data: a correlated 32-dimensional Gaussian
-// ---------------------------------------------------------------------------------------------
-
-function seeded(seed: number): () => number {
-  let state = seed >>> 0;
-  const uniform = () => {
-    state = (state + 0x6d2b79f5) >>> 0;
-    let t = state;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
-}
-
-const names = Array.from({ length: FEATURES }, (_, i) => `signal${String(i + 1).padStart(2, "0")}`);
-const normal = seeded(32);
-// x = μ + L z with a fixed lower-triangular L: every feature correlates with the earlier ones.
-const loadings = names.map((_, i) => Array.from({ length: i + 1 }, (_, j) => (j === i ? 1 : 0.25 * normal())));
-const means = names.map((_, i) => 10 + i);
-
-function sample(): number[] {
-  const z = names.map(() => normal());
-  return loadings.map((row, i) => means[i] + row.reduce((s, l, j) => s + l * z[j], 0));
-}
+// Invented data: a correlated 32-dimensional Gaussian.
+const { names, sample } = correlatedGaussian(FEATURES, 32, 0.25, 10);
 
 async function fitBenchModel() {
   const rows: FitRow[] = Array.from({ length: TRAINING_ROWS }, () => ({ values: Float64Array.from(sample()), segment: null }));
@@ -104,40 +49,6 @@ async function fitBenchModel() {
 // ---------------------------------------------------------------------------------------------
 // wrangler dev
 // ---------------------------------------------------------------------------------------------
-
-const quietEnv = { ...process.env, WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "false", WRANGLER_HIDE_BANNER: "true" };
-const wranglerBin = join(root, "node_modules/.bin/wrangler");
-
-async function freePort(): Promise<number> {
-  const server = createServer().listen(0, "127.0.0.1");
-  await once(server, "listening");
-  const port = (server.address() as AddressInfo).port;
-  server.close();
-  await once(server, "close");
-  return port;
-}
-
-function runToEnd(args: string[]): Promise<void> {
-  return new Promise((ok, fail) => {
-    const child = spawn(wranglerBin, args, { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] });
-    child.on("exit", (code) => (code === 0 ? ok() : fail(new Error(`wrangler ${args.slice(0, 3).join(" ")} exited with ${code}`))));
-  });
-}
-
-async function waitForHealth(url: string, child: ChildProcess): Promise<void> {
-  const deadline = Date.now() + 90_000;
-  while (Date.now() < deadline) {
-    if (child.exitCode !== null) throw new Error(`wrangler dev exited with ${child.exitCode}`);
-    try {
-      const response = await fetch(`${url}/v1/health`);
-      await response.arrayBuffer();
-      return;
-    } catch {
-      await new Promise((r) => setTimeout(r, 300));
-    }
-  }
-  throw new Error("wrangler dev did not answer within 90 s");
-}
 
 // ---------------------------------------------------------------------------------------------
 // Load cases
@@ -154,11 +65,6 @@ interface CaseResult {
   errors: number;
 }
 
-function percentile(sorted: Float64Array, q: number): number {
-  if (sorted.length === 0) return Number.NaN;
-  const index = Math.min(sorted.length - 1, Math.max(0, Math.ceil(q * sorted.length) - 1));
-  return sorted[index];
-}
 
 const payloads = Array.from({ length: 4096 }, () => sample().map((v) => Number(v.toFixed(4))));
 let counter = 0;

@@ -1,0 +1,118 @@
+/**
+ * What the load benchmarks (bench/worker-load.ts, bench/soak.ts) share: autocannon's typed slice,
+ * invented correlated-Gaussian payments, and running `wrangler dev` quietly on a free loopback port.
+ */
+import { spawn, type ChildProcess } from "node:child_process";
+import { once } from "node:events";
+import { createRequire } from "node:module";
+import { createServer, type AddressInfo } from "node:net";
+import { dirname, join, resolve } from "node:path";
+import { fileURLToPath } from "node:url";
+
+export const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
+
+// --- autocannon (no bundled types): the slice the benchmarks use ---------------------------
+
+export interface AutocannonRequest {
+  method: string;
+  path: string;
+  headers: Record<string, string>;
+  body?: string;
+}
+export interface AutocannonResult {
+  requests: { average: number; total: number };
+  latency: { p50: number; p99: number; average: number };
+  duration: number;
+  non2xx: number;
+  errors: number;
+  timeouts: number;
+}
+export interface AutocannonInstance extends Promise<AutocannonResult> {
+  on(event: "response", listener: (client: unknown, statusCode: number, bytes: number, responseTimeMs: number) => void): void;
+}
+/** Either a fixed `duration` (seconds) or a fixed `amount` of requests. */
+export type Autocannon = (options: {
+  url: string;
+  connections: number;
+  duration?: number;
+  amount?: number;
+  timeout?: number;
+  requests: { method: string; path: string; headers: Record<string, string>; setupRequest: (req: AutocannonRequest) => AutocannonRequest }[];
+}) => AutocannonInstance;
+export const autocannon = createRequire(import.meta.url)("autocannon") as Autocannon;
+
+// --- invented data ---------------------------------------------------------------------------
+
+/** Standard normals from a seeded mulberry32 stream (Box–Muller), for reproducible invented data. */
+export function seededNormal(seed: number): () => number {
+  let state = seed >>> 0;
+  const uniform = () => {
+    state = (state + 0x6d2b79f5) >>> 0;
+    let t = state;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
+}
+
+/**
+ * A correlated Gaussian over `features` columns named signal01, signal02, …: x = μ + L z with a fixed
+ * lower-triangular L (unit diagonal, off-diagonal `spread`·N(0,1)), so every feature correlates
+ * with the earlier ones; μ_i = `firstMean` + i.
+ */
+export function correlatedGaussian(features: number, seed: number, spread: number, firstMean: number): { names: string[]; sample: () => number[] } {
+  const names = Array.from({ length: features }, (_, i) => `signal${String(i + 1).padStart(2, "0")}`);
+  const normal = seededNormal(seed);
+  const loadings = names.map((_, i) => Array.from({ length: i + 1 }, (_, j) => (j === i ? 1 : spread * normal())));
+  const sample = () => {
+    const z = names.map(() => normal());
+    return loadings.map((row, i) => firstMean + i + row.reduce((s, l, j) => s + l * z[j], 0));
+  };
+  return { names, sample };
+}
+
+/** The q-quantile of ascending values (nearest rank); NaN when empty. */
+export function percentile(sorted: Float64Array, q: number): number {
+  if (sorted.length === 0) return Number.NaN;
+  return sorted[Math.min(sorted.length - 1, Math.max(0, Math.ceil(q * sorted.length) - 1))];
+}
+
+// --- wrangler ----------------------------------------------------------------------------------
+
+/** Quiet, offline wrangler: no telemetry, no Request.cf download, no banner. */
+export const quietEnv = { ...process.env, WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "false", WRANGLER_HIDE_BANNER: "true" };
+export const wranglerBin = join(root, "node_modules/.bin/wrangler");
+
+/** A loopback port nothing listens on right now. */
+export async function freePort(): Promise<number> {
+  const server = createServer().listen(0, "127.0.0.1");
+  await once(server, "listening");
+  const port = (server.address() as AddressInfo).port;
+  server.close();
+  await once(server, "close");
+  return port;
+}
+
+/** Runs a wrangler command to completion; rejects on a non-zero exit. */
+export function runToEnd(args: string[]): Promise<void> {
+  return new Promise((ok, fail) => {
+    const child = spawn(wranglerBin, args, { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] });
+    child.on("exit", (code) => (code === 0 ? ok() : fail(new Error(`wrangler ${args.slice(0, 3).join(" ")} exited with ${code}`))));
+  });
+}
+
+/** Waits until `wrangler dev` answers /v1/health (any status), for at most 90 s. */
+export async function waitForHealth(url: string, child: ChildProcess): Promise<void> {
+  const deadline = Date.now() + 90_000;
+  while (Date.now() < deadline) {
+    if (child.exitCode !== null) throw new Error(`wrangler dev exited with ${child.exitCode}`);
+    try {
+      await (await fetch(`${url}/v1/health`)).arrayBuffer();
+      return;
+    } catch {
+      await new Promise((r) => setTimeout(r, 300));
+    }
+  }
+  throw new Error("wrangler dev did not answer within 90 s");
+}
