@@ -1,7 +1,8 @@
 /*
  * Reference for the scoring-kernel benchmark: the computation of shared-model's `mahalanobisSq`
  * (diff = x − μ, then the symmetric half of Λ) as the straightforward C loop, compiled with -O3
- * (gcc vectorizes the multiplies). The TypeScript kernel computes the same sums, four rows at a time.
+ * (without -ffast-math gcc keeps the sums scalar and in order). The TypeScript kernel computes the same sums on a layout prepared
+ * once per model (shared-model/src/quadratic-form.ts), four rows at a time.
  * Usage: kernel <n> <seconds>. Prints one JSON object: {"n":…, "vectorsPerSecond":…, "checksum":…}.
  * Inputs come from the same xorshift generator as bench/kernel.ts, so both sides score equal data.
  */

@@ -8,6 +8,7 @@ import { createRequire } from "node:module";
 import { createServer, type AddressInfo } from "node:net";
 import { dirname, join, resolve } from "node:path";
 import { fileURLToPath } from "node:url";
+import { mulberry32 } from "../shared-model/src/seeded-stream";
 
 export const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 
@@ -37,24 +38,18 @@ export type Autocannon = (options: {
   duration?: number;
   amount?: number;
   timeout?: number;
-  requests: { method: string; path: string; headers: Record<string, string>; setupRequest: (req: AutocannonRequest) => AutocannonRequest }[];
+  requests: {
+    method: string;
+    path: string;
+    headers: Record<string, string>;
+    setupRequest: (req: AutocannonRequest) => AutocannonRequest;
+    /** Called with each answer's status and body. */
+    onResponse?: (status: number, body: string) => void;
+  }[];
 }) => AutocannonInstance;
 export const autocannon = createRequire(import.meta.url)("autocannon") as Autocannon;
 
 // --- invented data ---------------------------------------------------------------------------
-
-/** Standard normals from a seeded mulberry32 stream (Box–Muller), for reproducible invented data. */
-export function seededNormal(seed: number): () => number {
-  let state = seed >>> 0;
-  const uniform = () => {
-    state = (state + 0x6d2b79f5) >>> 0;
-    let t = state;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
-}
 
 /**
  * A correlated Gaussian over `features` columns named signal01, signal02, …: x = μ + L z with a fixed
@@ -63,7 +58,7 @@ export function seededNormal(seed: number): () => number {
  */
 export function correlatedGaussian(features: number, seed: number, spread: number, firstMean: number): { names: string[]; sample: () => number[] } {
   const names = Array.from({ length: features }, (_, i) => `signal${String(i + 1).padStart(2, "0")}`);
-  const normal = seededNormal(seed);
+  const normal = mulberry32(seed).normal;
   const loadings = names.map((_, i) => Array.from({ length: i + 1 }, (_, j) => (j === i ? 1 : spread * normal())));
   const sample = () => {
     const z = names.map(() => normal());

@@ -12,7 +12,7 @@ const root = new URL("../", import.meta.url);
 const resultsDir = new URL("bench/results/", root);
 mkdirSync(resultsDir, { recursive: true });
 
-console.log("scoring kernel (d² over the symmetric half of the precision matrix), 1.5 s per side and size");
+console.log("scoring kernel (d² over the symmetric half of the precision matrix), best of 3 alternating 1 s rounds per side and size");
 const kernel = benchKernel();
 for (const k of kernel) {
   const c = k.cVectorsPerSecond === null ? "C compiler unavailable" : `C -O3 ${k.cVectorsPerSecond.toLocaleString("en")} /s, ratio ${k.ratioToC}`;
@@ -47,9 +47,17 @@ console.log(`written bench/results/core.json`);
 // Service benchmarks live beside this one; run them when present.
 // `npm run bench -- --core` stops here: the model core's figures only, in about a minute.
 const coreOnly = process.argv.includes("--core");
-for (const script of coreOnly ? [] : ["worker-load.ts", "review-ui.ts", "soak.ts"]) {
+// The soak runs twice: on /v1/echo first, a control that shows the local simulator's own memory
+// growth under the same load, then the measured soak on /v1/score with review traffic.
+const serviceRuns: { script: string; env?: Record<string, string> }[] = [
+  { script: "worker-load.ts" },
+  { script: "review-ui.ts" },
+  { script: "soak.ts", env: { SOAK_ROUTE: "echo", SOAK_REVIEW: "off" } },
+  { script: "soak.ts" },
+];
+for (const { script, env } of coreOnly ? [] : serviceRuns) {
   if (existsSync(new URL(script, import.meta.url))) {
-    console.log(`\n— ${script} —`);
-    execFileSync(process.execPath, ["bin/run-ts.js", `bench/${script}`], { cwd: root, stdio: "inherit" });
+    console.log(`\n— ${script}${env ? ` ${Object.entries(env).map(([k, v]) => `${k}=${v}`).join(" ")}` : ""} —`);
+    execFileSync(process.execPath, ["bin/run-ts.js", `bench/${script}`], { cwd: root, stdio: "inherit", env: { ...process.env, ...env } });
   }
 }

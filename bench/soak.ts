@@ -5,13 +5,19 @@
  * - SOAK_REQUESTS scoring calls (default 200,000) at SOAK_CONNECTIONS (default 48) with autocannon's
  *   `amount`, each with a fresh transactionId, so every call is scored and every flag handed off.
  * - Zero errors required: any non-2xx, socket error or timeout fails the run (exit code 1).
- * - Memory: resident set size of the workerd process that wrangler starts, read from
- *   /proc/<pid>/status after a warm-up and again after the soak (after a short settle); the
- *   difference must stay within 10 % of the warmed-up figure. Peak RSS is sampled once a second.
+ * - Worker memory: the V8 heap of the worker's isolate after a full collection (bench/isolate-heap.ts,
+ *   over `--inspector-port`), read after a warm-up and again after the soak; the difference must
+ *   stay within 10 % of the warmed-up figure. The heap without collection is sampled every 10 s.
+ * - Process memory: resident set size of each workerd process wrangler starts (/proc/<pid>/status),
+ *   before, after and every 5 s, reported beside the heap. It also holds the simulator's own state
+ *   (local D1/KV SQLite caches, in-memory queues, allocator arenas); `SOAK_ROUTE=echo` runs the same
+ *   load against `/v1/echo`, which stores nothing, to show how much of its growth is the simulator.
  * - Review traffic: bench/soak-review.ts in its own Node process works the queue as an analyst for
- *   as long as the soak runs; its counts and latencies are part of the summary.
+ *   as long as the soak runs; its counts and latencies are part of the summary (`SOAK_REVIEW=off`
+ *   leaves it out, for diagnosis).
  *
- * Writes bench/results/soak.json. Environment: SOAK_REQUESTS, SOAK_CONNECTIONS, PORT.
+ * Writes bench/results/soak.json (soak-echo.json for the echo route). Environment: SOAK_REQUESTS,
+ * SOAK_CONNECTIONS, SOAK_WARM_UP, SOAK_ROUTE (score | echo), SOAK_REVIEW (on | off), PORT.
  */
 import { spawn, type ChildProcess } from "node:child_process";
 import { once } from "node:events";
@@ -20,8 +26,10 @@ import { cpus, tmpdir } from "node:os";
 import { join } from "node:path";
 import { randomBytes } from "node:crypto";
 import { publishCommand } from "../cli/commands/publish";
+import { bundleWorker } from "../scripts/bundle-worker";
 import type { CommandIO } from "../cli/io";
 import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
+import { isolateHeap } from "./isolate-heap";
 import { autocannon, correlatedGaussian, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
 const TOTAL = Number(process.env.SOAK_REQUESTS ?? 200_000);
@@ -29,6 +37,9 @@ const CONNECTIONS = Number(process.env.SOAK_CONNECTIONS ?? 48);
 const FEATURES = 16;
 const MEMORY_TOLERANCE = 0.1;
 const WARM_UP = Number(process.env.SOAK_WARM_UP ?? 20_000);
+const ROUTE = process.env.SOAK_ROUTE ?? "score";
+const REVIEW = (process.env.SOAK_REVIEW ?? "on") !== "off";
+if (ROUTE !== "score" && ROUTE !== "echo") throw new Error(`SOAK_ROUTE must be score or echo. Actual: ${ROUTE}`);
 
 // Invented data: a correlated Gaussian in 16 dimensions.
 const { names, sample } = correlatedGaussian(FEATURES, 16, 0.3, 5);
@@ -41,21 +52,10 @@ const { names, sample } = correlatedGaussian(FEATURES, 16, 0.3, 5);
  * (wrangler dev watches them) cannot reload the worker half-way through the measurement.
  */
 async function frozenConfig(dir: string): Promise<string> {
-  const { build } = await import("esbuild");
   // Its own folder: wrangler dev watches the entry's folder, and the state folder changes constantly.
   mkdirSync(join(dir, "frozen"), { recursive: true });
   const bundle = join(dir, "frozen", "worker.js");
-  await build({
-    entryPoints: [join(root, "worker/src/index.ts")],
-    bundle: true,
-    format: "esm",
-    platform: "neutral",
-    target: "es2022",
-    conditions: ["workerd", "worker", "browser"],
-    mainFields: ["module", "main"],
-    outfile: bundle,
-    logLevel: "silent",
-  });
+  await bundleWorker(root, bundle);
   const original = readFileSync(join(root, "wrangler.toml"), "utf8");
   // The review app's files too: a rebuild of review-ui/dist during the soak would restart workerd.
   const assets = join(dir, "frozen-assets");
@@ -133,19 +133,23 @@ async function score(url: string, token: string, amount: number, onTime?: (ms: n
     requests: [
       {
         method: "POST",
-        path: "/v1/score",
+        path: `/v1/${ROUTE}`,
         headers: { "content-type": "application/json", authorization: `Bearer ${token}` },
         setupRequest: (req) => ({ ...req, body: nextBody() }),
+        onResponse: (status, body) => {
+          if ((status < 200 || status >= 300) && refusals.length < 5) refusals.push(`${status} ${body.slice(0, 300)}`);
+        },
       },
     ],
   });
   const statuses = new Map<number, number>();
+  const refusals: string[] = [];
   instance.on("response", (_c, status, _b, ms) => {
     statuses.set(status, (statuses.get(status) ?? 0) + 1);
     if (status >= 200 && status < 300) onTime?.(ms);
   });
   const result = await instance;
-  return { result, statuses: Object.fromEntries(statuses) };
+  return { result, statuses: Object.fromEntries(statuses), refusals };
 }
 
 const r2 = (x: number) => Math.round(x * 100) / 100;
@@ -177,11 +181,12 @@ try {
   await runToEnd(["d1", "migrations", "apply", "isodense-review", "--local", "--persist-to", state, "--config", config]);
 
   const port = Number(process.env.PORT ?? (await freePort()));
+  const inspectorPort = await freePort();
   const url = `http://127.0.0.1:${port}`;
   console.log(`starting wrangler dev on ${url}`);
   wrangler = spawn(
     wranglerBin,
-    ["dev", "--config", config, "--no-bundle", "--ip", "127.0.0.1", "--port", String(port), "--persist-to", state, "--env-file", envFile, "--show-interactive-dev-session=false", "--log-level", "warn"],
+    ["dev", "--config", config, "--no-bundle", "--ip", "127.0.0.1", "--port", String(port), "--inspector-port", String(inspectorPort), "--persist-to", state, "--env-file", envFile, "--show-interactive-dev-session=false", "--log-level", "warn"],
     { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] },
   );
   await waitForHealth(url, wrangler);
@@ -206,6 +211,12 @@ try {
   };
   rssAll();
   const pidsAtStart = () => workerDescendantsKey();
+  /** VmRSS per live workerd process, MiB. */
+  function rssByPid(): Record<number, number> {
+    const byPid: Record<number, number> = {};
+    for (const pid of workerdDescendants(wranglerPid)) byPid[pid] = r2(rssMiB(pid));
+    return byPid;
+  }
   function workerDescendantsKey(): string {
     return workerdDescendants(wranglerPid).sort((a, b) => a - b).join(",");
   }
@@ -214,59 +225,69 @@ try {
   // heap and SQLite's page cache reach their working size, so "before" is the steady state.
   console.log(`warming up with ${WARM_UP.toLocaleString("en")} calls`);
   const warm = await score(url, flowToken, WARM_UP);
-  console.log(`warm-up statuses: ${JSON.stringify(warm.statuses)}`);
+  console.log(`warm-up statuses: ${JSON.stringify(warm.statuses)}${warm.refusals.length ? `; first refusals: ${warm.refusals.join(" | ")}` : ""}`);
   await new Promise((r) => setTimeout(r, 2000));
+  // RSS first: the heap snapshot that forces the collection costs workerd memory of its own.
   const rssBefore = rssAll();
+  const rssBeforeByPid = rssByPid();
+  const heapBefore = await isolateHeap(inspectorPort, true);
   const pidsBefore = pidsAtStart();
 
   const reviewOut = join(work, "review.json");
-  reviewer = spawn(process.execPath, ["bin/run-ts.js", "bench/soak-review.ts", url, analystToken, reviewOut], { cwd: root, stdio: ["ignore", "inherit", "inherit"] });
+  if (REVIEW) reviewer = spawn(process.execPath, ["bin/run-ts.js", "bench/soak-review.ts", url, analystToken, reviewOut], { cwd: root, stdio: ["ignore", "inherit", "inherit"] });
 
   let rssPeak = rssBefore;
   // RSS per workerd process every 5 s, to tell a plateau (V8 and SQLite growing to their working
   // size) from steady growth, and which process grows.
-  const timeline: { seconds: number; rssMiBByPid: Record<number, number> }[] = [];
+  const timeline: { seconds: number; rssMiBByPid: Record<number, number>; heapUsedMiB?: number }[] = [];
   const soakStart = Date.now();
   let ticks = 0;
   const sampler = setInterval(() => {
     try {
       rssPeak = Math.max(rssPeak, rssAll());
       if (ticks++ % 5 === 0) {
-        const byPid: Record<number, number> = {};
-        for (const pid of workerdDescendants(wranglerPid)) byPid[pid] = r2(rssMiB(pid));
-        timeline.push({ seconds: Math.round((Date.now() - soakStart) / 1000), rssMiBByPid: byPid });
+        const point: (typeof timeline)[number] = { seconds: Math.round((Date.now() - soakStart) / 1000), rssMiBByPid: rssByPid() };
+        timeline.push(point);
+        // The isolate's heap as it is (no collection, which would pause the worker under load).
+        if (ticks % 10 === 1) void isolateHeap(inspectorPort, false, 5000).then((h) => (point.heapUsedMiB = h.usedMiB), () => undefined);
       }
     } catch {
       /* the process may be between reads */
     }
   }, 1000);
-  console.log(`soaking: ${TOTAL.toLocaleString("en")} /v1/score calls at ${CONNECTIONS} connections (RSS before ${r2(rssBefore)} MiB)`);
+  console.log(`soaking: ${TOTAL.toLocaleString("en")} /v1/${ROUTE} calls at ${CONNECTIONS} connections (RSS before ${r2(rssBefore)} MiB)`);
   const times: number[] = [];
   const started = Date.now();
   const soak = await score(url, flowToken, TOTAL, (ms) => times.push(ms));
   const seconds = (Date.now() - started) / 1000;
   clearInterval(sampler);
 
-  if (reviewer.exitCode === null) {
+  if (reviewer && reviewer.exitCode === null) {
     reviewer.kill("SIGTERM");
     await once(reviewer, "exit");
   }
-  const review = JSON.parse(readFileSync(reviewOut, "utf8")) as { errors: number } & Record<string, unknown>;
+  const review = reviewer ? (JSON.parse(readFileSync(reviewOut, "utf8")) as { errors: number } & Record<string, unknown>) : { errors: 0, skipped: "SOAK_REVIEW=off" };
   await new Promise((r) => setTimeout(r, 3000));
   const rssAfter = rssAll();
+  const rssAfterByPid = rssByPid();
+  const heapAfter = await isolateHeap(inspectorPort, true);
   // A workerd restart (wrangler restarts it on a crash or a reload) makes before/after meaningless.
   const restarted = pidsAtStart() !== pidsBefore;
 
   const sorted = Float64Array.from(times).sort();
   const errors = soak.result.non2xx + soak.result.errors + soak.result.timeouts;
-  const memoryChange = (rssAfter - rssBefore) / rssBefore;
+  const heapChange = (heapAfter.usedMiB - heapBefore.usedMiB) / heapBefore.usedMiB;
+  const rssChange = (rssAfter - rssBefore) / rssBefore;
   const summary = {
     measuredAt: new Date().toISOString(),
     machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version },
     setup: {
       warmUpCalls: WARM_UP,
       warmUpStatuses: warm.statuses,
+      warmUpRefusals: warm.refusals,
       server: "wrangler dev (local simulator) on 127.0.0.1; autocannon and the review process on the same machine",
+      route: `/v1/${ROUTE}`,
+      reviewTraffic: REVIEW,
       model: { version: artifact.version, features: FEATURES, covarianceShape: artifact.covarianceShape },
       connections: CONNECTIONS,
       body: `${FEATURES} features, fresh transactionId per call`,
@@ -281,27 +302,39 @@ try {
       latencyMs: { p50: r2(percentile(sorted, 0.5)), p90: r2(percentile(sorted, 0.9)), p99: r2(percentile(sorted, 0.99)), max: r2(sorted[sorted.length - 1]) },
     },
     memory: {
-      process: "workerd (child of wrangler dev), VmRSS from /proc",
-      pids: [...workerds],
-      beforeMiB: r2(rssBefore),
-      afterMiB: r2(rssAfter),
-      peakMiB: r2(rssPeak),
-      change: Number(memoryChange.toFixed(4)),
       tolerance: MEMORY_TOLERANCE,
+      isolateHeap: {
+        what: "V8 heap in use by the worker's isolate after a full collection (DevTools protocol over --inspector-port)",
+        beforeMiB: heapBefore.usedMiB,
+        afterMiB: heapAfter.usedMiB,
+        change: Number(heapChange.toFixed(4)),
+      },
+      processRss: {
+        what: "VmRSS of the workerd processes under wrangler dev (/proc): the worker and wrangler's proxy, with the simulator's state",
+        pids: [...workerds],
+        beforeMiB: r2(rssBefore),
+        afterMiB: r2(rssAfter),
+        beforeMiBByPid: rssBeforeByPid,
+        afterMiBByPid: rssAfterByPid,
+        peakMiB: r2(rssPeak),
+        change: Number(rssChange.toFixed(4)),
+      },
       workerdRestarted: restarted,
       timeline,
     },
     review,
-    met: { allScored: times.length === TOTAL && errors === 0, memory: !restarted && Math.abs(memoryChange) <= MEMORY_TOLERANCE, reviewErrors: review.errors === 0 },
+    met: { allScored: times.length === TOTAL && errors === 0, memory: !restarted && Math.abs(heapChange) <= MEMORY_TOLERANCE, reviewErrors: review.errors === 0 },
   };
   mkdirSync(join(root, "bench/results"), { recursive: true });
-  writeFileSync(join(root, "bench/results/soak.json"), JSON.stringify(summary, null, 2) + "\n");
+  const resultFile = ROUTE === "score" ? "soak.json" : `soak-${ROUTE}.json`;
+  writeFileSync(join(root, "bench/results", resultFile), JSON.stringify(summary, null, 2) + "\n");
   console.log(
     `scored ${times.length.toLocaleString("en")} / ${TOTAL.toLocaleString("en")} in ${r2(seconds)} s (${summary.score.requestsPerSecond} req/s), errors ${errors}, ` +
-      `p50 ${summary.score.latencyMs.p50} ms, p99 ${summary.score.latencyMs.p99} ms; workerd RSS ${summary.memory.beforeMiB} → ${summary.memory.afterMiB} MiB ` +
-      `(${(memoryChange * 100).toFixed(1)} %, peak ${summary.memory.peakMiB}); review: ${JSON.stringify(review)}`,
+      `p50 ${summary.score.latencyMs.p50} ms, p99 ${summary.score.latencyMs.p99} ms; isolate heap ${heapBefore.usedMiB} → ${heapAfter.usedMiB} MiB ` +
+      `(${(heapChange * 100).toFixed(1)} %); workerd RSS ${r2(rssBefore)} → ${r2(rssAfter)} MiB (${(rssChange * 100).toFixed(1)} %, peak ${r2(rssPeak)}); ` +
+      `review: ${JSON.stringify(review)}`,
   );
-  console.log("written bench/results/soak.json");
+  console.log(`written bench/results/${resultFile}`);
   failed = !(summary.met.allScored && summary.met.memory && summary.met.reviewErrors);
   if (failed) console.error(`soak targets NOT met: ${JSON.stringify(summary.met)}`);
 } finally {

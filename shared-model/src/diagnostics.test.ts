@@ -2,20 +2,8 @@ import fc from "fast-check";
 import { describe, expect, it } from "vitest";
 import { diagnoseColumns, diagnoseCovariance, diagnoseRowCount, FitRefusal, refuseIfErrors } from "./diagnostics";
 import { MomentAccumulator } from "./moments";
+import { mulberry32 } from "./seeded-stream";
 import type { Diagnostic } from "./types";
-
-/** Deterministic standard normal stream (mulberry32 + Box–Muller) for invented test data. */
-function normalStream(seed: number): { normal: () => number; uniform: () => number } {
-  let a = seed >>> 0;
-  const uniform = () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  return { uniform, normal: () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform()) };
-}
 
 /** Moments of generated rows. */
 function momentsOf(m: number, n: number, row: (r: number) => number[]): MomentAccumulator {
@@ -66,7 +54,7 @@ function equationMisfit(equation: string, columns: string[], data: number[][]): 
 
 /** Invented checkout data: subtotal, shipping fee, total = subtotal + shipping, items, account age in days. */
 function checkoutRows(m: number, seed: number): number[][] {
-  const { normal, uniform } = normalStream(seed);
+  const { normal, uniform } = mulberry32(seed);
   return Array.from({ length: m }, () => {
     const subtotal = Math.round(Math.exp(3.8 + 0.7 * normal()) * 100) / 100;
     const shipping = [0, 4.95, 9.9, 14.5][Math.floor(uniform() * 4)];
@@ -115,7 +103,7 @@ describe("diagnoseRowCount", () => {
 
 describe("diagnoseColumns", () => {
   it("names a constant column with its value and the remedy to drop the feature", () => {
-    const { normal } = normalStream(11);
+    const { normal } = mulberry32(11);
     const acc = momentsOf(50, 3, () => [normal(), 840, normal()]);
     const found = diagnoseColumns(acc, ["amount_log", "currency_code", "items"]);
     expect(found).toEqual([
@@ -130,7 +118,7 @@ describe("diagnoseColumns", () => {
   });
 
   it("names every constant column and nothing else", () => {
-    const { normal } = normalStream(12);
+    const { normal } = mulberry32(12);
     const acc = momentsOf(30, 4, () => [0, normal(), -2.5, normal()]);
     expect(diagnoseColumns(acc, ["a", "b", "c", "d"]).map((d) => d.columns)).toEqual([["a"], ["c"]]);
     const varied = momentsOf(30, 2, () => [normal(), normal()]);
@@ -158,7 +146,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("warns above 1e10 and, when only the units differ, suggests a transform instead of calling it a dependency", () => {
-    const { normal } = normalStream(21);
+    const { normal } = mulberry32(21);
     // Seconds since the previous payment (spread ~1e6) beside a shipping share (spread ~1e-2).
     const acc = momentsOf(500, 2, () => [3e6 + 1e6 * normal(), 0.1 + 0.01 * normal()]);
     const { conditionNumber, diagnostics } = diagnoseCovariance(acc.covariance(), 2, ["gap_seconds", "shipping_share"], { mean: acc.mean });
@@ -194,7 +182,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("names the planted column c = 2·a − b + 3 with its intercept", () => {
-    const { normal } = normalStream(5);
+    const { normal } = mulberry32(5);
     const rows = Array.from({ length: 300 }, () => {
       const a = 10 + 2 * normal();
       const b = 4 + 2 * normal();
@@ -213,7 +201,7 @@ describe("diagnoseCovariance", () => {
         fc.double({ min: -3, max: 3, noNaN: true }),
         fc.double({ min: -3, max: 3, noNaN: true }),
         (seed, m, logScaleA, logScaleB) => {
-          const { normal } = normalStream(seed);
+          const { normal } = mulberry32(seed);
           const sa = 10 ** logScaleA;
           const sb = 10 ** logScaleB;
           const data = Array.from({ length: m }, () => {
@@ -247,7 +235,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("names a copied column as a copy of the earlier one", () => {
-    const { normal } = normalStream(3);
+    const { normal } = mulberry32(3);
     const rows = Array.from({ length: 100 }, () => {
       const a = 50 + 10 * normal();
       return [a, normal(), a];
@@ -266,7 +254,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("gives dependencies that share a column distinct subjects, each equation holding on the data", () => {
-    const { normal } = normalStream(17);
+    const { normal } = mulberry32(17);
     const columns = ["a", "b", "c", "d"];
     const data = Array.from({ length: 200 }, () => {
       const a = 1 + normal();
@@ -286,7 +274,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("leaves the intercept out when no mean is given", () => {
-    const { normal } = normalStream(8);
+    const { normal } = mulberry32(8);
     const rows = Array.from({ length: 80 }, () => {
       const a = 100 + normal();
       return [a, a + 7];
@@ -299,7 +287,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("does not call independent columns of very different units dependent", () => {
-    const { normal } = normalStream(4);
+    const { normal } = mulberry32(4);
     const acc = momentsOf(300, 3, () => [1e5 * normal(), 1e-4 * normal(), normal()]);
     const { diagnostics } = diagnoseCovariance(acc.covariance(), 3, ["cents", "share", "z"], { mean: acc.mean });
     expect(dependencies(diagnostics)).toEqual([]);
@@ -317,7 +305,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("blames too few rows, not the features, when rows < n+1", () => {
-    const { normal } = normalStream(6);
+    const { normal } = mulberry32(6);
     const acc = momentsOf(4, 6, () => Array.from({ length: 6 }, normal));
     const { diagnostics } = diagnoseCovariance(acc.covariance(), 6, ["a", "b", "c", "d", "e", "f"], { mean: acc.mean, rows: 4 });
     expect(dependencies(diagnostics)).toEqual([]);
@@ -327,7 +315,7 @@ describe("diagnoseCovariance", () => {
   });
 
   it("counts a constant column toward the singularity without calling it a dependency", () => {
-    const { normal } = normalStream(14);
+    const { normal } = mulberry32(14);
     const acc = momentsOf(60, 3, () => [normal(), 840, normal()]);
     const { diagnostics, conditionNumber } = diagnoseCovariance(acc.covariance(), 3, ["a", "currency_code", "b"], { mean: acc.mean });
     expect(conditionNumber).toBe(Number.POSITIVE_INFINITY);

@@ -14,6 +14,7 @@ import {
 } from "./estimators";
 import { cholesky } from "./linalg";
 import { MomentAccumulator } from "./moments";
+import { mulberry32 } from "./seeded-stream";
 import type { EstimatorDetails } from "./types";
 import { expectRelativelyClose } from "./test-support";
 
@@ -27,23 +28,9 @@ function csvRows(file: string, from: number, to: number): number[][] {
   return lines.map((line) => line.split(",").slice(1 + from, 1 + to).map(Number));
 }
 
-
 function shrinkageOf(details: EstimatorDetails): number {
   if (details.estimator !== "shrinkage") throw new Error(`expected shrinkage details, got ${details.estimator}`);
   return details.shrinkage;
-}
-
-/** Deterministic standard normal stream (mulberry32 + Box–Muller) for invented test data. */
-function normalStream(seed: number): () => number {
-  let a = seed >>> 0;
-  const uniform = () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
 }
 
 /**
@@ -127,7 +114,7 @@ describe("Ledoit–Wolf shrinkage", () => {
   it("agrees with the paper's definition of the intensity computed row by row (property)", () => {
     fc.assert(
       fc.property(fc.integer({ min: 2, max: 6 }), fc.integer({ min: 2, max: 40 }), fc.integer(), (n, m, seed) => {
-        const next = normalStream(seed);
+        const next = mulberry32(seed).normal;
         const rows = Array.from({ length: m }, () => Array.from({ length: n }, (_, j) => (j + 1) * next() + 10 * j));
         const est = ledoitWolfFromRows(Float64Array.from(rows.flat()), m, n);
         const byDefinition = intensityByDefinition(rows);
@@ -161,7 +148,7 @@ describe("Ledoit–Wolf shrinkage", () => {
   });
 
   it("keeps the covariance positive definite with fewer rows than columns, where the classical one is singular", () => {
-    const next = normalStream(20261201);
+    const next = mulberry32(20261201).normal;
     const m = 6;
     const n = 10;
     const rows = Float64Array.from({ length: m * n }, () => next());

@@ -15,23 +15,12 @@ import {
   yeoJohnson,
   yeoJohnsonInverse,
 } from "./features";
+import { mulberry32 } from "./seeded-stream";
 import type { FeatureDeclaration, FittedFeature } from "./types";
-
-/** Small seeded generator (mulberry32) so the invented samples are the same on every run. */
-function seededUniform(seed: number): () => number {
-  let state = seed >>> 0;
-  return () => {
-    state = (state + 0x6d2b79f5) >>> 0;
-    let t = state;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return (((t ^ (t >>> 14)) >>> 0) + 0.5) / 4294967296; // in (0, 1)
-  };
-}
 
 /** Invented payment amounts: lognormal with median e^mu, by inverse-CDF sampling. */
 function lognormalSample(m: number, mu: number, sigma: number, seed: number): Float64Array {
-  const uniform = seededUniform(seed);
+  const uniform = mulberry32(seed).uniformOpen;
   const out = new Float64Array(m);
   for (let i = 0; i < m; i++) out[i] = Math.exp(mu + sigma * normalQuantile(uniform()));
   return out;
@@ -318,7 +307,7 @@ describe("fitYeoJohnsonLambda", () => {
 
   it("fits a sample with many zeros and keeps every zero at 0", () => {
     // Invented counts of previous chargebacks: mostly 0, a skewed tail.
-    const uniform = seededUniform(5);
+    const uniform = mulberry32(5).uniformOpen;
     const counts = Float64Array.from({ length: 600 }, () => (uniform() < 0.6 ? 0 : Math.floor(Math.exp(2 * uniform()))));
     const lambda = fitYeoJohnsonLambda(counts);
     expect(lambda).toBeGreaterThanOrEqual(-5);

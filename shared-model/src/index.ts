@@ -9,6 +9,7 @@ export * from "./mcd";
 export * from "./random";
 export * from "./diagnostics";
 export * from "./artifact";
+export * from "./quadratic-form";
 export * from "./score";
 export * from "./reasons";
 export * from "./cutoff";

@@ -6,6 +6,7 @@ import { buildSegment, parseArtifact } from "./artifact";
 import type { ModelArtifact } from "./artifact";
 import { chiSquareSurvival } from "./distributions";
 import { fromRows } from "./linalg";
+import { kernelScratch, mahalanobisSqPacked, packQuadraticForm } from "./quadratic-form";
 import {
   ScoreInputError,
   Scorer,
@@ -15,7 +16,7 @@ import {
   rawVectorFromRecord,
   selectSegment,
 } from "./score";
-import { fitted, jsonCopy, parseCsv, sealedFixture, spdFrom } from "./test-support";
+import { fitted, jsonCopy, parseCsv, sealedFixture, spdCases, spdFrom } from "./test-support";
 import type { FixtureOptions } from "./test-support";
 
 const referenceData = (file: string): URL => new URL(`../../../shared/reference-data/${file}`, import.meta.url);
@@ -114,26 +115,22 @@ function naiveMahalanobisSq(precision: Float64Array, mean: Float64Array, x: Arra
   return total;
 }
 
-const spdCase = fc.integer({ min: 1, max: 10 }).chain((n) =>
-  fc.record({
-    n: fc.constant(n),
-    entries: fc.array(fc.double({ min: -1, max: 1, noNaN: true }), { minLength: n * n, maxLength: n * n }),
-    mean: fc.array(fc.double({ min: -50, max: 50, noNaN: true }), { minLength: n, maxLength: n }),
-    x: fc.array(fc.double({ min: -50, max: 50, noNaN: true }), { minLength: n, maxLength: n }),
-  }),
-);
+const spdCase = spdCases(10);
 
 describe("mahalanobisSq kernel", () => {
-  it("equals the naive full double loop on random symmetric positive definite precisions", () => {
+  it("both kernels (row-major and packed) equal the naive full double loop on random positive definite precisions", () => {
+    // Sizes up to 37 cover the packed kernel's groups of four and every remainder (n mod 4).
     fc.assert(
-      fc.property(spdCase, ({ n, entries, mean, x }) => {
+      fc.property(spdCases(37), ({ n, entries, mean, x }) => {
         const precision = spdFrom(entries, n, 0.1);
         const mu = Float64Array.from(mean);
-        const got = mahalanobisSq(precision, mu, x, n, new Float64Array(n));
         const want = naiveMahalanobisSq(precision, mu, x, n);
-        expect(Math.abs(got - want)).toBeLessThanOrEqual(1e-12 * Math.max(1, want));
+        const rowMajor = mahalanobisSq(precision, mu, x, n, new Float64Array(n));
+        const packed = mahalanobisSqPacked(packQuadraticForm(precision, mu, n), Float64Array.from(x), kernelScratch(n));
+        expect(Math.abs(rowMajor - want)).toBeLessThanOrEqual(1e-12 * Math.max(1, want));
+        expect(Math.abs(packed - want)).toBeLessThanOrEqual(1e-12 * Math.max(1, want));
       }),
-      { numRuns: 300 },
+      { numRuns: 400 },
     );
   });
 

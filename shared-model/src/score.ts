@@ -8,6 +8,7 @@ import type { ModelArtifact } from "./artifact";
 import { chiSquareSurvival } from "./distributions";
 import { checkRawValue, transformInto } from "./features";
 import { fromRows } from "./linalg";
+import { kernelScratch, mahalanobisSqPacked, packQuadraticForm, type PackedQuadraticForm } from "./quadratic-form";
 import { conditionalReasons } from "./reasons";
 import type { FittedFeature, Reason, ScoreResult, SegmentModel } from "./types";
 
@@ -98,8 +99,9 @@ export function selectSegment(model: CompiledModel, segment?: string | null): Se
  *
  * Rows are taken four at a time (register blocking): each diff_j loaded in the inner loop feeds
  * four independent multiply-adds, which cuts loads and bounds checks per multiply-add and gives
- * the CPU four accumulation chains to overlap — about twice the speed of the plain loop at n = 32
- * (bench/kernel.ts). The 4×4 diagonal block of each group is summed explicitly.
+ * the CPU four accumulation chains to overlap. The 4×4 diagonal block of each group is summed
+ * explicitly. This kernel reads Λ as it is (the fit uses it); the Scorer uses the same sums on a
+ * layout prepared once per model, `mahalanobisSqPacked` in quadratic-form.ts, which is faster.
  * @param precision Λ, n×n row-major, symmetric (only the upper triangle and diagonal are read)
  * @param diff scratch of length ≥ n, overwritten
  * @example mahalanobisSq(Float64Array.of(1, 0, 0, 4), Float64Array.of(0, 0), [1, 1], 2, new Float64Array(2)) // 5
@@ -175,22 +177,35 @@ export function mahalanobisSqDiagonal(
 }
 
 /**
- * Scores payments against a compiled model. Holds scratch buffers (transformed vector x and
- * x − μ), so `score` allocates only its result object. Not re-entrant: use one Scorer per
- * concurrent caller (JavaScript's single thread makes one per worker isolate enough).
+ * Scores payments against a compiled model. Lays out every segment's precision for the packed
+ * kernel once (quadratic-form.ts) and holds scratch buffers (transformed vector x and x − μ), so
+ * `score` allocates only its result object. Not re-entrant: use one Scorer per concurrent caller
+ * (JavaScript's single thread makes one per worker isolate enough).
  */
 export class Scorer {
   readonly model: CompiledModel;
   private readonly x: Float64Array;
   private readonly diff: Float64Array;
-  private readonly kernel: typeof mahalanobisSq;
+  private readonly scratch: number[];
+  private readonly diagonal: boolean;
+  private readonly forms = new Map<SegmentModel, PackedQuadraticForm>();
 
   constructor(model: CompiledModel) {
     this.model = model;
     this.x = new Float64Array(model.n);
     this.diff = new Float64Array(model.n);
+    this.scratch = kernelScratch(model.n);
     // A diagonal model has exact zeros off the diagonal, so the O(n) kernel gives the same d².
-    this.kernel = model.artifact.covarianceShape === "diagonal" ? mahalanobisSqDiagonal : mahalanobisSq;
+    this.diagonal = model.artifact.covarianceShape === "diagonal";
+    if (!this.diagonal) for (const seg of model.segments.values()) this.forms.set(seg, packQuadraticForm(seg.precision, seg.mean, seg.n));
+  }
+
+  /** d² of the transformed vector x (a Float64Array, to keep the kernel monomorphic) under seg. */
+  private distanceSq(seg: SegmentModel, x: Float64Array): number {
+    if (this.diagonal) return mahalanobisSqDiagonal(seg.precision, seg.mean, x, seg.n, this.diff);
+    // A segment model from elsewhere (not one of this model's) is laid out for this call only.
+    const form = this.forms.get(seg) ?? packQuadraticForm(seg.precision, seg.mean, seg.n);
+    return mahalanobisSqPacked(form, x, this.scratch);
   }
 
   /**
@@ -212,7 +227,7 @@ export class Scorer {
     }
     const seg = selectSegment(this.model, segment);
     transformInto(features, raw, this.x);
-    const d2 = this.kernel(seg.precision, seg.mean, this.x, seg.n, this.diff);
+    const d2 = this.distanceSq(seg, this.x);
     if (!Number.isFinite(d2)) {
       throw new ScoreInputError("features", "produce a non-finite squared distance (values too large for the model)");
     }
@@ -224,10 +239,12 @@ export class Scorer {
    * @throws ScoreInputError when x has the wrong length or a non-finite entry
    */
   scoreTransformed(x: ArrayLike<number>, seg: SegmentModel): ScoreResult {
-    if (x.length !== seg.n) {
+    if (x.length !== seg.n || seg.n !== this.model.n) {
       throw new ScoreInputError("columns", `must have ${seg.n} model-column values. Actual: ${x.length}`);
     }
-    const d2 = this.kernel(seg.precision, seg.mean, x, seg.n, this.diff);
+    const xs = this.x;
+    for (let i = 0; i < seg.n; i++) xs[i] = x[i];
+    const d2 = this.distanceSq(seg, xs);
     if (!Number.isFinite(d2)) {
       for (let i = 0; i < seg.n; i++) {
         if (!Number.isFinite(x[i])) throw new ScoreInputError(`columns.${this.model.columns[i]}`, `must be finite. Actual: ${x[i]}`);

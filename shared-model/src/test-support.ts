@@ -4,6 +4,7 @@
  * sealer, and reads the reference CSV files. Not part of the public surface (index.ts does not
  * export it).
  */
+import fc from "fast-check";
 import { expect } from "vitest";
 import { buildSegment, sealArtifact } from "./artifact";
 import type { ModelArtifact, UnsealedArtifact, ArtifactSegment } from "./artifact";
@@ -109,6 +110,21 @@ export function parseCsv(text: string): { header: string[]; rows: number[][] } {
   const header = lines[0].split(",").map((h) => h.replace(/^"|"$/g, ""));
   const rows = lines.slice(1).map((line) => line.split(",").map((cell) => Number(cell.replace(/^"|"$/g, ""))));
   return { header, rows };
+}
+
+/**
+ * Generated cases for quadratic-form tests: a size n in 1…maxN, n² entries in [−1, 1] for
+ * {@link spdFrom}, a mean and a point with coordinates in [−50, 50].
+ */
+export function spdCases(maxN: number) {
+  return fc.integer({ min: 1, max: maxN }).chain((n) =>
+    fc.record({
+      n: fc.constant(n),
+      entries: fc.array(fc.double({ min: -1, max: 1, noNaN: true }), { minLength: n * n, maxLength: n * n }),
+      mean: fc.array(fc.double({ min: -50, max: 50, noNaN: true }), { minLength: n, maxLength: n }),
+      x: fc.array(fc.double({ min: -50, max: 50, noNaN: true }), { minLength: n, maxLength: n }),
+    }),
+  );
 }
 
 /** A random symmetric positive definite n×n matrix A·Aᵀ + ridge·I from entries in [−1, 1]. */

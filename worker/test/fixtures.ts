@@ -4,25 +4,7 @@
  * sealed. No numbers here come from real transactions.
  */
 import { fitModel, type FeatureDeclaration, type FitRow, type ModelArtifact } from "../../shared-model/src";
-
-/** Small deterministic generator (mulberry32) with Box–Muller normals; test data only. */
-export function seededRandom(seed: number): { uniform(): number; normal(): number } {
-  let state = seed >>> 0;
-  const uniform = () => {
-    state = (state + 0x6d2b79f5) >>> 0;
-    let t = state;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  return {
-    uniform,
-    normal() {
-      const u = 1 - uniform();
-      return Math.sqrt(-2 * Math.log(u)) * Math.cos(2 * Math.PI * uniform());
-    },
-  };
-}
+import { mulberry32 } from "../../shared-model/src/seeded-stream";
 
 /** Features of the small test model (five features, six model columns). */
 export const SHOP_FEATURES: FeatureDeclaration[] = [
@@ -41,7 +23,7 @@ export interface ShopPayment {
 
 /** Typical payments: amount grows with items, shipping share shrinks with amount. */
 export function shopPayments(count: number, seed: number): ShopPayment[] {
-  const rng = seededRandom(seed);
+  const rng = mulberry32(seed);
   const out: ShopPayment[] = [];
   for (let i = 0; i < count; i++) {
     const size = rng.normal();

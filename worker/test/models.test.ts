@@ -237,6 +237,24 @@ describe("KV failures with a cached model", () => {
   });
 });
 
+describe("first model after an activation", () => {
+  test("calls arriving while the isolate loads it wait for the load instead of answering no-model", async () => {
+    const worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "60" } });
+    try {
+      // The isolate looks for a model once and finds none, so it would not look again for a second.
+      expect((await scoreVersion(worker, "first-0")).status).toBe(503);
+      await publishModel(worker, first);
+      // The activation invalidates this isolate's cache: the first call starts the load, the others
+      // arrive while it reads and verifies the artifact.
+      const burst = await Promise.all(Array.from({ length: 24 }, (_, i) => scoreVersion(worker, `first-${i + 1}`)));
+      expect(burst.map((b) => b.status)).toEqual(burst.map(() => 200));
+      expect(new Set(burst.map((b) => b.version))).toEqual(new Set(["mkv-1"]));
+    } finally {
+      await worker.dispose();
+    }
+  });
+});
+
 describe("KV failures without a cached model", () => {
   test("with nothing loadable the flow gets a 503 it can act on, and scoring starts once a good model is stored", async () => {
     const worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "7" } });

@@ -6,6 +6,7 @@
  */
 import { mkdir, readdir, readFile } from "node:fs/promises";
 import { join } from "node:path";
+import { bundleWorker } from "../../scripts/bundle-worker";
 
 /** A migration file and its statements. */
 export interface PreparedMigration {
@@ -33,20 +34,10 @@ declare module "vitest" {
  * @param outDir folder for the bundle (created if needed).
  */
 export async function prepareWorker(repoRoot: string, outDir: string): Promise<PreparedWorker> {
-  const [{ build }, wrangler] = await Promise.all([import("esbuild"), import("wrangler")]);
+  const wrangler = await import("wrangler");
   await mkdir(outDir, { recursive: true });
   const scriptPath = join(outDir, `index-${process.pid}-${Date.now()}.js`);
-  await build({
-    entryPoints: [join(repoRoot, "worker/src/index.ts")],
-    bundle: true,
-    format: "esm",
-    platform: "neutral",
-    target: "es2022",
-    conditions: ["workerd", "worker", "browser"],
-    mainFields: ["module", "main"],
-    outfile: scriptPath,
-    logLevel: "silent",
-  });
+  await bundleWorker(repoRoot, scriptPath);
   const config = join(repoRoot, "wrangler.toml");
   let workerOptions: Record<string, unknown>;
   try {

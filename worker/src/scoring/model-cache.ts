@@ -144,7 +144,10 @@ export class ModelCache {
     if (now - this.checkedAt >= refreshMs || this.live === null) {
       // Without a model, every request would otherwise hit KV; one attempt per second is enough.
       const due = this.live === null ? now - this.checkedAt >= Math.min(refreshMs, 1000) : true;
-      if (due) await this.refresh(env, now);
+      // A load already under way (the first after an activation, say) is joined rather than
+      // answered with "no model": otherwise the requests arriving while it reads and verifies the
+      // artifact get a 503 that a moment later would have been scored.
+      if (due || this.refreshing) await this.refresh(env, now);
     }
     return this.live ? { live: this.live, shadow: this.shadow } : null;
   }
