@@ -445,6 +445,29 @@ describe("estimators and transforms end to end", () => {
     expect(artifact.features[0].columns).toEqual(["amount"]);
   });
 
+  it("warns, naming the feature and a remedy, when a Yeo–Johnson power ends on the end of its range", async () => {
+    // Invented: a share that is 0 for nine payments in ten and small otherwise (a spike and a thin
+    // tail), which no power makes Gaussian; beside it an ordinary right-skewed amount.
+    const data = gaussianRows(3_000, [3, 0], [0.5, 0, 0, 1], 62).map(([a, b], i) => [Math.exp(a), i % 10 === 0 ? 0.05 + 0.02 * Math.abs(b) : 0]);
+    const { artifact } = await fitModel(
+      new ArraySource(asRows(data)),
+      options([{ name: "amount", transform: "yeo-johnson" }, { name: "share", transform: "yeo-johnson" }]),
+    );
+    expect(artifact.features[1].lambda).toBe(-5);
+    const warnings = artifact.diagnostics.filter((d) => d.code === "power-at-bound");
+    expect(warnings).toEqual([
+      {
+        code: "power-at-bound",
+        severity: "warning",
+        message:
+          "the Yeo–Johnson power of share reached the end of its range (λ = -5, range -5 to 5): no power transform makes it " +
+          "look Gaussian, so its part of the score and its expected ranges are less reliable",
+        columns: ["share"],
+        remedy: "declare another transform for share in the spec (none or log1p), or split it into an indicator and an amount",
+      },
+    ]);
+  });
+
   it("builds a valid robust artifact that ignores a planted cluster the classical fit is pulled by", async () => {
     const clean = gaussianRows(900, [0, 0, 0], [1, 0.3, 0, 0.3, 1, 0.2, 0, 0.2, 1], 71);
     const ring = gaussianRows(100, [6, -6, 6], [0.05, 0, 0, 0, 0.05, 0, 0, 0, 0.05], 72);

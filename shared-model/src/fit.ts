@@ -38,7 +38,7 @@ import {
   toDiagonal,
   type CovarianceEstimate,
 } from "./estimators";
-import { checkRawValue, fitFeatures, modelColumns, transformInto } from "./features";
+import { checkRawValue, fitFeatures, modelColumns, transformInto, YEO_JOHNSON_LAMBDA_RANGE } from "./features";
 import { fromRows } from "./linalg";
 import { ExactFitError, robustEstimate } from "./mcd";
 import { MomentAccumulator } from "./moments";
@@ -271,6 +271,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
     for (let r = 0; r < sampleRows; r++) column[r] = sample[r * k + j];
     return column;
   }).map((f, j) => ({ ...f, observed: { min: observedMin[j], max: observedMax[j] } }));
+  warnings.push(...powerAtBound(features));
 
   // ---- Pass 2: moments (and the rows themselves for robust). ----
   const x = new Float64Array(n);
@@ -721,6 +722,28 @@ function diagonalConditionNumber(covariance: Float64Array, n: number): number {
     hi = Math.max(hi, covariance[i * n + i]);
   }
   return lo > 0 ? hi / lo : Infinity;
+}
+
+/**
+ * A Yeo–Johnson power that ended on an end of its search range: the likelihood kept improving
+ * past it, which happens when a feature is far from any power-normal shape (a spike at one value
+ * with a thin tail, say). The fit still works, but the transformed column is poorly Gaussian, so
+ * its contribution to d² and its expected ranges in the explanations deserve less trust.
+ */
+function powerAtBound(features: readonly FittedFeature[]): Diagnostic[] {
+  const [low, high] = YEO_JOHNSON_LAMBDA_RANGE;
+  return features
+    // Brent's search may stop a hair inside the end; 1e-6 is far below any power that matters.
+    .filter((f) => f.transform === "yeo-johnson" && f.lambda !== undefined && (f.lambda <= low + 1e-6 || f.lambda >= high - 1e-6))
+    .map((f) => ({
+      code: "power-at-bound",
+      severity: "warning" as const,
+      message:
+        `the Yeo–Johnson power of ${f.name} reached the end of its range (λ = ${f.lambda}, range ${low} to ${high}): ` +
+        `no power transform makes it look Gaussian, so its part of the score and its expected ranges are less reliable`,
+      columns: [...f.columns],
+      remedy: `declare another transform for ${f.name} in the spec (none or log1p), or split it into an indicator and an amount`,
+    }));
 }
 
 function hasError(diagnostics: readonly Diagnostic[]): boolean {

@@ -239,7 +239,10 @@ export class Scorer {
    * @throws ScoreInputError when x has the wrong length or a non-finite entry
    */
   scoreTransformed(x: ArrayLike<number>, seg: SegmentModel): ScoreResult {
-    if (x.length !== seg.n || seg.n !== this.model.n) {
+    if (seg.n !== this.model.n) {
+      throw new ScoreInputError("segment", `must have this model's ${this.model.n} columns. Actual: ${seg.n}`);
+    }
+    if (x.length !== seg.n) {
       throw new ScoreInputError("columns", `must have ${seg.n} model-column values. Actual: ${x.length}`);
     }
     const xs = this.x;

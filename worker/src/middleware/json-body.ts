@@ -2,7 +2,8 @@
  * Reads a JSON request body with three checks, in this order, each answered with its own status:
  * the content type must be `application/json` (415), the body must fit the route's byte limit
  * (413, checked on the declared length and again while streaming, so a lying or absent
- * Content-Length cannot get past it), and it must be UTF-8 JSON (400). The parsed value is stored
+ * Content-Length cannot get past it; a refused body of up to 1 MiB is read to its end first, see
+ * DRAIN_LIMIT_BYTES), and it must be UTF-8 JSON (400). The parsed value is stored
  * as `body` in the context; nothing has been stored anywhere when one of these checks refuses.
  */
 import type { MiddlewareHandler } from "hono";
@@ -20,6 +21,14 @@ export const BODY_LIMITS = {
   /** Small admin bodies (shadow). */
   small: 4 * 1024,
 } as const;
+
+/**
+ * A refused body up to this size is read to its end (and dropped) before the 413 goes out. A client
+ * still sending when the answer comes would otherwise have its connection reset and never see the
+ * answer (found with a raw socket: worker/test/body-limit.test.ts); a kept-alive connection also
+ * stays usable. Bigger bodies are cut off: reading megabytes of junk is not worth a tidy answer.
+ */
+const DRAIN_LIMIT_BYTES = 1024 * 1024;
 
 /**
  * Middleware that enforces content type, size and JSON syntax, then sets `body`.
@@ -42,6 +51,7 @@ export function jsonBody(limitBytes: number): MiddlewareHandler<AppEnv> {
     }
     const declared = c.req.header("content-length");
     if (declared !== undefined && /^\d+$/.test(declared) && Number(declared) > limitBytes) {
+      if (Number(declared) <= DRAIN_LIMIT_BYTES) await drain(c.req.raw.body?.getReader() ?? null, DRAIN_LIMIT_BYTES);
       return tooLarge(c, limitBytes, `${declared} bytes declared`);
     }
     const bytes = await readLimited(c.req.raw, limitBytes);
@@ -70,7 +80,23 @@ function tooLarge(c: Parameters<MiddlewareHandler<AppEnv>>[0], limitBytes: numbe
   return problemResponse(c, 413, "payload-too-large", [{ field: "body", rule: `must be at most ${limitBytes} bytes. Actual: ${actual}` }]);
 }
 
-/** Reads the whole body, or returns null as soon as it exceeds `limitBytes`. */
+/** Reads and drops what is left of a body, up to `budget` bytes; past that, cancels it. */
+async function drain(reader: ReadableStreamDefaultReader<Uint8Array> | null, budget: number): Promise<void> {
+  if (reader === null) return;
+  try {
+    for (let left = budget; ; ) {
+      const { done, value } = await reader.read();
+      if (done) return;
+      left -= value.byteLength;
+      if (left < 0) break;
+    }
+    await reader.cancel();
+  } catch {
+    /* the client went away: nothing to answer */
+  }
+}
+
+/** Reads the whole body, or returns null when it exceeds `limitBytes` (after draining it). */
 async function readLimited(request: Request, limitBytes: number): Promise<Uint8Array | null> {
   if (request.body === null) return new Uint8Array(0);
   const reader = request.body.getReader();
@@ -81,7 +107,7 @@ async function readLimited(request: Request, limitBytes: number): Promise<Uint8A
     if (done) break;
     total += value.byteLength;
     if (total > limitBytes) {
-      await reader.cancel().catch(() => undefined);
+      await drain(reader, DRAIN_LIMIT_BYTES - total);
       return null;
     }
     chunks.push(value);

@@ -1,0 +1,72 @@
+/**
+ * An oversize body at the level of the bytes: a client still sending when the worker refuses must
+ * receive the 413 as an answer, not have its connection reset under it (the answer is then lost
+ * and the client cannot tell a refusal from a network fault).
+ */
+import { connect, type Socket } from "node:net";
+import { afterAll, beforeAll, describe, expect, test } from "vitest";
+import { startWorker, type RunningWorker } from "./harness";
+
+let worker: RunningWorker;
+let port: number;
+
+beforeAll(async () => {
+  worker = await startWorker();
+  port = Number(new URL(String(await worker.mf.ready)).port);
+});
+afterAll(async () => {
+  await worker?.dispose();
+});
+
+/** Everything the server sends until `done` says enough, the socket closes or 15 s pass. */
+function collect(socket: Socket, done: (text: string) => boolean): Promise<{ text: string; firstByteAt: number; error: string | null }> {
+  return new Promise((resolve) => {
+    let text = "";
+    let firstByteAt = Number.NaN;
+    let error: string | null = null;
+    const finish = () => {
+      clearTimeout(timer);
+      socket.removeAllListeners("data");
+      resolve({ text, firstByteAt, error });
+    };
+    const timer = setTimeout(finish, 15_000);
+    socket.on("data", (chunk: Buffer) => {
+      if (text === "") firstByteAt = performance.now();
+      text += chunk.toString("latin1");
+      if (done(text)) finish();
+    });
+    socket.on("error", (e) => (error = e.message));
+    socket.on("close", finish);
+  });
+}
+
+const statusLines = (text: string) => [...text.matchAll(/^HTTP\/1\.1 (\d{3})/gm)].map((m) => Number(m[1]));
+
+describe("a body over the route's limit", () => {
+  test("sent slowly with its length declared: the worker reads it to its end, then answers 413 naming the body (no reset)", async () => {
+    const socket = connect(port, "127.0.0.1");
+    await new Promise<void>((resolve) => socket.once("connect", () => resolve()));
+    const answer = collect(socket, (text) => /\r\n\r\n\{.*\}$/s.test(text));
+    const length = 40_000; // /v1/score takes at most 16 KiB
+    socket.write(
+      `POST /v1/score HTTP/1.1\r\nHost: 127.0.0.1\r\nContent-Type: application/json\r\n` +
+        `Authorization: Bearer ${worker.tokens.flow}\r\nContent-Length: ${length}\r\n\r\n`,
+    );
+    // The body in ten pieces with pauses, so the worker decides while the client is still sending.
+    let lastPieceAt = 0;
+    for (let k = 0; k < 10; k++) {
+      await new Promise((r) => setTimeout(r, 20));
+      lastPieceAt = performance.now();
+      socket.write("x".repeat(length / 10));
+    }
+    const { text, firstByteAt, error } = await answer;
+    socket.destroy();
+    // The worker read the body to its end before answering. Before it did, the 413 went out right
+    // after the headers and a client still writing could meet "write ECONNRESET".
+    expect(firstByteAt).toBeGreaterThanOrEqual(lastPieceAt);
+    expect(error).toBeNull();
+    expect(statusLines(text)).toEqual([413]);
+    expect(text).toContain('"field":"body"');
+    expect(text).toContain("must be at most 16384 bytes. Actual: 40000 bytes declared");
+  });
+});
