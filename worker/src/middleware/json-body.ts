@@ -25,8 +25,8 @@ export const BODY_LIMITS = {
 /**
  * A refused body up to this size is read to its end (and dropped) before the 413 goes out. A client
  * still sending when the answer comes would otherwise have its connection reset and never see the
- * answer (found with a raw socket: worker/test/body-limit.test.ts); a kept-alive connection also
- * stays usable. Bigger bodies are cut off: reading megabytes of junk is not worth a tidy answer.
+ * answer (found with a raw socket: worker/test/body-limit.test.ts). Bigger bodies are cut off:
+ * reading megabytes of junk is not worth a tidy answer.
  */
 const DRAIN_LIMIT_BYTES = 1024 * 1024;
 
@@ -84,11 +84,11 @@ function tooLarge(c: Parameters<MiddlewareHandler<AppEnv>>[0], limitBytes: numbe
 async function drain(reader: ReadableStreamDefaultReader<Uint8Array> | null, budget: number): Promise<void> {
   if (reader === null) return;
   try {
-    for (let left = budget; ; ) {
+    let left = budget;
+    while (left >= 0) {
       const { done, value } = await reader.read();
       if (done) return;
       left -= value.byteLength;
-      if (left < 0) break;
     }
     await reader.cancel();
   } catch {
