@@ -215,18 +215,9 @@ export class Scorer {
    * @example scorer.score([42.5, 3, 14], "web") // { mahalanobisSq: 2.1, tailProbability: 0.55, flagged: false, … }
    */
   score(raw: ArrayLike<number>, segment?: string | null): ScoreResult {
-    const features = this.model.features;
-    if (raw.length !== features.length) {
-      throw new ScoreInputError("features", `must have ${features.length} values in feature order. Actual: ${raw.length}`);
-    }
-    // Domain checks are n comparisons (no allocation unless one fails) against an O(n²) kernel;
-    // without them an hour of 30 would score as 6 and a negative amount as NaN.
-    for (let i = 0; i < features.length; i++) {
-      const rule = ruleFor(features[i], raw[i]);
-      if (rule !== null) throw new ScoreInputError(`features.${features[i].name}`, rule);
-    }
+    this.checkRaw(raw);
     const seg = selectSegment(this.model, segment);
-    transformInto(features, raw, this.x);
+    transformInto(this.model.features, raw, this.x);
     const d2 = this.distanceSq(seg, this.x);
     if (!Number.isFinite(d2)) {
       throw new ScoreInputError("features", "produce a non-finite squared distance (values too large for the model)");
@@ -263,6 +254,21 @@ export class Scorer {
    * @throws ScoreInputError on a wrong-length vector or an out-of-domain value
    */
   explain(raw: ArrayLike<number>, segment?: string | null, top = 3): Reason[] {
+    this.checkRaw(raw);
+    const features = this.model.features;
+    const seg = selectSegment(this.model, segment);
+    const x = new Float64Array(this.model.n);
+    transformInto(features, raw, x);
+    return conditionalReasons(seg, features, raw, x, top);
+  }
+
+  /**
+   * Length and domain of a raw vector. The domain checks are n comparisons (no allocation unless one
+   * fails) against an O(n²) kernel; without them an hour of 30 would score as 6 and a negative
+   * amount as NaN.
+   * @throws ScoreInputError naming the first offending feature
+   */
+  private checkRaw(raw: ArrayLike<number>): void {
     const features = this.model.features;
     if (raw.length !== features.length) {
       throw new ScoreInputError("features", `must have ${features.length} values in feature order. Actual: ${raw.length}`);
@@ -271,10 +277,6 @@ export class Scorer {
       const rule = ruleFor(features[i], raw[i]);
       if (rule !== null) throw new ScoreInputError(`features.${features[i].name}`, rule);
     }
-    const seg = selectSegment(this.model, segment);
-    const x = new Float64Array(this.model.n);
-    transformInto(features, raw, x);
-    return conditionalReasons(seg, features, raw, x, top);
   }
 
   private result(d2: number, seg: SegmentModel): ScoreResult {
