@@ -195,31 +195,29 @@ try {
 
   const wranglerPid = wrangler.pid!;
   const workerds = new Set<number>();
-  /** Sum of VmRSS over the live workerd processes under wrangler (found afresh on each read). */
-  const rssAll = () => {
-    let total = 0;
+  /** VmRSS in MiB per live workerd process under wrangler (found afresh on each read). */
+  function rssByPid(): Record<number, number> {
+    const byPid: Record<number, number> = {};
     for (const pid of workerdDescendants(wranglerPid)) {
       try {
-        total += rssMiB(pid);
+        byPid[pid] = r2(rssMiB(pid));
         workerds.add(pid);
       } catch {
         /* exited between listing and reading */
       }
     }
+    return byPid;
+  }
+  /** Total of one {@link rssByPid} reading. */
+  const totalOf = (byPid: Record<number, number>) => {
+    const total = Object.values(byPid).reduce((a, b) => a + b, 0);
     if (total === 0) throw new Error("no workerd process found under wrangler dev");
     return total;
   };
+  const rssAll = () => totalOf(rssByPid());
   rssAll();
-  const pidsAtStart = () => workerDescendantsKey();
-  /** VmRSS per live workerd process, MiB. */
-  function rssByPid(): Record<number, number> {
-    const byPid: Record<number, number> = {};
-    for (const pid of workerdDescendants(wranglerPid)) byPid[pid] = r2(rssMiB(pid));
-    return byPid;
-  }
-  function workerDescendantsKey(): string {
-    return workerdDescendants(wranglerPid).sort((a, b) => a - b).join(",");
-  }
+  /** The workerd pids, to tell a restart (new processes) between two reads. */
+  const pidsKey = () => workerdDescendants(wranglerPid).sort((a, b) => a - b).join(",");
 
   // Warm-up: fills the per-isolate answer memory (5,000 entries) several times over and lets V8's
   // heap and SQLite's page cache reach their working size, so "before" is the steady state.
@@ -228,10 +226,10 @@ try {
   console.log(`warm-up statuses: ${JSON.stringify(warm.statuses)}${warm.refusals.length ? `; first refusals: ${warm.refusals.join(" | ")}` : ""}`);
   await new Promise((r) => setTimeout(r, 2000));
   // RSS first: the heap snapshot that forces the collection costs workerd memory of its own.
-  const rssBefore = rssAll();
   const rssBeforeByPid = rssByPid();
+  const rssBefore = totalOf(rssBeforeByPid);
   const heapBefore = await isolateHeap(inspectorPort, true);
-  const pidsBefore = pidsAtStart();
+  const pidsBefore = pidsKey();
 
   const reviewOut = join(work, "review.json");
   if (REVIEW) reviewer = spawn(process.execPath, ["bin/run-ts.js", "bench/soak-review.ts", url, analystToken, reviewOut], { cwd: root, stdio: ["ignore", "inherit", "inherit"] });
@@ -268,11 +266,11 @@ try {
   }
   const review = reviewer ? (JSON.parse(readFileSync(reviewOut, "utf8")) as { errors: number } & Record<string, unknown>) : { errors: 0, skipped: "SOAK_REVIEW=off" };
   await new Promise((r) => setTimeout(r, 3000));
-  const rssAfter = rssAll();
   const rssAfterByPid = rssByPid();
+  const rssAfter = totalOf(rssAfterByPid);
   const heapAfter = await isolateHeap(inspectorPort, true);
   // A workerd restart (wrangler restarts it on a crash or a reload) makes before/after meaningless.
-  const restarted = pidsAtStart() !== pidsBefore;
+  const restarted = pidsKey() !== pidsBefore;
 
   const sorted = Float64Array.from(times).sort();
   const errors = soak.result.non2xx + soak.result.errors + soak.result.timeouts;
