@@ -9,6 +9,8 @@ import {
   chiSquareSurvival,
   chiSquareUpperQuantile,
   lnGamma,
+  log10ChiSquareSurvival,
+  logChiSquareSurvival,
   normalQuantile,
   regularizedGammaP,
   regularizedGammaQ,
@@ -297,6 +299,43 @@ describe("chiSquareSurvival", () => {
     expect(() => chiSquareCdf(1, -3)).toThrow(RangeError);
     expect(() => chiSquareSurvival(1, 2e9)).toThrow("dof must be at most 1000000000. Actual: 2000000000");
     expect(() => chiSquareSurvival(Number.NaN, 3)).toThrow("x must be a number (not NaN). Actual: NaN");
+  });
+});
+
+describe("logChiSquareSurvival", () => {
+  it("matches ln Q(dof/2, x/2) from mpmath far beyond where the probability itself underflows", () => {
+    // mpmath 1.3.0 (Debian python3-mpmath), mp.dps = 40:
+    //   mp.log(mp.gammainc(mpf(dof)/2, mpf(x)/2, mp.inf, regularized=True)).
+    // SciPy 1.17.1's scipy.stats.chi2.logsf returns -inf for every case from (1600, 4) on: it
+    // takes the log of an underflowed survival function, the fault this function exists to avoid.
+    const cases: [number, number, number][] = [
+      [400, 32, -148.34698249613262005],
+      [1400, 4, -693.44749211296540991],
+      [1600, 4, -793.31413905293164078],
+      [5000, 9, -2475.0681751130509574],
+      [20000, 9, -9970.2171952426790118],
+      [2e6, 4, -999986.18448844203623],
+      [1e5, 1, -50005.982264084879854],
+      [3000, 31, -1420.4855117480495305],
+    ];
+    for (const [x, dof, expected] of cases) {
+      expectClose(logChiSquareSurvival(x, dof), expected, 1e-13, 0, `ln Q dof ${dof} x ${x}`);
+      expectClose(log10ChiSquareSurvival(x, dof), expected / Math.LN10, 1e-13, 0, `log10 Q dof ${dof} x ${x}`);
+    }
+    expect(chiSquareSurvival(1600, 4)).toBe(0);
+  });
+
+  it("agrees with the log of chiSquareSurvival wherever that is a normal double, and orders tails that underflow", () => {
+    for (const dof of [1, 2, 3, 9, 32]) {
+      for (const x of [0.01, 1, dof, 3 * dof, 100, 600]) {
+        expectClose(logChiSquareSurvival(x, dof), Math.log(chiSquareSurvival(x, dof)), 1e-12, 1e-15, `dof ${dof} x ${x}`);
+      }
+    }
+    // Past the double's range the log keeps distinct distances distinct (a queue sorted by it does not tie).
+    expect(logChiSquareSurvival(3000, 9)).toBeLessThan(logChiSquareSurvival(2999, 9));
+    expect(logChiSquareSurvival(0, 3)).toBe(0);
+    expect(logChiSquareSurvival(Infinity, 3)).toBe(-Infinity);
+    expect(() => logChiSquareSurvival(Number.NaN, 3)).toThrow("x must be a number (not NaN)");
   });
 });
 

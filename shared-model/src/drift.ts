@@ -219,7 +219,9 @@ export interface FlagRateCheck {
   scored: number;
   observedRate: number;
   expectedRate: number;
-  /** Wilson score interval of the true daily rate at the given confidence. */
+  /** Two-sided confidence of this interval (after any correction for several tests). */
+  confidence: number;
+  /** Wilson score interval of the true daily rate at `confidence`. */
   low: number;
   high: number;
   /** "above" / "below" when the expected rate lies outside the interval, else "as-expected". */
@@ -262,5 +264,24 @@ export function flagRateCheck(flagged: number, scored: number, expectedRate: num
   const low = flagged === 0 ? 0 : Math.max(0, centre - half);
   const high = flagged === n ? 1 : Math.min(1, centre + half);
   const verdict = expectedRate < low ? "above" : expectedRate > high ? "below" : "as-expected";
-  return { flagged, scored, observedRate: p, expectedRate, low, high, verdict };
+  return { flagged, scored, observedRate: p, expectedRate, confidence, low, high, verdict };
+}
+
+/**
+ * The confidence each of `tests` intervals needs so that, together, they all cover with at least
+ * `familyConfidence` (Bonferroni: each test gets the share (1 − familyConfidence)/tests of the
+ * error). Seven daily checks at 95 % each raise a false alarm in about 1 − 0.95⁷ ≈ 30 % of quiet
+ * weeks; at 1 − 0.05/7 ≈ 99.29 % each, in at most 5 % (Bonferroni's inequality; no independence
+ * needed).
+ * @param familyConfidence wanted chance that no interval misses, in (0, 1)
+ * @param tests number of intervals judged together (whole number ≥ 1)
+ * @throws DriftInputError naming the bad argument
+ * @example bonferroniConfidence(0.95, 7) // 0.992857…
+ */
+export function bonferroniConfidence(familyConfidence: number, tests: number): number {
+  if (typeof familyConfidence !== "number" || !(familyConfidence > 0 && familyConfidence < 1)) {
+    throw new DriftInputError("familyConfidence", `must be strictly between 0 and 1. Actual: ${String(familyConfidence)}`);
+  }
+  if (!Number.isSafeInteger(tests) || tests < 1) throw new DriftInputError("tests", `must be a whole number ≥ 1. Actual: ${String(tests)}`);
+  return 1 - (1 - familyConfidence) / tests;
 }

@@ -126,7 +126,7 @@ describe("conditionalReasons", () => {
     }
   });
 
-  it("sorts by |standardized residual| and returns the top 3 by default", () => {
+  it("sorts single columns by |standardized residual| and returns the top 3 by default", () => {
     const features = ["a", "b", "c", "d", "e"].map((name) => fitted(name, "none"));
     const mean = [0, 0, 0, 0, 0];
     const cov = [1, 0.6, 0.2, 0, 0, 0.6, 1, 0.3, 0, 0, 0.2, 0.3, 1, 0.1, 0, 0, 0, 0.1, 1, 0.4, 0, 0, 0, 0.4, 1];
@@ -138,6 +138,19 @@ describe("conditionalReasons", () => {
     expect(conditionalReasons(seg, features, x, x)).toEqual(all.slice(0, 3));
     expect(conditionalReasons(seg, features, x, x, 0)).toEqual([]);
     expect(conditionalReasons(seg, features, x, x, 50)).toHaveLength(5);
+  });
+
+  it("ranks a cyclic hour and a single column on one scale, by the tail probability of their residuals", () => {
+    // Independent unit-variance columns: distance at 2.4 sd (two-sided p = 0.0164) and the hour's
+    // (sin, cos) pair at √χ²₂ = 2.5 (p = e^{−6.25/2} = 0.0439). The hour's number is larger, yet the
+    // distance is the rarer of the two and must come first.
+    const features = [fitted("hour", "cyclic-hour"), fitted("distance", "none")];
+    const seg = segmentOf([0, 0, 0], [1, 0, 0, 0, 1, 0, 0, 0, 1]);
+    const x = Float64Array.of(2.5, 0, 2.4);
+    const reasons = conditionalReasons(seg, features, [3, 2.4], x, 2);
+    expect(reasons.map((r) => r.feature)).toEqual(["distance", "hour"]);
+    expect(reasons[0].standardizedResidual).toBeCloseTo(2.4, 12);
+    expect(reasons[1].standardizedResidual).toBeCloseTo(2.5, 12);
   });
 
   it("ranks the planted unusual feature first, even when each value alone is ordinary", () => {

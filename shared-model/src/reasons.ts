@@ -6,7 +6,7 @@
  * 2005, Gaussian Markov Random Fields, ch. 2, conditional properties of a GMRF). For one column j this is mean
  * μ_j − (1/Λ_jj) Σ_{k≠j} Λ_jk (x_k − μ_k) and variance 1/Λ_jj: O(n) per feature, no inversion.
  */
-import { normalQuantile } from "./distributions";
+import { logChiSquareSurvival, normalQuantile } from "./distributions";
 import { hourFromCyclic, inverseTransform } from "./features";
 import type { FittedFeature, Reason, SegmentModel } from "./types";
 
@@ -111,8 +111,10 @@ function wrapHour(h: number): number {
 }
 
 /**
- * Per-feature reasons for a payment under one segment's Gaussian, sorted by
- * |standardizedResidual| descending (ties keep feature order), the first `top` returned.
+ * Per-feature reasons for a payment under one segment's Gaussian, rarest first by the tail
+ * probability of the residual — P(χ²₁ > r²) for a column, P(χ²₂ > d²) for a cyclic pair, so one-
+ * and two-column features are ranked on the same scale (ties keep feature order) — the first
+ * `top` returned.
  * A single-column feature gets (x_j − E[x_j|rest]) / sd(x_j|rest) and the expected centre and
  * central 95 % range E ± z₀.₉₇₅·sd mapped back to raw units with the feature's inverse
  * transform (monotone, so the interval's ends map to the ends). A cyclic-hour feature uses its
@@ -153,6 +155,8 @@ export function conditionalReasons(
   }
 
   const reasons: Reason[] = [];
+  // Model columns behind each reason: 1, or 2 for a cyclic hour (the dof of its residual's χ²).
+  const columnsOf: number[] = [];
   let c = 0;
   for (let i = 0; i < features.length; i++) {
     const f = features[i];
@@ -164,6 +168,7 @@ export function conditionalReasons(
         expected: cyclicHourRange(cond),
         standardizedResidual: Math.sqrt(cond.distanceSq),
       });
+      columnsOf.push(2);
       c += 2;
     } else {
       const { mean, sd } = conditionalColumn(seg, x, c);
@@ -178,10 +183,15 @@ export function conditionalReasons(
         },
         standardizedResidual: (x[c] - mean) / sd,
       });
+      columnsOf.push(1);
       c += 1;
     }
   }
-  // Array.prototype.sort is stable (ES2019), so equal residuals keep feature order.
-  reasons.sort((p, q) => Math.abs(q.standardizedResidual) - Math.abs(p.standardizedResidual));
-  return reasons.slice(0, top);
+  // Rank on one scale: a column's |z| and a pair's √χ²₂ are not comparable (2.5 for a pair is
+  // p ≈ 0.044, 2.4 for a column p ≈ 0.016), their tail probabilities are. Logs keep far-out
+  // residuals apart. Array.prototype.sort is stable (ES2019), so ties keep feature order.
+  const order = reasons.map((reason, k) => ({ reason, logTail: logChiSquareSurvival(reason.standardizedResidual ** 2, columnsOf[k]) }));
+  order.sort((p, q) => p.logTail - q.logTail);
+  return order.slice(0, top).map((o) => o.reason);
 }
+

@@ -4,7 +4,7 @@ import fc from "fast-check";
 import { describe, expect, it } from "vitest";
 import { buildSegment, parseArtifact } from "./artifact";
 import type { ModelArtifact } from "./artifact";
-import { chiSquareSurvival } from "./distributions";
+import { chiSquareSurvival, log10ChiSquareSurvival } from "./distributions";
 import { fromRows } from "./linalg";
 import { kernelScratch, mahalanobisSqPacked, packQuadraticForm } from "./quadratic-form";
 import {
@@ -296,6 +296,7 @@ describe("Scorer", () => {
             expect(r.flagged).toBe(r.tailProbability < artifact.cutoff.tailProbability);
             expect(r.flagged).toBe(r.logDensity < artifact.cutoff.logDensity[r.segment]);
             expect(r.tailProbability).toBe(chiSquareSurvival(r.mahalanobisSq, 4));
+            expect(Math.abs(r.log10TailProbability - log10ChiSquareSurvival(r.mahalanobisSq, 4))).toBeLessThan(1e-12 * Math.max(1, -r.log10TailProbability));
             if (r.flagged) flaggedCount++;
           }
         }
@@ -303,6 +304,19 @@ describe("Scorer", () => {
     }
     expect(flaggedCount).toBeGreaterThan(0);
     expect(flaggedCount).toBeLessThan(6 * 4 * 4 * 2);
+  });
+
+  it("gives a finite log10 tail probability for a payment so far out that the tail probability underflows to 0", async () => {
+    const scorer = new Scorer(compileModel(await loaded(shop)));
+    const far = scorer.score([1e300, 500, 3], "web");
+    const farther = scorer.score([1e300, 5000, 3], "web");
+    expect(far.tailProbability).toBe(0);
+    expect(Number.isFinite(far.log10TailProbability)).toBe(true);
+    expect(far.log10TailProbability).toBeLessThan(-323);
+    // Both past the double's range, yet still ordered as their distances are.
+    expect(farther.tailProbability).toBe(0);
+    expect(Math.sign(farther.log10TailProbability - far.log10TailProbability)).toBe(-Math.sign(farther.mahalanobisSq - far.mahalanobisSq));
+    expect(farther.mahalanobisSq).not.toBe(far.mahalanobisSq);
   });
 
   it("refuses a raw vector of the wrong length or with a value outside its transform's domain", async () => {

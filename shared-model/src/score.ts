@@ -5,7 +5,7 @@
  * Gaussian, e.g. Johnson & Wichern, Applied Multivariate Statistical Analysis, §4.4).
  */
 import type { ModelArtifact } from "./artifact";
-import { chiSquareSurvival } from "./distributions";
+import { chiSquareSurvival, log10ChiSquareSurvival } from "./distributions";
 import { checkRawValue, transformInto } from "./features";
 import { fromRows } from "./linalg";
 import { kernelScratch, mahalanobisSqPacked, packQuadraticForm, type PackedQuadraticForm } from "./quadratic-form";
@@ -280,10 +280,15 @@ export class Scorer {
   }
 
   private result(d2: number, seg: SegmentModel): ScoreResult {
+    const tail = chiSquareSurvival(d2, seg.n);
+    // While the tail is a normal double its log is exact enough; past that (about 1e-300) the log
+    // comes from the incomplete gamma in log space, so only the rare far-out payment pays twice.
+    const log10Tail = tail > 1e-300 ? Math.log10(tail) : log10ChiSquareSurvival(d2, seg.n);
     return {
       logDensity: seg.logNormalizer - 0.5 * d2,
       mahalanobisSq: d2,
-      tailProbability: chiSquareSurvival(d2, seg.n),
+      tailProbability: tail,
+      log10TailProbability: log10Tail,
       flagged: d2 > this.model.cutoffMahalanobisSq,
       segment: seg.key,
     };

@@ -106,6 +106,11 @@ export interface ScoreResult {
   mahalanobisSq: number;
   /** P(χ²ₙ > d²): calibrated, comparable across segments. */
   tailProbability: number;
+  /**
+   * log₁₀ P(χ²ₙ > d²), from the log of the incomplete gamma function: finite where
+   * `tailProbability` underflows to 0 (below about 1e-323), so sorts and "how rare" read it.
+   */
+  log10TailProbability: number;
   /** True when d² exceeds the cutoff (equivalently logDensity is below the segment's cutoff). */
   flagged: boolean;
   /** Segment key whose model scored it (`*` when pooled). */

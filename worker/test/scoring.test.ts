@@ -54,6 +54,7 @@ describe("POST /v1/score", () => {
       expectClose(answer.mahalanobisSq, expected.mahalanobisSq, "mahalanobisSq");
       expectClose(answer.logDensity, expected.logDensity, "logDensity");
       expectClose(answer.tailProbability, expected.tailProbability, "tailProbability");
+      expectClose(answer.log10TailProbability, expected.log10TailProbability, "log10TailProbability");
       expect(answer.cutoff.mahalanobisSq).toBe(artifact.cutoff.mahalanobisSq);
       expect(answer.cutoff.tailProbability).toBe(artifact.cutoff.tailProbability);
       expect(answer.cutoff.logDensity).toBe(artifact.cutoff.logDensity[expected.segment]);

@@ -1,4 +1,6 @@
 import { describe, expect, it } from "vitest";
+import { flagRateCheck } from "../../../shared-model/src/drift";
+import { mulberry32, type SeededStream } from "../../../shared-model/src/seeded-stream";
 import { dayFlagRates, driftEntries, refitReasons } from "./drift-report";
 import type { TallyModel } from "./tally";
 
@@ -37,6 +39,29 @@ describe("the weekly report's figures", () => {
     expect(dayFlagRates([{ day: "2026-12-01", scored: 263, flagged: 81 }], null)[0].check).toBeNull();
   });
 
+  it("raises a flag-rate alarm in at most about 5 % of quiet weeks, where seven uncorrected 95 % checks raise one in about 30 %", () => {
+    // Simulated quiet weeks: every day's flags ~ Binomial(scored, expected), scored 2,000–12,000.
+    const stream = mulberry32(20261204);
+    const expected = 0.01;
+    const weeks = process.env.ISODENSE_TEST_DEPTH === "thorough" ? 4000 : 600;
+    let alarms = 0;
+    let uncorrectedAlarms = 0;
+    for (let w = 0; w < weeks; w++) {
+      const volumes = Array.from({ length: 7 }, (_, d) => {
+        const scored = 2000 + Math.floor(stream.uniform() * 10_000);
+        return { day: `2026-12-0${d + 1}`, scored, flagged: binomial(stream, scored, expected) };
+      });
+      const rates = dayFlagRates(volumes, expected);
+      if (refitReasons([], rates, 1, 28).length > 0) alarms++;
+      if (volumes.some((v) => flagRateCheck(v.flagged, v.scored, expected).verdict !== "as-expected")) uncorrectedAlarms++;
+      expect(rates[0].check!.confidence).toBeCloseTo(1 - 0.05 / 7, 12);
+    }
+    console.log(`quiet weeks with a flag-rate alarm: ${alarms}/${weeks} corrected, ${uncorrectedAlarms}/${weeks} with seven 95 % checks`);
+    // Binomial(600, 0.05) exceeds 45 with probability below 0.1 %; the uncorrected rate is ≈ 0.30.
+    expect(alarms / weeks).toBeLessThanOrEqual(0.075);
+    expect(uncorrectedAlarms / weeks).toBeGreaterThan(0.2);
+  });
+
   it("gives a reason for a shifted column, a flag rate out of its interval and an old model, and none otherwise", () => {
     const drift = [{ name: "amount", psi: 0.31, level: "shifted" as const, payments: 10, note: null }];
     const rates = dayFlagRates([{ day: "2026-12-01", scored: 263, flagged: 81 }], 0.25);
@@ -44,7 +69,16 @@ describe("the weekly report's figures", () => {
     expect(reasons).toHaveLength(3);
     expect(reasons[0]).toBe("amount shifted (PSI 0.310 ≥ 0.25)");
     expect(reasons[1]).toContain("above the expected 25.00 %");
+    expect(reasons[1]).toContain("95.00 % interval");
+    expect(reasons[1]).toContain("Bonferroni-corrected for 1 daily tests");
     expect(reasons[2]).toBe("the model is 35 days old (refit after 28)");
     expect(refitReasons([{ ...drift[0], psi: 0.05, level: "stable" }], dayFlagRates([{ day: "d", scored: 1000, flagged: 250 }], 0.25), 3, 28)).toEqual([]);
   });
 });
+
+/** Binomial(n, p) by counting uniform draws below p (exact; fine for the few thousand trials here). */
+function binomial(stream: SeededStream, n: number, p: number): number {
+  let k = 0;
+  for (let i = 0; i < n; i++) if (stream.uniform() < p) k++;
+  return k;
+}

@@ -3,7 +3,7 @@
  * against the training reference, each day's flag rate against the expected rate, and the reasons
  * (if any) the live model is due for refit. Pure: the worker reads, this computes.
  */
-import { DriftInputError, driftLevel, flagRateCheck, referencePsi, type DriftLevel, type FlagRateCheck } from "../../../shared-model/src";
+import { bonferroniConfidence, DriftInputError, driftLevel, flagRateCheck, referencePsi, type DriftLevel, type FlagRateCheck } from "../../../shared-model/src";
 import type { TallyModel } from "./tally";
 import { SCORE_ROW } from "./tally";
 import type { BucketTotals, DayVolume } from "./traffic-queries";
@@ -46,24 +46,32 @@ export function driftEntries(model: TallyModel, totals: BucketTotals): DriftEntr
 }
 
 
+/** Chance that a quiet window (every day at the expected rate) raises no flag-rate alarm. */
+export const FLAG_RATE_FAMILY_CONFIDENCE = 0.95;
+
 /**
- * Each day's flag rate, checked with a 95 % Wilson interval against `expectedRate` (the artifact's
- * `cutoff.flagRate`; null when the artifact does not state one).
+ * Each day's flag rate, checked with a Wilson interval against `expectedRate` (the artifact's
+ * `cutoff.flagRate`; null when the artifact does not state one). The days are tested together:
+ * each interval is Bonferroni-corrected for the number of days checked, so a window whose every
+ * day runs at the expected rate is called "above" or "below" on some day with probability at most
+ * 5 % (seven uncorrected 95 % checks would do so in about 30 % of quiet weeks).
  *
  * @example
  * dayFlagRates([{ day: "2026-12-01", scored: 263, flagged: 81 }], 0.25)[0].check?.verdict // "above"
  */
 export function dayFlagRates(volumes: readonly DayVolume[], expectedRate: number | null): DayFlagRate[] {
+  const tested = volumes.filter((v) => v.scored > 0).length;
+  const confidence = tested > 0 ? bonferroniConfidence(FLAG_RATE_FAMILY_CONFIDENCE, tested) : FLAG_RATE_FAMILY_CONFIDENCE;
   return volumes.map((v) => ({
     ...v,
     rate: v.scored > 0 ? v.flagged / v.scored : null,
-    check: v.scored > 0 && expectedRate !== null ? flagRateCheck(v.flagged, v.scored, expectedRate) : null,
+    check: v.scored > 0 && expectedRate !== null ? flagRateCheck(v.flagged, v.scored, expectedRate, confidence) : null,
   }));
 }
 
 /**
  * Why the live model is due for refit: a column or the score "shifted", a day's flag rate outside
- * its interval, or the model older than `refitAfterDays`. Empty when none applies.
+ * its (corrected, see {@link dayFlagRates}) interval, or the model older than `refitAfterDays`. Empty when none applies.
  *
  * @example
  * refitReasons(drift, rates, 35, 28) // ["the model is 35 days old (refit after 28)"]
@@ -77,7 +85,8 @@ export function refitReasons(drift: readonly DriftEntry[], rates: readonly DayFl
     const check = day.check;
     if (check && check.verdict !== "as-expected") {
       reasons.push(
-        `flag rate on ${day.day} is ${check.verdict} the expected ${pct(check.expectedRate)} (observed ${pct(check.observedRate)}, 95 % interval ${pct(check.low)}–${pct(check.high)})`,
+        `flag rate on ${day.day} is ${check.verdict} the expected ${pct(check.expectedRate)} (observed ${pct(check.observedRate)}, ` +
+          `${pct(check.confidence)} interval ${pct(check.low)}–${pct(check.high)}, Bonferroni-corrected for ${rates.filter((r) => r.check).length} daily tests)`,
       );
     }
   }

@@ -63,11 +63,14 @@ export const scoreAnswerSchema = z
     decision: z.enum(["review", "pass"]).describe("`review`: beyond the cutoff, sent to human review. isodense never declines."),
     logDensity: z.number().describe("Natural-log density under the segment's Gaussian."),
     mahalanobisSq: z.number().describe("Squared Mahalanobis distance d²."),
-    tailProbability: z.number().describe("P(χ²ₙ > d²), comparable across segments and models."),
+    tailProbability: z.number().describe("P(χ²ₙ > d²), comparable across segments and models; 0 once it underflows a double."),
+    log10TailProbability: z
+      .number()
+      .describe("log₁₀ P(χ²ₙ > d²) from the log of the incomplete gamma function: finite where `tailProbability` underflows; sort by this."),
     cutoff: z.object({ mahalanobisSq: z.number(), tailProbability: z.number(), logDensity: z.number() }),
     modelVersion: z.string(),
     segment: z.string().describe("Segment key that scored the payment (`*` = pooled model)."),
-    reasons: z.array(reasonSchema).describe("Features with the largest standardized conditional residuals, largest first."),
+    reasons: z.array(reasonSchema).describe("Features whose conditional residuals are least likely, rarest first (by the tail probability of the residual, so one- and two-column features rank on one scale)."),
     auditSample: z.boolean().describe("True when a passing payment was also sent to review as part of the audit sample."),
   })
   .describe("Score of one payment.");

@@ -112,6 +112,7 @@ export function scorePayment(
     logDensity: result.logDensity,
     mahalanobisSq: result.mahalanobisSq,
     tailProbability: result.tailProbability,
+    log10TailProbability: result.log10TailProbability,
     cutoff: {
       mahalanobisSq: live.compiled.cutoffMahalanobisSq,
       tailProbability: live.compiled.cutoffTailProbability,
