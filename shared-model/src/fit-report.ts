@@ -1,0 +1,99 @@
+/** The fit's report for people: what was read, how the model was shaped and estimated, the cutoff. */
+import type { FitOptions } from "./fit-types";
+import type { ModelSlot } from "./fit-slots";
+import type { CovarianceShape, Diagnostic, EstimatorName } from "./types";
+
+/** Everything the report speaks of. */
+export interface ReportInput {
+  options: FitOptions;
+  rowsRead: number;
+  rowsUsed: number;
+  rowsExcludedAsFraud: number;
+  shape: CovarianceShape;
+  shapeReason: string;
+  fitted: ModelSlot[];
+  /** A line saying where the robust estimator ran when not on every row; omitted otherwise. */
+  robustNote?: string;
+  fallbacks: Map<string, string>;
+  segmentCounts: Map<string, number>;
+  warnings: Diagnostic[];
+  cut: { mahalanobisSq: number; tailProbability: number; flagRate: number };
+  logDensity: Record<string, number>;
+  n: number;
+  minSegmentRows: number;
+  seed: number;
+}
+
+/** The report's lines for people: rows, shape, estimator, segments, conditioning, warnings, cutoff. */
+export function reportLines(r: ReportInput): string[] {
+  const lines: string[] = [];
+  const source = r.options.source ? ` from ${r.options.source}` : "";
+  lines.push(
+    `rows: ${count(r.rowsRead)} read${source}, ${count(r.rowsUsed)} used, ${count(r.rowsExcludedAsFraud)} excluded as labelled fraud`,
+  );
+  lines.push(`covariance: ${r.shape} (${r.shapeReason})`);
+  lines.push(`estimator: ${estimatorLine(r.options.estimator, r.fitted[0], r.seed)}`);
+  if (r.robustNote !== undefined) lines.push(r.robustNote);
+  if (r.options.segmentBy !== null) {
+    lines.push(`segments by '${r.options.segmentBy}' (own model from ${count(r.minSegmentRows)} rows):`);
+    for (const slot of r.fitted.slice(1)) {
+      lines.push(`  ${slot.key}: ${count(slot.rows)} rows, ${estimatorBrief(slot)}, condition number ${num(slot.conditionNumber)}`);
+    }
+    for (const key of [...r.fallbacks.keys()].sort()) {
+      lines.push(`  ${key}: ${count(r.segmentCounts.get(key) ?? 0)} rows → pooled model (${r.fallbacks.get(key)})`);
+    }
+    if (r.segmentCounts.size === 0) lines.push(`  (no row has a value in '${r.options.segmentBy}'; every row is pooled)`);
+  }
+  lines.push(`condition number of the pooled covariance: ${num(r.fitted[0].conditionNumber)}`);
+  for (const d of r.warnings) {
+    if (d.severity === "info") continue;
+    lines.push(`${d.severity}: ${d.message}${d.remedy ? ` — ${d.remedy}` : ""}`);
+  }
+  lines.push(
+    `cutoff: flag when d² > ${num(r.cut.mahalanobisSq)} (tail probability P(χ²${r.n} > d²) < ${num(r.cut.tailProbability)}); ` +
+      `flags ${pct(r.cut.flagRate)} of training rows (asked ${pct(r.options.cutoffRate)})`,
+  );
+  lines.push(
+    `log-density cutoff per segment: ${Object.entries(r.logDensity)
+      .map(([key, value]) => `${key} ${num(value)}`)
+      .join(", ")}`,
+  );
+  return lines;
+}
+
+function estimatorLine(estimator: EstimatorName, pooled: ModelSlot, seed: number): string {
+  const details = pooled.estimate?.details;
+  if (details?.estimator === "shrinkage") {
+    return `shrinkage (Ledoit–Wolf toward (tr S/n)·I, divides by m), pooled δ = ${num(details.shrinkage)}`;
+  }
+  if (details?.estimator === "robust") {
+    return (
+      `robust (FAST-MCD, seed ${details.seed ?? seed}): h = ${count(details.h)} of ${count(pooled.rows)} rows, ` +
+      `${count(details.reweightedRows)} rows kept after reweighting`
+    );
+  }
+  return `${estimator} (maximum likelihood, divides by m)`;
+}
+
+function estimatorBrief(slot: ModelSlot): string {
+  const details = slot.estimate?.details;
+  if (details?.estimator === "shrinkage") return `δ = ${num(details.shrinkage)}`;
+  if (details?.estimator === "robust") return `h = ${count(details.h)}, ${count(details.reweightedRows)} rows kept`;
+  return "classical";
+}
+
+/** A whole count with thousands separators: `12,000`. */
+export function count(value: number): string {
+  return String(Math.trunc(value)).replace(/\B(?=(\d{3})+(?!\d))/g, ",");
+}
+
+function num(value: number): string {
+  if (!Number.isFinite(value)) return String(value);
+  const magnitude = Math.abs(value);
+  if (magnitude !== 0 && (magnitude < 1e-3 || magnitude >= 1e6)) return value.toExponential(3);
+  return String(Number(value.toPrecision(4)));
+}
+
+function pct(fraction: number): string {
+  return `${(fraction * 100).toFixed(2)} %`;
+}
