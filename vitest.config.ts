@@ -9,7 +9,7 @@ export default defineConfig({
         test: {
           name: "node",
           environment: "node",
-          include: ["shared-model/**/*.test.ts", "cli/**/*.test.ts", "demo-ledger/**/*.test.ts", "test/node/**/*.test.ts"],
+          include: ["shared-model/**/*.test.ts", "cli/**/*.test.ts", "demo-ledger/**/*.test.ts", "test/node/**/*.test.ts", "scripts/**/*.test.ts"],
           testTimeout: 60_000,
         },
       },

@@ -10,7 +10,8 @@
 import { mkdirSync } from "node:fs";
 import { dirname, join, resolve } from "node:path";
 import { fileURLToPath } from "node:url";
-import { formatHelp, parseArgs, stringOption, UsageError, type CommandSpec } from "../cli/args";
+import { stringOption, type CommandSpec } from "../cli/args";
+import { parseScriptArgs } from "./script-args";
 import { DemoLoopError, runDemoLoop } from "./demo-loop-core";
 import { credentialsOf, readDevVars } from "./dev-vars";
 
@@ -28,20 +29,8 @@ const spec: CommandSpec = {
 };
 
 async function main(): Promise<number> {
-  let args;
-  try {
-    args = parseArgs(process.argv.slice(2), spec);
-  } catch (error) {
-    if (error instanceof UsageError) {
-      process.stderr.write(`demo:loop: ${error.message}\n`);
-      return 2;
-    }
-    throw error;
-  }
-  if (args.help) {
-    process.stdout.write(formatHelp(spec));
-    return 0;
-  }
+  const args = parseScriptArgs(process.argv.slice(2), spec, "demo:loop");
+  if (typeof args === "number") return args;
   const vars = readDevVars(join(root, ".dev.vars"));
   const admin = credentialsOf(vars, "ADMIN_CREDENTIALS")[0];
   const analyst = credentialsOf(vars, "ANALYST_CREDENTIALS")[0];

@@ -11,7 +11,8 @@
 import { existsSync } from "node:fs";
 import { dirname, join, resolve } from "node:path";
 import { fileURLToPath } from "node:url";
-import { parseArgs, numberOption, stringOption, formatHelp, UsageError, type CommandSpec } from "../cli/args";
+import { numberOption, stringOption, type CommandSpec } from "../cli/args";
+import { parseScriptArgs } from "./script-args";
 import { openCsvTable } from "../cli/csv";
 import { credentialsOf, readDevVars } from "./dev-vars";
 
@@ -45,20 +46,8 @@ interface BatchAnswer {
 }
 
 async function main(): Promise<number> {
-  let args;
-  try {
-    args = parseArgs(process.argv.slice(2), spec);
-  } catch (error) {
-    if (error instanceof UsageError) {
-      process.stderr.write(`replay: ${error.message}\n`);
-      return 2;
-    }
-    throw error;
-  }
-  if (args.help) {
-    process.stdout.write(formatHelp(spec));
-    return 0;
-  }
+  const args = parseScriptArgs(process.argv.slice(2), spec, "replay");
+  if (typeof args === "number") return args;
   const url = (stringOption(args, "url") ?? "http://127.0.0.1:8787").replace(/\/$/, "");
   const ledger = resolve(stringOption(args, "ledger") ?? join(root, "demo-ledger/data/ledger.csv"));
   const limit = numberOption(args, "limit") ?? Number.POSITIVE_INFINITY;
