@@ -14,6 +14,7 @@ import {
   sealArtifact,
   sha256Hex,
 } from "./artifact";
+import { recordSpecFromArtifact } from "./records/artifact-spec";
 import type { ModelArtifact } from "./artifact";
 import { cholesky, fromRows, multiply } from "./linalg";
 import { fitted, jsonCopy, sealedFixture, spdFrom, unsealedFixture } from "./test-support";
@@ -411,5 +412,33 @@ describe("sealArtifact and parseArtifact", () => {
       a.features[0] = { ...a.features[0], observed: { min: 980, max: 1.5 } };
     });
     expectProblem(await refusal(bad), "features[0].observed", /min must not exceed max/);
+  });
+
+  it("carries a record spec (mapping and derivations) that a scorer reads back, and keeps older artifacts' checksums", async () => {
+    const plain = await sealed();
+    const withRecords = await tamperAndReseal((a) => {
+      a.record = { id: "paymentId", time: "createdAt", account: "accountRef", lateness: "1h", retention: "30d" };
+      a.features[1] = { ...a.features[1], derive: { count: { within: "24h" } } };
+      a.features[2] = { ...a.features[2], derive: { hourOfDay: { utcOffset: "+01:00" } } };
+    });
+    const parsed = await parseArtifact(JSON.parse(JSON.stringify(withRecords)));
+    const spec = recordSpecFromArtifact(parsed)!;
+    expect(spec.record).toEqual({ id: "paymentId", time: "createdAt", account: "accountRef" });
+    expect(spec.features.map((f) => f.derivation.kind)).toEqual(["read", "count", "hourOfDay"]);
+    // An artifact without the new keys hashes exactly as before: absent keys are not in the canonical text.
+    expect(await artifactChecksum(plain)).toBe(plain.checksum);
+    expect(canonicalJson(plain)).not.toContain("derive");
+    expect(recordSpecFromArtifact(plain)).toBeNull();
+  });
+
+  it("refuses a stored derivation that needs a record mapping the artifact lacks, naming the feature and key", async () => {
+    const bad = await tamperAndReseal((a) => {
+      a.features[1] = { ...a.features[1], derive: { count: { within: "24h" } } };
+    });
+    expectProblem(await refusal(bad), "features[1].count", /needs the spec's top-level "record".*\(feature "basket_items"\)/);
+    const twoKeys = await tamperAndReseal((a) => {
+      a.features[1] = { ...a.features[1], derive: { count: { within: "24h" }, column: "x" } as never };
+    });
+    expectProblem(await refusal(twoKeys), "features[1].derive", /at most one of/);
   });
 });

@@ -12,6 +12,9 @@ import { columnsOf } from "./features";
 import { cholesky, inverseFromCholesky, logDetFromCholesky, symmetrize, toRows } from "./linalg";
 import type { CholeskyResult } from "./linalg";
 import type { EstimatorDetails } from "./types";
+import { FeatureSpecError } from "./features";
+import { recordSpecFromArtifact } from "./records/artifact-spec";
+import { derivationJsonSchema, recordMappingSchema } from "./records/spec";
 
 /** Format tag of the artifact JSON; bumped when the layout changes incompatibly. */
 export const MODEL_FORMAT = "isodense.model/v1";
@@ -61,6 +64,8 @@ const featureSchema = z.strictObject({
   lambda: finite.optional(),
   observed: z.strictObject({ min: finite, max: finite }).optional(),
   columns: z.array(z.string().min(1)).min(1).max(2),
+  /** How the raw value is derived from a payment record (absent: read the column of its name). */
+  derive: derivationJsonSchema.optional(),
 });
 
 const detailsSchema = z.discriminatedUnion("estimator", [
@@ -108,6 +113,8 @@ export const modelArtifactSchema = z.strictObject({
   format: z.literal(MODEL_FORMAT),
   version: z.string().min(1).max(200),
   createdAt: z.iso.datetime({ offset: true }),
+  /** Ledger columns that identify a payment record; present when the features derive from records. */
+  record: recordMappingSchema.optional(),
   features: z.array(featureSchema).min(1).max(MAX_MODEL_COLUMNS),
   columns: z.array(z.string().min(1)).min(1).max(MAX_MODEL_COLUMNS),
   covarianceShape: z.enum(["full", "diagonal"]),
@@ -528,6 +535,14 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
     problems.push({ path, rule });
   };
   const n = a.columns.length;
+
+  // The record spec, when the features derive from payment records.
+  try {
+    recordSpecFromArtifact(a);
+  } catch (err) {
+    if (!(err instanceof FeatureSpecError)) throw err;
+    for (const p of err.problems) add(p.field, p.rule);
+  }
 
   // Features and columns.
   const names = new Set<string>();

@@ -70,7 +70,12 @@ export class FeatureSpecError extends Error {
   }
 }
 
-function describeReceived(value: unknown): string {
+/**
+ * Describes a received JSON value for an error message: `nothing`, `null`, `an array of 3`,
+ * `an object`, a quoted string (cut at 80 characters) or the number.
+ * @example describeReceived("sqrt") // "\"sqrt\""
+ */
+export function describeReceived(value: unknown): string {
   if (value === undefined) return "nothing";
   if (value === null) return "null";
   if (Array.isArray(value)) return `an array of ${value.length}`;
@@ -80,11 +85,12 @@ function describeReceived(value: unknown): string {
 }
 
 /** zod error callback: "is required" when the key is missing, else `must be <expected>`. */
-function expecting(expected: string) {
+export function expecting(expected: string) {
   return (issue: { input?: unknown }) => (issue.input === undefined ? "is required" : `must be ${expected}`);
 }
 
-const nameSchema = z
+/** zod schema of a feature name: non-empty, at most 64 characters, no comma, no surrounding whitespace. */
+export const featureNameSchema = z
   .string({ error: expecting("a string") })
   .min(1, { error: "must not be empty" })
   .refine((name) => [...name].length <= MAX_FEATURE_NAME_LENGTH, { error: `must be at most ${MAX_FEATURE_NAME_LENGTH} characters` })
@@ -92,12 +98,13 @@ const nameSchema = z
   .refine((name) => !name.includes(","), { error: "must not contain a comma" })
   .refine((name) => name.length === 0 || name.trim() === name, { error: "must not start or end with whitespace" });
 
-const transformSchema = z.enum(TRANSFORM_KINDS as [TransformKind, ...TransformKind[]], {
+/** zod schema of a transform kind, with an error listing the kinds. */
+export const featureTransformSchema = z.enum(TRANSFORM_KINDS as [TransformKind, ...TransformKind[]], {
   error: (issue) => (issue.input === undefined ? "is required" : `must be one of ${TRANSFORM_KINDS.join(", ")}`),
 });
 
 const featureSchema = z.strictObject(
-  { name: nameSchema, transform: transformSchema },
+  { name: featureNameSchema, transform: featureTransformSchema },
   { error: (issue) => (issue.code === "unrecognized_keys" ? undefined : expecting('an object { "name": …, "transform": … }')(issue)) },
 );
 
@@ -172,14 +179,29 @@ function valueAt(json: unknown, path: readonly PropertyKey[]): unknown {
 export function parseFeatureSpec(json: unknown): FeatureDeclaration[] {
   const result = featureSpecSchema.safeParse(json);
   if (result.success) return result.data.features.map((f) => ({ name: f.name, transform: f.transform }));
+  throw new FeatureSpecError(specProblems(json, result.error.issues, (parent) => (parent.length === 0 ? "features" : "name, transform")));
+}
+
+/**
+ * Turns zod issues over a spec document into problems that name the field and the rule with what
+ * came; an unknown key lists the keys allowed where it stands.
+ * @param json the decoded document the issues refer to
+ * @param issues zod's issues, in document order
+ * @param allowedAt the keys allowed in the object at a path, e.g. `"name, transform"`
+ * @example specProblems({ features: 1 }, issues, () => "features") // [{ field: "features", rule: "must be …; got 1" }]
+ */
+export function specProblems(
+  json: unknown,
+  issues: readonly { code: string; path: readonly PropertyKey[]; message: string; keys?: readonly string[] }[],
+  allowedAt: (parent: readonly PropertyKey[]) => string,
+): FeatureSpecProblem[] {
   const problems: FeatureSpecProblem[] = [];
-  for (const issue of result.error.issues) {
+  for (const issue of issues) {
     if (issue.code === "unrecognized_keys") {
       const parent = issue.path;
-      const allowed = parent.length === 0 ? "features" : "name, transform";
-      for (const key of issue.keys) {
+      for (const key of issue.keys ?? []) {
         const received = describeReceived(valueAt(json, [...parent, key]));
-        problems.push({ field: formatPath([...parent, key]), rule: `is not a recognised key (allowed: ${allowed}); got ${received}` });
+        problems.push({ field: formatPath([...parent, key]), rule: `is not a recognised key (allowed: ${allowedAt(parent)}); got ${received}` });
       }
       continue;
     }
@@ -187,7 +209,7 @@ export function parseFeatureSpec(json: unknown): FeatureDeclaration[] {
     const rule = issue.message === "is required" ? issue.message : `${issue.message}; got ${describeReceived(received)}`;
     problems.push({ field: formatPath(issue.path), rule });
   }
-  throw new FeatureSpecError(problems);
+  return problems;
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -15,6 +15,7 @@ import {
 import { cutoffForFlagRate } from "./cutoff";
 import type { ModelSlot, ModelSlots } from "./fit-slots";
 import { DECILES, LN_2PI, type FitOptions } from "./fit-types";
+import { withRecordSpec } from "./records/artifact-spec";
 import { quantiles } from "./reservoir";
 import type { CovarianceShape, Diagnostic, FittedFeature } from "./types";
 
@@ -64,7 +65,7 @@ export async function sealFit(input: ArtifactInput): Promise<SealedFit> {
   const content: Omit<UnsealedArtifact, "version"> = {
     format: "isodense.model/v1",
     createdAt,
-    features: input.features,
+    ...withRecordSpec(options.recordSpec, input.features),
     columns,
     covarianceShape: input.shape,
     shapeReason: input.shapeReason,

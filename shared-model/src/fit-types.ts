@@ -2,6 +2,7 @@
  * The fit's public shapes: the rows it reads, its options, its report, its input error, and the
  * sizes of its samples. Kept apart from the passes so every pass module can import them.
  */
+import type { RecordSpec } from "./records/spec";
 import type { CovarianceShape, CovarianceShapeRequest, Diagnostic, EstimatorName, FeatureDeclaration } from "./types";
 
 /** One training row as the fit reads it. */
@@ -58,6 +59,11 @@ export interface FitOptions {
    */
   rowsRead?: number;
   rowsExcludedAsFraud?: number;
+  /**
+   * The record spec the rows were derived with (same features, same order): the artifact carries
+   * its `record` and each feature's derivation, so the edge derives exactly as the fit did.
+   */
+  recordSpec?: RecordSpec;
   /** Called every few thousand rows and at the end of each pass (`read`, `moments`, `fourth-moments`, `cutoff`). */
   onProgress?: (pass: string, rows: number) => void;
 }

@@ -17,3 +17,4 @@ export * from "./fit";
 export * from "./tuning";
 export * from "./estimates";
 export * from "./drift";
+export * from "./records";
