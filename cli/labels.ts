@@ -2,13 +2,16 @@
  * Reading the labelled set: the review app's export of decided payments (one row per decision)
  * with the model's feature columns, the outcome (`fraud` / `legitimate`, or 1 / 0), the weight
  * 1 / inclusion probability (1 for flags, 1/rate for audit draws; Horvitz & Thompson 1952) and the
- * payment id. Labels fit in memory (they are a small share of traffic), so the whole set is read
+ * payment id. The export marks text cells that a spreadsheet would read as a formula with a leading
+ * apostrophe (shared-model's spreadsheet-cell.ts); the header, the id and the segment are read back
+ * through {@link restoreTextCell}, so ids survive the round trip exactly. Labels fit in memory (they are a small share of traffic), so the whole set is read
  * at once and every row is validated with file, line and column in the message.
  */
 import type { FeatureDeclaration } from "../shared-model/src/types";
 import { checkRawValue } from "../shared-model/src/features";
 import { CsvError, numberCell, openCsvTable, requireColumn, type CsvReadOptions } from "./csv";
 import { labelCell } from "./ledger";
+import { restoreTextCell } from "../shared-model/src/spreadsheet-cell";
 
 /** Id columns tried in order when none is named: the brief's name, then the export's `id`. */
 export const DEFAULT_LABELS_ID_COLUMNS = ["transactionId", "id"] as const;
@@ -82,7 +85,8 @@ export interface LabelSet {
  */
 export async function readLabels(path: string, request: LabelsRequest, options: CsvReadOptions = {}): Promise<LabelSet> {
   const table = await openCsvTable(path, options);
-  const { file, header } = table;
+  const file = table.file;
+  const header = table.header.map(restoreTextCell);
   try {
     const k = request.features.length;
     const featureIndex = request.features.map((f) => requireColumn(header, f.name, file, "feature of the model"));
@@ -124,7 +128,7 @@ export async function readLabels(path: string, request: LabelsRequest, options: 
     let duplicatesSkipped = 0;
     for await (const record of table.rows) {
       const cells = record.cells;
-      const id = cells[idIndex];
+      const id = restoreTextCell(cells[idIndex]);
       if (id.trim() === "") throw new CsvError(file, record.line, idColumn, "the id is empty; every decided payment needs its id");
       const label = labelCell(cells[labelIndex], file, record.line, labelColumn);
       if (label === null) {
@@ -161,7 +165,7 @@ export async function readLabels(path: string, request: LabelsRequest, options: 
         if (problem !== null) throw new CsvError(file, record.line, column, problem);
         values.push(value);
       }
-      const segmentText = segmentIndex < 0 ? "" : cells[segmentIndex];
+      const segmentText = segmentIndex < 0 ? "" : restoreTextCell(cells[segmentIndex]);
       ids.push(id);
       fraud.push(isFraud ? 1 : 0);
       weights.push(weight);

@@ -18,3 +18,4 @@ export * from "./tuning";
 export * from "./estimates";
 export * from "./drift";
 export * from "./records";
+export * from "./spreadsheet-cell";

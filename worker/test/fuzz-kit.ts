@@ -191,7 +191,7 @@ export const hostileString: fc.Arbitrary<string> = fc.oneof(
   fc.constantFrom("\u0000", "\uD800", "\uDFFF", "\u202E", "\u200B", "💳", "' OR 1=1 --", "<script>alert(1)</script>", "\r\n", "%00", "../../etc"),
 );
 
-/** A media type other than application/json (or none at all: null). */
+/** A media type other than application/json, or JSON in a charset other than UTF-8 (or none at all: null). */
 export const wrongContentType: fc.Arbitrary<string | null> = fc.constantFrom(
   null,
   "text/plain",
@@ -203,6 +203,10 @@ export const wrongContentType: fc.Arbitrary<string | null> = fc.constantFrom(
   "",
   "application/json-seq",
   "text/json",
+  // JSON declared in another charset: read as UTF-8 it would mean something else.
+  "application/json; charset=utf-16",
+  "application/json; charset=UTF-16LE",
+  'application/json; charset="iso-8859-1"',
 );
 
 /** Bytes that are not valid UTF-8. */

@@ -56,7 +56,11 @@ const EXPORT_KEYS = ["format", "modelVersion"];
 const validListPair: fc.Arbitrary<[string, string]> = fc.oneof(
   fc.constantFrom<[string, string]>(["state", "open"], ["state", "decided"], ["sort", "tail"], ["direction", "asc"], ["limit", "20"], ["selection", "flagged"], ["segment", "web"]),
 );
-const notDate = fc.string({ maxLength: 30 }).filter((t) => !/^\d{4}-\d{2}-\d{2}/.test(t));
+const notDate = fc.oneof(
+  fc.string({ maxLength: 30 }).filter((t) => !/^\d{4}-\d{2}-\d{2}/.test(t)),
+  // Well-shaped but impossible calendar days (they once became NaN and emptied the queue).
+  fc.constantFrom("2026-13-45", "2026-02-30", "2026-00-10", "2026-04-31", "2025-02-29", "2026-02-30T10:00:00Z", "2026-13-01T00:00:00Z"),
+);
 
 /** One definite breaker of a query with the given known keys. */
 function queryBreaker(keys: string[]): fc.Arbitrary<{ pairs: [string, string][]; broke: string }> {
@@ -77,6 +81,7 @@ function queryBreaker(keys: string[]): fc.Arbitrary<{ pairs: [string, string][];
   if (has("cursor")) options.push(fc.oneof(fc.string({ minLength: 1, maxLength: 60 }), fc.base64String({ minLength: 4, maxLength: 60 }), fc.string({ minLength: 513, maxLength: 700 })).map((v) => ({ pairs: [["cursor", v]], broke: "cursor" })));
   if (has("selection")) options.push(fc.string({ maxLength: 10 }).filter((v) => v !== "flagged" && v !== "audit").map((v) => ({ pairs: [["selection", v]], broke: "selection" })));
   if (has("from")) options.push(notDate.map((v) => ({ pairs: [["from", v]], broke: "from" })));
+  if (has("to")) options.push(notDate.map((v) => ({ pairs: [["to", v]], broke: "to" })));
   if (has("to")) options.push(fc.constant({ pairs: [["from", "2026-12-02"], ["to", "2026-12-01"]] as [string, string][], broke: "to before from" }));
   if (has("segment")) options.push(fc.oneof(fc.constant(""), fc.string({ minLength: 65, maxLength: 100 })).map((v) => ({ pairs: [["segment", v]], broke: "segment length" })));
   if (has("modelVersion")) options.push(fc.oneof(fc.constant(""), fc.string({ minLength: 129, maxLength: 200 })).map((v) => ({ pairs: [["modelVersion", v]], broke: "modelVersion length" })));
@@ -119,6 +124,11 @@ function decisionRequests(token: string): fc.Arbitrary<FuzzRequest> {
     fc.constantFrom("fraud", "legitimate").chain((o) => fc.oneof(notAString.filter((n) => n !== undefined), fc.string({ minLength: 2001, maxLength: 2100 })).map((n) => at(JSON.stringify({ outcome: o, note: n }), "note"))),
     fc.string({ minLength: 1, maxLength: 10 }).filter((k) => k !== "outcome" && k !== "note").map((k) => at(JSON.stringify({ outcome: "fraud", [k]: 1 }), "unknown key")),
     withProtoKey({ outcome: "fraud" }).map((t) => at(t, "__proto__ key")),
+    // Text that can mislead a reader: controls, bidirectional overrides and isolates, lone surrogates.
+    fc
+      .tuple(fc.string({ maxLength: 20 }), fc.constantFrom("\u0000", "\u001b", "\u007f", "\u0085", "\u202a", "\u202e", "\u2066", "\u2069", "\uD800", "\uDFFF"), fc.string({ maxLength: 20 }))
+      .filter(([a, , b]) => !/[\uD800-\uDFFF]/.test(a + b))
+      .map(([a, bad, b]) => at(JSON.stringify({ outcome: "fraud", note: `${a}${bad}${b}` }), "note with a misleading character")),
     deepNestingUpTo(15_000).map((t) => at(`{"outcome":"fraud","note":${t}}`, "deeply nested note")),
     fc.constant(at("{}", "outcome missing")),
     // A well-formed decision without a claim must be refused too (409 claim-required).

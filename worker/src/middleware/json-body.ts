@@ -1,6 +1,7 @@
 /**
  * Reads a JSON request body with three checks, in this order, each answered with its own status:
- * the content type must be `application/json` (415), the body must fit the route's byte limit
+ * the content type must be `application/json`, with no charset or `charset=utf-8` (415: a body
+ * declared as UTF-16 or Latin-1 would otherwise be read as UTF-8 and mean something else), the body must fit the route's byte limit
  * (413, checked on the declared length and again while streaming, so a lying or absent
  * Content-Length cannot get past it; a refused body of up to 1 MiB is read to its end first, see
  * DRAIN_LIMIT_BYTES), and it must be UTF-8 JSON (400). The parsed value is stored
@@ -49,6 +50,12 @@ export function jsonBody(limitBytes: number): MiddlewareHandler<AppEnv> {
         },
       ]);
     }
+    const charset = declaredCharset(contentType!);
+    if (charset !== null && charset !== "utf-8" && charset !== "utf8") {
+      return problemResponse(c, 415, "unsupported-media-type", [
+        { field: "content-type", rule: `must declare charset=utf-8 or no charset (JSON is UTF-8, RFC 8259). Actual: charset=${JSON.stringify(charset.slice(0, 40))}` },
+      ]);
+    }
     const declared = c.req.header("content-length");
     if (declared !== undefined && /^\d+$/.test(declared) && Number(declared) > limitBytes) {
       if (Number(declared) <= DRAIN_LIMIT_BYTES) await drain(c.req.raw.body?.getReader() ?? null, DRAIN_LIMIT_BYTES);
@@ -74,6 +81,20 @@ export function jsonBody(limitBytes: number): MiddlewareHandler<AppEnv> {
     c.set("body", value);
     await next();
   };
+}
+
+/** The `charset` parameter of a content type, lower-cased and unquoted; null when there is none. */
+function declaredCharset(contentType: string): string | null {
+  for (const parameter of contentType.split(";").slice(1)) {
+    const equals = parameter.indexOf("=");
+    if (equals < 0 || parameter.slice(0, equals).trim().toLowerCase() !== "charset") continue;
+    return parameter
+      .slice(equals + 1)
+      .trim()
+      .replace(/^"(.*)"$/, "$1")
+      .toLowerCase();
+  }
+  return null;
 }
 
 function tooLarge(c: Parameters<MiddlewareHandler<AppEnv>>[0], limitBytes: number, actual: string): Response {

@@ -1,12 +1,15 @@
 /**
  * The labelled set: every decided item with its features, scores, outcome and audit-sample weight,
  * as CSV (RFC 4180, header of plain column names, readable by `isodense fit` / `score` with
- * `--label-column outcome`) or NDJSON. Streamed in pages of EXPORT_PAGE rows along the decision
+ * `--label-column outcome`) or NDJSON. CSV text cells are spreadsheet-safe (a leading `=`, `+`,
+ * `-`, `@`, tab or carriage return gets an apostrophe in front, see shared-model's
+ * spreadsheet-cell.ts, which the CLI's label reader undoes); NDJSON stays verbatim. Streamed in pages of EXPORT_PAGE rows along the decision
  * index, so memory stays flat whatever the size.
  */
 import type { Env } from "../env";
 import { modelFor } from "./evidence";
 import { ModelLoadError } from "../scoring/model-cache";
+import { neutraliseTextCell } from "../../../shared-model/src/spreadsheet-cell";
 
 const EXPORT_PAGE = 500;
 
@@ -80,10 +83,13 @@ export async function exportFeatureColumns(env: Pick<Env, "DB" | "MODELS">, mode
   return columns;
 }
 
-/** One CSV cell as RFC 4180 requires: quoted when it holds a comma, quote or line break. */
+/**
+ * One CSV cell as RFC 4180 requires (quoted when it holds a comma, quote or line break); text is
+ * made spreadsheet-safe first. Numbers are written as JavaScript prints them and never marked.
+ */
 function csvCell(value: string | number | null): string {
   if (value === null) return "";
-  const text = String(value);
+  const text = typeof value === "string" ? neutraliseTextCell(value) : String(value);
   return /[",\r\n]/.test(text) ? `"${text.replace(/"/g, '""')}"` : text;
 }
 

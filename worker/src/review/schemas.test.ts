@@ -1,5 +1,5 @@
 import { describe, expect, it } from "vitest";
-import { decisionBodySchema, listQuerySchema, timeRange } from "./schemas";
+import { countsQuerySchema, decisionBodySchema, isCalendarDay, listQuerySchema, timeRange } from "./schemas";
 import { dailyCapacity, DEFAULT_DAILY_CAPACITY, utcDayStart } from "./settings";
 
 describe("review inputs", () => {
@@ -10,6 +10,19 @@ describe("review inputs", () => {
       toMs: Date.UTC(2026, 11, 1, 11, 30),
     });
     expect(timeRange(undefined, undefined)).toEqual({ fromMs: undefined, toMs: undefined });
+  });
+
+  it("knows which days exist: month 1 to 12, the month's own length, 29 February in leap years only", () => {
+    for (const day of ["2026-01-31", "2026-02-28", "2024-02-29", "2000-02-29", "2026-04-30", "2026-12-31", "2026-12-01T10:00:00Z"]) expect(isCalendarDay(day), day).toBe(true);
+    for (const day of ["2026-13-45", "2026-02-30", "2026-00-10", "2026-04-31", "2025-02-29", "1900-02-29", "2026-01-00", "20260101", "tomorrow"]) expect(isCalendarDay(day), day).toBe(false);
+  });
+
+  it("refuses an impossible day or instant in from and to, which Date.parse would roll over or make NaN", () => {
+    for (const query of [{ from: "2026-13-45" }, { to: "2026-02-30" }, { from: "2026-02-30T10:00:00Z" }]) {
+      const parsed = countsQuerySchema.safeParse(query);
+      expect(parsed.success, JSON.stringify(query)).toBe(false);
+      expect(parsed.error?.issues[0].path).toEqual(Object.keys(query));
+    }
   });
 
   it("accepts a note of exactly 2,000 characters and refuses 2,001", () => {

