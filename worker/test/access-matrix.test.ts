@@ -147,14 +147,13 @@ describe("role × route", () => {
 });
 
 describe("rate limiting of credential failures", () => {
-  test(`answers 429 with Retry-After after ${FAILURE_LIMIT} wrong credentials from one client, to that client only`, async () => {
+  test(`answers 429 with Retry-After to wrong credentials after ${FAILURE_LIMIT} from one address, and never to a valid one`, async () => {
     const client = "203.0.113.50";
     for (let i = 0; i < FAILURE_LIMIT; i++) {
       const wrong = await call("POST", "/v1/score", SCORE_BODY, `test-wrong-${String(i).padStart(30, "0")}`, client);
       expect(wrong.status, `failure ${i + 1}`).toBe(401);
     }
-    // Now even the right token from that client is refused unchecked, so guessing learns nothing.
-    const limited = await call("POST", "/v1/score", SCORE_BODY, worker.tokens.flow, client);
+    const limited = await call("POST", "/v1/score", SCORE_BODY, "test-wrong-one-more-000000000000000000", client);
     expect(limited.status).toBe(429);
     const retryAfter = Number(limited.headers.get("retry-after"));
     expect(retryAfter).toBeGreaterThanOrEqual(1);
@@ -162,14 +161,27 @@ describe("rate limiting of credential failures", () => {
     const body = (await limited.json()) as { error: string; problems: { field: string; rule: string }[] };
     expect(body.error).toBe("too-many-credential-failures");
     expect(body.problems[0].field).toBe("authorization");
-    expect(body.problems[0].rule).toMatch(new RegExp(`^${FAILURE_LIMIT} wrong credentials from this client in the last 60 s; retry after \\d+ s$`));
+    expect(body.problems[0].rule).toMatch(new RegExp(`^${FAILURE_LIMIT} wrong credentials from this address in the last 60 s; retry after \\d+ s$`));
     expectApiHeaders(limited, "429");
-    // A malformed header from the limited client is refused the same way.
+    // A malformed header from the limited address is refused the same way.
     const malformed = await worker.fetch("/v1/echo", { method: "POST", headers: { authorization: "Basic eDp5", "cf-connecting-ip": client, "content-type": "application/json" }, body: "{}" });
     expect(malformed.status).toBe(429);
-    // Another client with the right token is unaffected; public routes stay open to the limited one.
-    expect((await call("POST", "/v1/score", SCORE_BODY, worker.tokens.flow, "203.0.113.51")).status).toBe(200);
+    // The payment flow sharing that address (a NAT, a replica with a rotated-out token) still scores.
+    for (const token of [worker.tokens.flow, worker.tokens.flow2]) expect((await call("POST", "/v1/score", SCORE_BODY, token, client)).status).toBe(200);
+    expect((await call("GET", "/v1/review/me", undefined, worker.tokens.analyst, client)).status).toBe(200);
+    // Other addresses are unaffected; public routes stay open to the limited one.
+    expect((await call("POST", "/v1/score", SCORE_BODY, "test-wrong-elsewhere-00000000000000000", "203.0.113.51")).status).toBe(401);
     expect((await call("GET", "/v1/health", undefined, null, client)).status).toBe(200);
+  });
+
+  test("counts IPv6 failures per /64, so rotating addresses inside one prefix does not escape the limit", async () => {
+    for (let i = 0; i < FAILURE_LIMIT; i++) {
+      const wrong = await call("GET", "/v1/review/me", undefined, `test-wrong-v6-${String(i).padStart(28, "0")}`, `2001:db8:77:1::${(i + 1).toString(16)}`);
+      expect(wrong.status, `failure ${i + 1}`).toBe(401);
+    }
+    expect((await call("GET", "/v1/review/me", undefined, "test-wrong-v6-last-000000000000000000000", "2001:0db8:0077:0001:ffff::9")).status).toBe(429);
+    expect((await call("GET", "/v1/review/me", undefined, "test-wrong-v6-next-000000000000000000000", "2001:db8:77:2::1")).status).toBe(401);
+    expect((await call("GET", "/v1/review/me", undefined, worker.tokens.analyst, "2001:db8:77:1::5")).status).toBe(200);
   });
 
   test("does not count requests without credentials, nor right ones", async () => {

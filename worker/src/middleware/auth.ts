@@ -23,29 +23,30 @@ export function authenticate(): MiddlewareHandler<AppEnv> {
     if (header === undefined) {
       return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "is required: expected 'Bearer <token>'" }], { headers: CHALLENGE });
     }
-    // Too many wrong credentials from this client lately: refuse before looking at this one.
+    // The token is always checked: a valid credential passes whatever its address's failure count
+    // (others behind the same NAT must not lock the payment flow out); a failing one is counted,
+    // and refused with 429 while its address is over the limit.
     const client = clientKey(c.req.raw.headers);
-    const verdict = credentialFailures.check(client, Date.now());
-    if (verdict.limited) {
-      return problemResponse(
-        c,
-        429,
-        "too-many-credential-failures",
-        [{ field: "authorization", rule: `${verdict.failures} wrong credentials from this client in the last 60 s; retry after ${verdict.retryAfterSeconds} s` }],
-        { headers: { "retry-after": String(verdict.retryAfterSeconds) } },
-      );
-    }
     const match = /^Bearer[ ]+([^\s]+)\s*$/i.exec(header);
-    if (!match) {
-      credentialFailures.recordFailure(client, Date.now());
-      return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "must be 'Bearer <token>' (one token, Bearer scheme)" }], {
-        headers: CHALLENGE,
-      });
-    }
-    const table = await credentialTable(c.env);
-    const principal = await table.identify(match[1]);
+    const principal = match ? await (await credentialTable(c.env)).identify(match[1]) : null;
     if (principal === null) {
-      credentialFailures.recordFailure(client, Date.now());
+      const now = Date.now();
+      const verdict = credentialFailures.check(client, now);
+      if (verdict.limited) {
+        return problemResponse(
+          c,
+          429,
+          "too-many-credential-failures",
+          [{ field: "authorization", rule: `${verdict.failures} wrong credentials from this address in the last 60 s; retry after ${verdict.retryAfterSeconds} s` }],
+          { headers: { "retry-after": String(verdict.retryAfterSeconds) } },
+        );
+      }
+      credentialFailures.recordFailure(client, now);
+      if (!match) {
+        return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "must be 'Bearer <token>' (one token, Bearer scheme)" }], {
+          headers: CHALLENGE,
+        });
+      }
       return problemResponse(c, 401, "unauthorized", [{ field: "authorization", rule: "the bearer token is not a known credential" }], {
         headers: { "www-authenticate": 'Bearer realm="isodense", error="invalid_token"' },
       });

@@ -45,4 +45,16 @@ describe("clientKey", () => {
     expect(clientKey(new Headers())).toBe("unidentified");
     expect(clientKey(new Headers({ "cf-connecting-ip": "x".repeat(65) }))).toBe("unidentified");
   });
+
+  test("buckets IPv6 addresses by their /64 in one canonical spelling, and reads IPv4-mapped ones as IPv4", () => {
+    const key = (ip: string) => clientKey(new Headers({ "cf-connecting-ip": ip }));
+    for (const ip of ["2001:db8:1:2::1", "2001:db8:1:2:ffff:ffff:ffff:ffff", "2001:0DB8:0001:0002:0:0:0:9", "2001:db8:1:2::a%eth0", "2001:db8:1:2:0:0:192.0.2.1"]) {
+      expect(key(ip), ip).toBe("2001:db8:1:2::/64");
+    }
+    expect(key("2001:db8:1:3::1")).toBe("2001:db8:1:3::/64");
+    expect(key("::1")).toBe("0:0:0:0::/64");
+    expect(key("2001:db8::")).toBe("2001:db8:0:0::/64");
+    expect(key("::ffff:203.0.113.7")).toBe("203.0.113.7");
+    for (const bad of ["2001:db8::1::2", "2001:db8:1:2:3:4:5:6:7", "2001:db8:zz::1", "1:2:3"]) expect(key(bad), bad).toBe("unidentified");
+  });
 });

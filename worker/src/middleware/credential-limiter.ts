@@ -1,19 +1,25 @@
 /**
- * Rate limiting of credential failures, per client, in the isolate's memory.
+ * Rate limiting of credential failures, per client address, in the isolate's memory.
  *
- * A client (keyed by `cf-connecting-ip`, which Cloudflare sets on every request and a caller
- * cannot forge past the edge) that presents {@link FAILURE_LIMIT} wrong or malformed credentials
- * within {@link FAILURE_WINDOW_MS} is answered 429 with `Retry-After` on every request that carries
- * a credential, until the oldest of those failures leaves the window (a sliding window over the
- * failure times). While limited, a presented token is not even checked, so guessing gains no
- * information. Requests without an Authorization header are not counted: they reveal nothing.
+ * A client address (`cf-connecting-ip`, which Cloudflare sets on every request and a caller cannot
+ * forge past the edge; IPv6 counted per /64, see {@link clientKey}) that presents
+ * {@link FAILURE_LIMIT} wrong or malformed credentials within {@link FAILURE_WINDOW_MS} has every
+ * further wrong or malformed credential answered 429 with `Retry-After`, until the oldest of those
+ * failures leaves the window (a sliding window over the failure times). Requests without an
+ * Authorization header are not counted: they reveal nothing.
  *
- * Why in-isolate only: tokens carry ≥ 128 bits, so the limiter is not what stops guessing; it keeps
- * a misconfigured or hostile client from burning CPU on hashing and from filling the logs. Each
- * isolate counts on its own, so a client spread over k isolates gets k × FAILURE_LIMIT tries per
- * window; a KV counter would not tighten that usefully (KV is eventually consistent and allows one
- * write per key per second) and would put a KV write on the failure path. docs/reliability.md says
- * where a platform rate-limiting rule fits instead.
+ * **A valid credential is never refused because of failures from its address.** Many callers can
+ * share one address (a NAT, a proxy, the payment flow's egress next to a replica still holding a
+ * rotated-out token), so limiting the address as a whole would let anyone who shares it turn the
+ * payment flow's scoring into 429s. The presented token is therefore always checked; only
+ * credentials that fail are refused with 429 while the address is limited. Guessing is not what
+ * this stops: tokens carry ≥ 128 bits. It keeps a misconfigured or hostile client from filling the
+ * logs and tells it clearly to stop.
+ *
+ * Why in-isolate only: each isolate counts on its own, so a client spread over k isolates gets
+ * k × FAILURE_LIMIT tries per window; a KV counter would not tighten that usefully (KV is eventually
+ * consistent and allows one write per key per second) and would put a KV write on the failure path.
+ * docs/reliability.md says where a platform rate-limiting rule fits instead.
  */
 
 /** Failed credentials tolerated per client within the window. */
@@ -85,12 +91,41 @@ export class CredentialFailureLimiter {
 }
 
 /**
- * The client key of a request: `cf-connecting-ip`, else "unidentified" (local tools that bypass the
- * edge; they share one bucket).
+ * The client key of a request: the IPv4 address from `cf-connecting-ip`, or the /64 prefix of an
+ * IPv6 address (one subscriber usually holds a whole /64, so counting single IPv6 addresses would let
+ * one client rotate through 2^64 of them); else "unidentified" (local tools that bypass the edge;
+ * they share one bucket).
+ *
+ * @example
+ * clientKey(new Headers({ "cf-connecting-ip": "2001:db8:1:2:aa::1" })) // → "2001:db8:1:2::/64"
+ * clientKey(new Headers({ "cf-connecting-ip": "::ffff:203.0.113.7" })) // → "203.0.113.7"
  */
 export function clientKey(headers: Headers): string {
   const ip = headers.get("cf-connecting-ip")?.trim();
-  return ip && ip.length <= 64 ? ip : "unidentified";
+  if (!ip || ip.length > 64) return "unidentified";
+  if (!ip.includes(":")) return ip;
+  return ipv6Bucket(ip) ?? "unidentified";
+}
+
+/** The /64 of an IPv6 address as `a:b:c:d::/64` (lower-case, no leading zeros); an IPv4-mapped address as its IPv4 form; null when malformed. */
+function ipv6Bucket(text: string): string | null {
+  const address = text.replace(/%.*$/, "").toLowerCase(); // a zone id (`%eth0`) names no other host
+  const mapped = /^::ffff:(\d{1,3}(?:\.\d{1,3}){3})$/.exec(address);
+  if (mapped) return mapped[1];
+  const halves = address.split("::");
+  if (halves.length > 2) return null;
+  const parse = (part: string) => (part === "" ? [] : part.split(":"));
+  const head = parse(halves[0]);
+  const tail = halves.length === 2 ? parse(halves[1]) : [];
+  // A dotted IPv4 ending counts as two groups.
+  const last = halves.length === 2 ? tail : head;
+  const dotted = last.length > 0 && last[last.length - 1].includes(".") ? 1 : 0;
+  const missing = 8 - head.length - tail.length - dotted;
+  if (halves.length === 1 ? missing !== 0 : missing < 1) return null;
+  const full = [...head, ...new Array<string>(halves.length === 2 ? missing : 0).fill("0"), ...tail];
+  const prefix = full.slice(0, 4);
+  if (!prefix.every((g) => /^[0-9a-f]{1,4}$/.test(g))) return null;
+  return `${prefix.map((g) => parseInt(g, 16).toString(16)).join(":")}::/64`;
 }
 
 /** The isolate's limiter, shared by every route. */
