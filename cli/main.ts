@@ -53,6 +53,11 @@ export const COMMANDS: readonly CommandEntry[] = [
     load: async () => (await import("./commands/refit")).refitCommand,
   },
   {
+    name: "drift",
+    summary: "compare a ledger with a model's training traffic (PSI per column and for the score, flag rate)",
+    load: async () => (await import("./commands/drift")).driftCommand,
+  },
+  {
     name: "publish",
     summary: "publish a model file to the scoring service",
     load: () => loadOptional("./commands/publish.ts", "publishCommand"),

@@ -141,6 +141,12 @@ export const modelArtifactSchema = z.strictObject({
   reference: z.strictObject({
     columnEdges: z.array(vector).max(MAX_MODEL_COLUMNS),
     scoreEdges: z.array(finite.nonnegative()),
+    /**
+     * Training share of each drift bucket (edges + 1 per column), counted at fit time; absent in
+     * artifacts written before it was stored, whose drift falls back to equal shares.
+     */
+    columnShares: z.array(z.array(finite.min(0).max(1))).max(MAX_MODEL_COLUMNS).optional(),
+    scoreShares: z.array(finite.min(0).max(1)).optional(),
   }),
   checksum: z.string().regex(/^sha256:[0-9a-f]{64}$/, 'must be "sha256:" followed by 64 lower-case hex digits'),
 });
@@ -632,6 +638,20 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
   });
   const at = firstDecrease(a.reference.scoreEdges);
   if (at >= 0) add(`reference.scoreEdges[${at}]`, "edges must be non-decreasing");
+  const checkShares = (path: string, shares: readonly number[], edges: readonly number[] | undefined): void => {
+    if (edges !== undefined && shares.length !== edges.length + 1) {
+      add(path, `must have one share per bucket (edges + 1 = ${edges.length + 1}). Actual: ${shares.length}`);
+    }
+    const sum = shares.reduce((t, x) => t + x, 0);
+    if (!(Math.abs(sum - 1) <= 1e-9)) add(path, `shares must sum to 1. Actual: ${sum}`);
+  };
+  if (a.reference.columnShares !== undefined) {
+    if (a.reference.columnShares.length !== a.reference.columnEdges.length) {
+      add("reference.columnShares", `must have one share list per edge list (${a.reference.columnEdges.length}). Actual: ${a.reference.columnShares.length}`);
+    }
+    a.reference.columnShares.forEach((shares, i) => checkShares(`reference.columnShares[${i}]`, shares, a.reference.columnEdges[i]));
+  }
+  if (a.reference.scoreShares !== undefined) checkShares("reference.scoreShares", a.reference.scoreShares, a.reference.scoreEdges);
 
   if (a.training.rowsUsed > a.training.rowsRead) {
     add("training.rowsUsed", `cannot exceed training.rowsRead (${a.training.rowsRead}). Actual: ${a.training.rowsUsed}`);

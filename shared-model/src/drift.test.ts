@@ -6,6 +6,7 @@ import {
   PSI_SHIFTED,
   PSI_WATCH,
   bucketIndex,
+  decileReference,
   driftLevel,
   driftTable,
   flagRateCheck,
@@ -191,5 +192,29 @@ describe("flagRateCheck", () => {
     expect(() => flagRateCheck(11, 10, 0.01)).toThrow("flagged: must be a whole number from 0 to scored (10). Actual: 11");
     expect(() => flagRateCheck(1, 10, 1.2)).toThrow("expectedRate: must be a share between 0 and 1. Actual: 1.2");
     expect(() => flagRateCheck(1, 10, 0.1, 1)).toThrow("confidence");
+  });
+});
+
+describe("decileReference", () => {
+  it("counts each bucket's training share instead of assuming 10 %, so training data scores PSI 0 against itself", () => {
+    // A count column that is mostly 0: 65 % zeros, then 1 … 35.
+    const values = Float64Array.from({ length: 100 }, (_, i) => (i < 65 ? 0 : i - 64));
+    const ref = decileReference(values);
+    expect(ref.edges.slice(0, 6)).toEqual([0, 0, 0, 0, 0, 0]);
+    expect(ref.shares[0]).toBeCloseTo(0.65, 12);
+    expect(ref.shares.reduce((a, b) => a + b, 0)).toBeCloseTo(1, 12);
+    const counts = new Array(10).fill(0);
+    for (const v of values) counts[bucketIndex(ref.edges, v)]++;
+    expect(referencePsi(ref.edges, counts, ref.shares)).toBe(0);
+    // Against equal shares the same data looks drifted: bucket 0 "expects" 60 %, holds 65 %.
+    expect(referencePsi(ref.edges, counts)).toBeGreaterThan(0.003);
+  });
+
+  it("matches NumPy's default percentiles for the edges", () => {
+    // NumPy 1.24.2 (Debian python3-numpy): numpy.percentile([3, 1, 4, 1, 5, 9, 2, 6, 5, 3, 5],
+    // [10, 20, …, 90]) = [1, 2, 3, 3, 4, 5, 5, 5, 6] (linear interpolation, Hyndman–Fan definition 7).
+    const ref = decileReference(Float64Array.of(3, 1, 4, 1, 5, 9, 2, 6, 5, 3, 5));
+    expect(ref.edges).toEqual([1, 2, 3, 3, 4, 5, 5, 5, 6]);
+    expect(() => decileReference(new Float64Array(0))).toThrow("values: must hold at least one value");
   });
 });

@@ -19,6 +19,7 @@
  * can show the table.
  */
 import { normalQuantile } from "./distributions";
+import { quantiles } from "./reservoir";
 
 /**
  * Smallest share used inside the logarithm. An empty bucket would make ln(a/e) infinite; flooring
@@ -126,16 +127,21 @@ export function driftLevel(value: number): DriftLevel {
 }
 
 /**
- * PSI of counts bucketed by {@link bucketIndex} on reference edges whose buckets each expect
- * 1/(edges + 1) of the traffic (deciles: 10 %). Runs of equal edges (a point mass in the training
- * data) make the buckets between them empty by construction; they are merged with the bucket that
- * receives the tied value, and their expected shares added, before the PSI is taken.
+ * PSI of counts bucketed by {@link bucketIndex} on reference edges against the training share of
+ * each bucket. The shares counted at fit time (`reference.columnShares` / `scoreShares`) are the
+ * right baseline: with ties (a count that is mostly 0) a decile bucket did not hold 10 % of the
+ * training rows, and assuming it did scores a column as drifting on its own training data. Older
+ * artifacts without stored shares fall back to 1/(edges + 1) per bucket. Runs of equal edges (a
+ * point mass in the training data) make the buckets between them empty by construction; they are
+ * merged with the bucket that receives the tied value, and their expected shares added, before the
+ * PSI is taken.
  * @param edges inner cut points, non-decreasing (e.g. `artifact.reference.scoreEdges`)
  * @param counts one count per bucket (edges.length + 1)
+ * @param expectedShares training share per bucket (edges.length + 1, summing to 1); default equal shares
  * @throws DriftInputError on a decreasing edge, a wrong number of counts, or the rules of {@link psi}
  * @example referencePsi(artifact.reference.scoreEdges, dayCounts) // 0.03
  */
-export function referencePsi(edges: ArrayLike<number>, counts: ArrayLike<number>): number {
+export function referencePsi(edges: ArrayLike<number>, counts: ArrayLike<number>, expectedShares?: ArrayLike<number>): number {
   const e = edges.length;
   if (e < 1) throw new DriftInputError("edges", "must hold at least one cut point. Actual: none");
   for (let i = 0; i < e; i++) {
@@ -149,17 +155,20 @@ export function referencePsi(edges: ArrayLike<number>, counts: ArrayLike<number>
   if (counts.length !== e + 1) {
     throw new DriftInputError("counts", `must have one count per bucket (edges + 1 = ${e + 1}). Actual: ${counts.length}`);
   }
-  const share = 1 / (e + 1);
+  if (expectedShares !== undefined && expectedShares.length !== e + 1) {
+    throw new DriftInputError("expectedShares", `must have one share per bucket (edges + 1 = ${e + 1}). Actual: ${expectedShares.length}`);
+  }
+  const shareOf = (k: number): number => (expectedShares === undefined ? 1 / (e + 1) : expectedShares[k]);
   const shares: number[] = [];
   const merged: number[] = [];
   // Bucket k + 1 is empty whenever edge k + 1 equals edge k; fold it into the open group.
   for (let k = 0; k <= e; k++) {
     const emptyByConstruction = k >= 1 && k < e && edges[k] === edges[k - 1];
     if (emptyByConstruction) {
-      shares[shares.length - 1] += share;
+      shares[shares.length - 1] += shareOf(k);
       merged[merged.length - 1] += counts[k];
     } else {
-      shares.push(share);
+      shares.push(shareOf(k));
       merged.push(counts[k]);
     }
   }
@@ -167,6 +176,37 @@ export function referencePsi(edges: ArrayLike<number>, counts: ArrayLike<number>
     throw new DriftInputError("edges", "all cut points are equal; a constant column has no distribution to compare");
   }
   return psi(shares, merged);
+}
+
+/** Quantile levels of the nine inner decile cut points. */
+export const DECILE_LEVELS: readonly number[] = [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9];
+
+/** Drift reference of one column: decile cut points and the training share of each bucket. */
+export interface DecileReference {
+  /** Nine inner cut points, non-decreasing. */
+  edges: number[];
+  /** Share of the given values in each of the ten buckets of {@link bucketIndex}; sums to 1. */
+  shares: number[];
+}
+
+/**
+ * The nine inner deciles of `values` ({@link quantiles}: Hyndman & Fan 1996 definition 7, the
+ * default of R and NumPy) and the share of the values that falls in each of the ten right-closed
+ * buckets they make. The shares are counted, not assumed: with ties they are not 10 % each.
+ * @param values the training sample (at least one finite value); not modified
+ * @throws DriftInputError when there is no value or one is not finite
+ * @example decileReference(Float64Array.of(0, 0, 0, 0, 0, 0, 0, 1, 2, 3)).shares[0] // 0.7
+ */
+export function decileReference(values: Float64Array): DecileReference {
+  const m = values.length;
+  if (m === 0) throw new DriftInputError("values", "must hold at least one value. Actual: none");
+  for (let i = 0; i < m; i++) {
+    if (!Number.isFinite(values[i])) throw new DriftInputError(`values[${i}]`, `must be a finite number. Actual: ${values[i]}`);
+  }
+  const edges = quantiles(values, DECILE_LEVELS);
+  const counts = new Array<number>(edges.length + 1).fill(0);
+  for (let i = 0; i < m; i++) counts[bucketIndex(edges, values[i])]++;
+  return { edges, shares: counts.map((c) => c / m) };
 }
 
 /** One row of a drift table. */
@@ -210,6 +250,65 @@ export function driftTable(
   };
   columns.forEach((name, j) => add(name, reference.columnEdges[j], counts.columns[j]));
   add("mahalanobisSq", reference.scoreEdges, counts.score);
+  return rows;
+}
+
+/** One row of a drift report; psi and level are null when they cannot be computed (`note` says why). */
+export interface DriftEntry {
+  /** Model column, or `mahalanobisSq` for the score. */
+  name: string;
+  psi: number | null;
+  level: DriftLevel | null;
+  /** Payments behind the figure. */
+  payments: number;
+  note: string | null;
+}
+
+/** The reference a drift report needs: `artifact.reference` (shares optional for older artifacts). */
+export interface DriftReference {
+  columnEdges: readonly (readonly number[])[];
+  scoreEdges: readonly number[];
+  columnShares?: readonly (readonly number[])[];
+  scoreShares?: readonly number[];
+}
+
+/**
+ * PSI and alert level per model column and for d² (named `mahalanobisSq`) from bucket counts:
+ * the weekly report and `isodense drift` share it. Each bucket is compared with its training share
+ * when the artifact stores one, else with equal shares. A column without counts, without edges or
+ * whose edges are all equal gets a null PSI and a note instead of failing the whole report.
+ * @param reference `artifact.reference`
+ * @param columns `artifact.columns`
+ * @param totals bucket counts per column and for the score (edges + 1 each)
+ * @example driftEntriesFor(artifact.reference, artifact.columns, { columns, score }) // [{ name: "amount", psi: 0.003, … }, …]
+ */
+export function driftEntriesFor(
+  reference: DriftReference,
+  columns: readonly string[],
+  totals: { columns: readonly (ArrayLike<number> | undefined)[]; score: ArrayLike<number> | undefined },
+): DriftEntry[] {
+  const rows: DriftEntry[] = [];
+  const add = (name: string, cuts: readonly number[] | undefined, counts: ArrayLike<number> | undefined, shares: readonly number[] | undefined): void => {
+    let payments = 0;
+    for (let i = 0; i < (counts?.length ?? 0); i++) payments += counts![i];
+    if (!cuts || !counts || cuts.length === 0) {
+      rows.push({ name, psi: null, level: null, payments, note: "the artifact stores no reference edges for it" });
+      return;
+    }
+    if (payments === 0) {
+      rows.push({ name, psi: null, level: null, payments, note: "no payments counted in the window" });
+      return;
+    }
+    try {
+      const value = referencePsi(cuts, counts, shares);
+      rows.push({ name, psi: value, level: driftLevel(value), payments, note: null });
+    } catch (error) {
+      if (!(error instanceof DriftInputError)) throw error;
+      rows.push({ name, psi: null, level: null, payments, note: `${error.field}: ${error.rule}` });
+    }
+  };
+  columns.forEach((name, j) => add(name, reference.columnEdges[j], totals.columns[j], reference.columnShares?.[j]));
+  add("mahalanobisSq", reference.scoreEdges, totals.score, reference.scoreShares);
   return rows;
 }
 

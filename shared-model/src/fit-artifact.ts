@@ -14,9 +14,9 @@ import {
 } from "./artifact";
 import { cutoffForFlagRate } from "./cutoff";
 import type { ModelSlot, ModelSlots } from "./fit-slots";
-import { DECILES, LN_2PI, type FitOptions } from "./fit-types";
+import { decileReference, type DecileReference } from "./drift";
+import { LN_2PI, type FitOptions } from "./fit-types";
 import { withRecordSpec } from "./records/artifact-spec";
-import { quantiles } from "./reservoir";
 import type { CovarianceShape, Diagnostic, FittedFeature } from "./types";
 
 /** Everything the artifact is made of, once the models are estimated and the d² sampled. */
@@ -31,7 +31,8 @@ export interface ArtifactInput {
   slots: ModelSlots;
   /** d² of sampled training rows, each under its own model. */
   scoreSample: Float64Array;
-  columnEdges: number[][];
+  /** Drift reference of each model column (edges and training shares). */
+  columnReference: DecileReference[];
   training: { rowsRead: number; rowsUsed: number; rowsExcludedAsFraud: number };
 }
 
@@ -83,7 +84,7 @@ export async function sealFit(input: ArtifactInput): Promise<SealedFit> {
     },
     training: { ...input.training, source: options.source ?? null },
     diagnostics,
-    reference: { columnEdges: input.columnEdges, scoreEdges: quantiles(scoreSample, DECILES) },
+    reference: referenceOf(input.columnReference, decileReference(scoreSample)),
   };
   const version = options.version ?? (await contentVersion(content, createdAt));
   const artifact = await sealArtifact({ ...content, version });
@@ -95,6 +96,16 @@ export async function sealFit(input: ArtifactInput): Promise<SealedFit> {
     throw error;
   }
   return { artifact, fitted, diagnostics, cut, logDensity };
+}
+
+/** The artifact's drift reference: edges, and the training share of each bucket beside them. */
+function referenceOf(columns: DecileReference[], score: DecileReference): ModelArtifact["reference"] {
+  return {
+    columnEdges: columns.map((c) => c.edges),
+    scoreEdges: score.edges,
+    columnShares: columns.map((c) => c.shares),
+    scoreShares: score.shares,
+  };
 }
 
 /**

@@ -3,8 +3,7 @@
  * each feature's observed raw range; a warning for every power that ended on its search range.
  */
 import { fitFeatures, transformInto, YEO_JOHNSON_LAMBDA_RANGE } from "./features";
-import { DECILES } from "./fit-types";
-import { quantiles } from "./reservoir";
+import { decileReference, type DecileReference } from "./drift";
 import type { Diagnostic, FeatureDeclaration, FittedFeature } from "./types";
 
 /**
@@ -34,23 +33,24 @@ export function needsFittedParameters(decls: readonly FeatureDeclaration[]): boo
 }
 
 /**
- * Drift reference edges of every model column: the nine inner deciles of the transformed sample.
+ * Drift reference of every model column: the nine inner deciles of the transformed sample and the
+ * sample's share in each bucket.
  * @param sample raw rows, row-major, `k` values each
  */
-export function columnDeciles(sample: Float64Array, rows: number, k: number, features: FittedFeature[], n: number): number[][] {
+export function columnDeciles(sample: Float64Array, rows: number, k: number, features: FittedFeature[], n: number): DecileReference[] {
   const transformed = new Float64Array(rows * n);
   const x = new Float64Array(n);
   for (let r = 0; r < rows; r++) {
     transformInto(features, sample.subarray(r * k, r * k + k), x);
     transformed.set(x, r * n);
   }
-  const edges: number[][] = [];
+  const references: DecileReference[] = [];
   const column = new Float64Array(rows);
   for (let c = 0; c < n; c++) {
     for (let r = 0; r < rows; r++) column[r] = transformed[r * n + c];
-    edges.push(quantiles(column, DECILES));
+    references.push(decileReference(column));
   }
-  return edges;
+  return references;
 }
 
 /**

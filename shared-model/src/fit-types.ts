@@ -105,8 +105,6 @@ export const FIT_SAMPLE_ROWS = 100_000;
 export const CUTOFF_SAMPLE_ROWS = 200_000;
 /** Rows between progress calls. */
 export const PROGRESS_EVERY = 8192;
-/** Probabilities of the decile edges stored for drift: the nine inner cut points. */
-export const DECILES = [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9];
 /** ln 2π, the constant of the Gaussian log-density. */
 export const LN_2PI = Math.log(2 * Math.PI);
 

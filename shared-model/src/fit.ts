@@ -109,7 +109,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
     minSegmentRows,
     slots,
     scoreSample,
-    columnEdges: columnDeciles(sample, sampleRows, decls.length, features, n),
+    columnReference: columnDeciles(sample, sampleRows, decls.length, features, n),
     training,
   });
   const { artifact, fitted, diagnostics, cut, logDensity } = sealed;

@@ -4,7 +4,7 @@
  * the worker modules take their result types from here and the routes check their answers with
  * `satisfies`.
  */
-import type { DriftLevel, FlagRateCheck } from "../../../shared-model/src/drift";
+import type { DriftEntry, FlagRateCheck } from "../../../shared-model/src/drift";
 import type { RateEstimates } from "../../../shared-model/src/estimates";
 import type { OperatingPoint } from "../../../shared-model/src/tuning";
 import type { ModelArtifact } from "../../../shared-model/src/artifact";
@@ -18,16 +18,8 @@ export interface ModelPointer {
   updatedBy: string;
 }
 
-/** One row of the drift table; psi and level are null when they cannot be computed (`note` says why). */
-export interface DriftEntry {
-  /** Model column, or `mahalanobisSq` for the score. */
-  name: string;
-  psi: number | null;
-  level: DriftLevel | null;
-  /** Payments behind the figure. */
-  payments: number;
-  note: string | null;
-}
+/** One row of the drift table (shared with `isodense drift`). */
+export type { DriftEntry } from "../../../shared-model/src/drift";
 
 /** Scored and flagged payments of one UTC day. */
 export interface DayVolume {

@@ -3,9 +3,8 @@
  * against the training reference, each day's flag rate against the expected rate, and the reasons
  * (if any) the live model is due for refit. Pure: the worker reads, this computes.
  */
-import { bonferroniConfidence, DriftInputError, driftLevel, flagRateCheck, referencePsi, type DriftLevel, type FlagRateCheck } from "../../../shared-model/src";
+import { bonferroniConfidence, driftEntriesFor, flagRateCheck } from "../../../shared-model/src";
 import type { TallyModel } from "./tally";
-import { SCORE_ROW } from "./tally";
 import type { BucketTotals, DayVolume } from "./traffic-queries";
 import type { DayFlagRate, DriftEntry } from "./contract";
 export type { DayFlagRate, DriftEntry };
@@ -20,31 +19,8 @@ export type { DayFlagRate, DriftEntry };
  * driftEntries(live, totals) // [{ name: "amount", psi: 0.03, level: "stable", payments: 9120, note: null }, …]
  */
 export function driftEntries(model: TallyModel, totals: BucketTotals): DriftEntry[] {
-  const edges = model.artifact.reference.columnEdges;
-  const rows: DriftEntry[] = [];
-  const add = (name: string, cuts: readonly number[] | undefined, counts: number[] | undefined): void => {
-    const payments = counts ? counts.reduce((a, b) => a + b, 0) : 0;
-    if (!cuts || !counts || cuts.length === 0) {
-      rows.push({ name, psi: null, level: null, payments, note: "the artifact stores no reference edges for it" });
-      return;
-    }
-    if (payments === 0) {
-      rows.push({ name, psi: null, level: null, payments, note: "no payments counted in the window" });
-      return;
-    }
-    try {
-      const value = referencePsi(cuts, counts);
-      rows.push({ name, psi: value, level: driftLevel(value), payments, note: null });
-    } catch (error) {
-      if (!(error instanceof DriftInputError)) throw error;
-      rows.push({ name, psi: null, level: null, payments, note: `${error.field}: ${error.rule}` });
-    }
-  };
-  model.artifact.columns.forEach((name, j) => add(name, edges[j], totals.columns[j]));
-  add(SCORE_ROW, model.artifact.reference.scoreEdges, totals.score);
-  return rows;
+  return driftEntriesFor(model.artifact.reference, model.artifact.columns, totals);
 }
-
 
 /** Chance that a quiet window (every day at the expected rate) raises no flag-rate alarm. */
 export const FLAG_RATE_FAMILY_CONFIDENCE = 0.95;
