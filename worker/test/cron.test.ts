@@ -43,10 +43,21 @@ async function latestReport(): Promise<StoredReport> {
   return row;
 }
 
-/** Even counts over 10 buckets, except where `shares` says otherwise (shares of `total`). */
+/** Every count planted so far, per name and bucket, for the PSI worked by hand. */
+const planted = new Map<string, number[]>();
+
+/**
+ * Counts over the 10 buckets as in training (the artifact's stored share of each bucket), except
+ * where `shares` says otherwise (shares of `total`).
+ */
 function bucketRows(segment: string, name: string, total: number, shares?: number[]): [string, string, number, number][] {
-  const s = shares ?? new Array(10).fill(0.1);
-  return s.map((share, b) => [segment, name, b, Math.round(share * total)] as [string, string, number, number]).filter((r) => r[3] > 0);
+  const j = artifact.columns.indexOf(name);
+  const s = shares ?? (j >= 0 ? artifact.reference.columnShares![j] : artifact.reference.scoreShares!);
+  const rows = s.map((share, b) => [segment, name, b, Math.round(share * total)] as [string, string, number, number]).filter((r) => r[3] > 0);
+  const sums = planted.get(name) ?? new Array(10).fill(0);
+  for (const r of rows) sums[r[2]] += r[3];
+  planted.set(name, sums);
+  return rows;
 }
 
 async function plant(flushId: string, scored: number, flagged: number, shifted: Record<string, number[]>): Promise<void> {
@@ -101,13 +112,24 @@ test("a planted shift classifies PSI levels and marks the live model due for ref
   };
   const level = Object.fromEntries(report.drift.map((r) => [r.name, r.level]));
   const psiOf = Object.fromEntries(report.drift.map((r) => [r.name, r.psi]));
-  // PSI by hand, Σ (a − e)·ln(a/e) with e = 0.1 per decile, over the 12,000 payments:
-  // first column: 500 + 5,000 + 200 in the top decile, 700 in each other → ≈ 0.908;
-  // second column: 500 + 500 + 2,000 in the top decile, 1,000 in each other → ≈ 0.165.
+  // PSI by hand, Σ (a − e)·ln(a/e) with e the training share of each bucket stored in the artifact
+  // and a the share of the planted counts (buckets empty on both sides add nothing):
+  // first column: 5,000 in its top decile on top of 7,000 as in training → ≈ 0.79;
+  // second column (a count with ties): 2,000 in its top bucket on top of 10,000 as in training.
+  const byHand = (name: string): number => {
+    const j = artifact.columns.indexOf(name);
+    const counts = planted.get(name)!;
+    const total = counts.reduce((a, b) => a + b, 0);
+    return counts.reduce((sum, c, b) => {
+      const e = artifact.reference.columnShares![j][b];
+      const a = c / total;
+      return a === 0 && e === 0 ? sum : sum + (Math.max(a, 1e-4) - Math.max(e, 1e-4)) * Math.log(Math.max(a, 1e-4) / Math.max(e, 1e-4));
+    }, 0);
+  };
   expect(level[shiftedColumn]).toBe("shifted");
-  expect(psiOf[shiftedColumn]).toBeCloseTo(9 * (7 / 120 - 0.1) * Math.log(0.7 / 1.2) + (57 / 120 - 0.1) * Math.log(5.7 / 1.2), 9);
+  expect(psiOf[shiftedColumn]).toBeCloseTo(byHand(shiftedColumn), 9);
   expect(level[nudgedColumn]).toBe("watch");
-  expect(psiOf[nudgedColumn]).toBeCloseTo(9 * (1 / 12 - 0.1) * Math.log(1 / 1.2) + (0.25 - 0.1) * Math.log(2.5), 9);
+  expect(psiOf[nudgedColumn]).toBeCloseTo(byHand(nudgedColumn), 9);
   expect(level[artifact.columns[2]]).toBe("stable");
   expect(report.window.payments).toBe(12_000);
   expect(report.refitDue).toBe(true);
