@@ -17,7 +17,7 @@
 import type { Env } from "../env";
 import type { ScoreAnswer } from "../routes/schemas";
 import type { LoadedModel } from "../scoring/model-cache";
-import { readLoopSettings } from "./settings";
+import { readSettings } from "../settings";
 import { TrafficTally, type TallyModel } from "./tally";
 
 /** This isolate's tally (module scope, like the model cache). */
@@ -40,14 +40,14 @@ export interface ScoredForCount {
  * countScored(c.env, c.executionCtx, snapshot.live, [{ raw: payment.raw, answer, scoredAt }]);
  */
 export function countScored(
-  env: Pick<Env, "FLAGS" | "DRIFT_FLUSH_PAYMENTS" | "DRIFT_FLUSH_SECONDS" | "REFIT_AFTER_DAYS">,
+  env: Pick<Env, "FLAGS" | "DRIFT_FLUSH_PAYMENTS" | "DRIFT_FLUSH_SECONDS">,
   ctx: Pick<ExecutionContext, "waitUntil">,
   live: LoadedModel,
   scored: readonly ScoredForCount[],
 ): void {
   let settings;
   try {
-    settings = readLoopSettings(env);
+    settings = readSettings(env, ["DRIFT_FLUSH_PAYMENTS", "DRIFT_FLUSH_SECONDS"]);
   } catch (error) {
     // A malformed DRIFT_FLUSH_* variable must not fail payments that scored: count nothing and
     // say so (the weekly report stores the same configuration error where the model page shows it).
@@ -64,7 +64,7 @@ export function countScored(
     }
   }
   const now = Date.now();
-  if (!trafficTally.due(now, settings.flushEveryPayments, settings.flushAfterMs)) return;
+  if (!trafficTally.due(now, settings.DRIFT_FLUSH_PAYMENTS, settings.DRIFT_FLUSH_SECONDS * 1000)) return;
   const messages = trafficTally.drain(() => crypto.randomUUID());
   ctx.waitUntil(
     env.FLAGS.sendBatch(messages.map((body) => ({ body }))).catch((error: unknown) => {

@@ -10,7 +10,7 @@ import type { Env } from "../env";
 import { loadModel } from "../scoring/model-cache";
 import { readPointer } from "../storage/model-store";
 import { dayFlagRates, driftEntries, refitReasons, type DayFlagRate, type DriftEntry } from "./drift-report";
-import { readLoopSettings } from "./settings";
+import { readSettings } from "../settings";
 import { bucketTotals, dailyVolumes, dayBefore, labelCounts, liveSince, type LabelCounts } from "./traffic-queries";
 import type { FailedReport, WeeklyReport } from "./contract";
 export type { FailedReport, WeeklyReport };
@@ -55,7 +55,9 @@ export async function runWeeklyReport(env: Env, runBy: string, now: Date): Promi
  * @throws when the model cannot be loaded or D1 cannot be read (the caller turns that into an error report).
  */
 export async function computeReport(env: Env, version: string, shadowVersion: string | null, now: Date): Promise<WeeklyReport> {
-  const settings = readLoopSettings(env);
+  // All the loop's variables, so that a malformed flush setting (which only stops counting, never a
+  // payment) shows as an error report on the model page.
+  const settings = readSettings(env, ["DRIFT_FLUSH_PAYMENTS", "DRIFT_FLUSH_SECONDS", "REFIT_AFTER_DAYS"]);
   const live = await loadModel(env, version);
   const fromDay = dayBefore(now, REPORT_WINDOW_DAYS - 1);
   const toDay = dayBefore(now, 0);
@@ -69,7 +71,7 @@ export async function computeReport(env: Env, version: string, shadowVersion: st
   const expected = live.artifact.cutoff.flagRate;
   const flagRates = dayFlagRates(volumes, expected);
   const ageDays = Math.max(0, (now.getTime() - Date.parse(live.artifact.createdAt)) / 86_400_000);
-  const reasons = refitReasons(drift, flagRates, ageDays, settings.refitAfterDays);
+  const reasons = refitReasons(drift, flagRates, ageDays, settings.REFIT_AFTER_DAYS);
   return {
     status: "ok",
     modelVersion: version,
@@ -81,7 +83,7 @@ export async function computeReport(env: Env, version: string, shadowVersion: st
     expectedFlagRate: expected,
     labels: { since, counts },
     ageDays,
-    refitAfterDays: settings.refitAfterDays,
+    refitAfterDays: settings.REFIT_AFTER_DAYS,
     refitDue: reasons.length > 0,
     reasons,
   };

@@ -1,6 +1,6 @@
 import { describe, expect, it } from "vitest";
 import { countsQuerySchema, decisionBodySchema, isCalendarDay, listQuerySchema, timeRange } from "./schemas";
-import { dailyCapacity, DEFAULT_DAILY_CAPACITY, utcDayStart } from "./settings";
+import { utcDayStart } from "./settings";
 
 describe("review inputs", () => {
   it("turns a day range into a half-open range that includes the whole last day", () => {
@@ -36,14 +36,6 @@ describe("review inputs", () => {
     expect(listQuerySchema.parse({})).toEqual({ state: "open", sort: "priority", limit: 50 });
     expect(listQuerySchema.parse({ limit: "200" }).limit).toBe(200);
     expect(listQuerySchema.safeParse({ limit: "201" }).success).toBe(false);
-  });
-
-  it("reads ANALYST_DAILY_CAPACITY, defaults it when unset and names it when malformed", () => {
-    expect(dailyCapacity({ ANALYST_DAILY_CAPACITY: "250" })).toBe(250);
-    expect(dailyCapacity({})).toBe(DEFAULT_DAILY_CAPACITY);
-    for (const bad of ["0", "2.5", "many", "-3", "1000000"]) {
-      expect(() => dailyCapacity({ ANALYST_DAILY_CAPACITY: bad }), bad).toThrow(/ANALYST_DAILY_CAPACITY must be a whole number from 1 to 100000/);
-    }
   });
 
   it("starts the day at UTC midnight", () => {

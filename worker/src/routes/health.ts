@@ -5,16 +5,16 @@
  */
 import { Hono } from "hono";
 import type { AppEnv } from "../app-env";
-import { readSettings } from "../env";
 import { counters } from "../scoring/counters";
 import { modelCache } from "../scoring/model-cache";
+import { readSettings } from "../settings";
 
 /** Health route, mounted under `/v1`. */
 export const healthRoutes = new Hono<AppEnv>();
 
 healthRoutes.get("/health", async (c) => {
-  const settings = readSettings(c.env);
-  const snapshot = await modelCache.snapshot(c.env, settings.modelRefreshMs);
+  const { MODEL_REFRESH_SECONDS } = readSettings(c.env, ["MODEL_REFRESH_SECONDS"]);
+  const snapshot = await modelCache.snapshot(c.env, MODEL_REFRESH_SECONDS * 1000);
   const status = modelCache.status();
   const body = {
     status: snapshot ? ("ready" as const) : ("no-model" as const),
@@ -28,7 +28,7 @@ healthRoutes.get("/health", async (c) => {
       : null,
     shadow: status.shadow,
     pointer: status.pointer,
-    refreshSeconds: settings.modelRefreshMs / 1000,
+    refreshSeconds: MODEL_REFRESH_SECONDS,
     lastCheckedAt: status.lastCheckedAt,
     loadFailures: status.loadFailures,
     shadowLoadFailures: status.shadowLoadFailures,

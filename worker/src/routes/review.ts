@@ -39,7 +39,8 @@ import {
   listQuerySchema,
   timeRange,
 } from "../review/schemas";
-import { CLAIM_TTL_MS, dailyCapacity, UNDO_WINDOW_MS, type ReviewEnv } from "../review/settings";
+import { CLAIM_TTL_MS, UNDO_WINDOW_MS } from "../review/settings";
+import { readSettings } from "../settings";
 
 type ReviewContext = Context<AppEnv>;
 
@@ -99,7 +100,7 @@ reviewRoutes.get("/counts", async (c) => {
 reviewRoutes.get("/facets", async (c) => c.json(await listFacets(c.env)));
 
 reviewRoutes.get("/summary", async (c) => {
-  const capacity = dailyCapacity(c.env as ReviewEnv);
+  const { ANALYST_DAILY_CAPACITY: capacity } = readSettings(c.env, ["ANALYST_DAILY_CAPACITY"]);
   return c.json(await daySummary(c.env, c.get("principal").user, Date.now(), capacity));
 });
 

@@ -5,12 +5,12 @@
  */
 import { Hono, type Context } from "hono";
 import type { AppEnv } from "../app-env";
-import { readSettings, type Settings } from "../env";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
 import { modelCache } from "../scoring/model-cache";
-import { scoreMany, type ScoringCall } from "../scoring/score-many";
+import { SCORING_SETTINGS, scoreMany, type ScoringCall } from "../scoring/score-many";
+import { readSettings } from "../settings";
 import { batchRequestSchema } from "./schemas";
 
 /** Scoring routes, mounted under `/v1`. */
@@ -32,9 +32,9 @@ scoreRoutes.post("/score/batch", authenticate(), allow("flow"), jsonBody(BODY_LI
   const envelope = batchRequestSchema.safeParse(body);
   if (!envelope.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(envelope.error, body, "", ["payments"]));
   const payments = envelope.data.payments;
-  if (payments.length < 1 || payments.length > call.settings.maxBatch) {
+  if (payments.length < 1 || payments.length > call.settings.MAX_BATCH) {
     return problemResponse(c, 400, "invalid-request", [
-      { field: "payments", rule: `must hold 1 to ${call.settings.maxBatch} payments (MAX_BATCH). Actual: ${payments.length}` },
+      { field: "payments", rule: `must hold 1 to ${call.settings.MAX_BATCH} payments (MAX_BATCH). Actual: ${payments.length}` },
     ]);
   }
   const results = await scoreMany(call, payments, (index) => `payments[${index}].`);
@@ -53,15 +53,15 @@ scoreRoutes.post("/score/batch", authenticate(), allow("flow"), jsonBody(BODY_LI
 
 /** The settings and models a scoring request needs, or the 503 answered when no model is loaded. */
 async function scoringCall(c: Context<AppEnv>): Promise<ScoringCall | Response> {
-  const settings = readSettings(c.env);
-  const snapshot = await modelCache.snapshot(c.env, settings.modelRefreshMs);
+  const settings = readSettings(c.env, SCORING_SETTINGS);
+  const snapshot = await modelCache.snapshot(c.env, settings.MODEL_REFRESH_SECONDS * 1000);
   if (!snapshot) return noModel(c, settings);
   return { env: c.env, executionCtx: c.executionCtx, snapshot, settings };
 }
 
 /** 503 when no model has ever loaded in this isolate: the flow applies its fail-open/closed policy. */
-function noModel(c: Context<AppEnv>, settings: Settings): Response {
-  const retryAfter = String(Math.max(1, Math.ceil(settings.modelRefreshMs / 1000)));
+function noModel(c: Context<AppEnv>, settings: ScoringCall["settings"]): Response {
+  const retryAfter = String(Math.max(1, Math.ceil(settings.MODEL_REFRESH_SECONDS)));
   return problemResponse(
     c,
     503,

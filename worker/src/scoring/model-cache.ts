@@ -120,7 +120,7 @@ const LOGGED_CAUSES = 256;
  * Per-isolate model cache with bounded staleness and last-good fallback.
  *
  * @example
- * const snapshot = await modelCache.snapshot(env, settings.modelRefreshMs);
+ * const snapshot = await modelCache.snapshot(env, settings.MODEL_REFRESH_SECONDS * 1000);
  * if (!snapshot) return noModel(c);
  */
 export class ModelCache {

@@ -9,16 +9,19 @@
  * answer with no second hand-off, and a repeat with different content gets 409. The review store
  * keeps one row per (transaction, model version) in any case.
  */
-import type { Problem, Settings } from "../env";
-import type { Env } from "../env";
+import type { Env, Problem } from "../env";
 import { countScored } from "../insights/count-scored";
 import type { ScoreAnswer } from "../routes/schemas";
+import type { Settings } from "../settings";
 import type { ShadowMessage } from "../storage/messages";
 import { AnswerCache, answerKey, contentHash } from "./answer-cache";
 import { auditPosition } from "./audit-sample";
 import { sendReviewItems, sendShadowComparisons } from "./handoff";
 import type { ModelSnapshot } from "./model-cache";
 import { scorePayment, validatePayment, type ScoredPayment, type ValidPayment } from "./score-payment";
+
+/** The `[vars]` the scoring path reads (the loop's own variables never fail a payment). */
+export const SCORING_SETTINGS = ["AUDIT_SAMPLE_RATE", "MODEL_REFRESH_SECONDS", "MAX_BATCH"] as const;
 
 /** Recent answers of this isolate (module scope). */
 const answers = new AnswerCache<ScoreAnswer>();
@@ -45,7 +48,7 @@ export interface ScoringCall {
   env: Env;
   executionCtx: Pick<ExecutionContext, "waitUntil">;
   snapshot: ModelSnapshot;
-  settings: Settings;
+  settings: Pick<Settings, (typeof SCORING_SETTINGS)[number]>;
 }
 
 /** One payment while it is being worked on. */
@@ -102,7 +105,7 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
   const valid = entries.filter((e): e is ValidEntry => e.state === "valid");
   const positions = await Promise.all(valid.map((e) => auditPosition(e.payment.transactionId)));
   valid.forEach((entry, i) => {
-    const scored = scorePayment(snapshot, entry.payment, positions[i], settings.auditSampleRate, scoredAt, prefixOf(entry.index));
+    const scored = scorePayment(snapshot, entry.payment, positions[i], settings.AUDIT_SAMPLE_RATE, scoredAt, prefixOf(entry.index));
     if (scored.ok) entry.scored = scored.value;
     else entries[entry.index] = { index: entry.index, state: "refused", refusal: refusal(entry.index, 400, "invalid-request", scored.problems) };
   });
