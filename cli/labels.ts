@@ -9,6 +9,7 @@
  */
 import type { FeatureDeclaration } from "../shared-model/src/types";
 import { checkRawValue } from "../shared-model/src/features";
+import { RecordDeriver, type RecordsSpec } from "./records";
 import { CsvError, numberCell, openCsvTable, requireColumn, type CsvReadOptions } from "./csv";
 import { labelCell } from "./ledger";
 import { restoreTextCell } from "../shared-model/src/spreadsheet-cell";
@@ -48,6 +49,11 @@ export interface LabelsRequest {
    * several model versions can hold one payment twice); a conflicting outcome is still an error.
    */
   duplicates?: "refuse" | "merge-agreeing";
+  /**
+   * How the model derives its features from payment records. Used when the file lacks a feature
+   * column: its rows are then payment records in time order (see `LedgerRequest.records`).
+   */
+  records?: RecordsSpec;
 }
 
 /** The labelled set in memory, in file order. */
@@ -89,7 +95,10 @@ export async function readLabels(path: string, request: LabelsRequest, options: 
   const header = table.header.map(restoreTextCell);
   try {
     const k = request.features.length;
-    const featureIndex = request.features.map((f) => requireColumn(header, f.name, file, "feature of the model"));
+    const records = request.records !== undefined && request.features.some((f) => !header.includes(f.name)) ? request.records : null;
+    const deriver = records === null ? null : new RecordDeriver(records, file, header);
+    const derived = new Float64Array(k);
+    const featureIndex = deriver !== null ? [] : request.features.map((f) => requireColumn(header, f.name, file, "feature of the model"));
     const idColumn = request.idColumn ?? DEFAULT_LABELS_ID_COLUMNS.find((c) => header.includes(c));
     if (idColumn === undefined) {
       throw new CsvError(
@@ -113,7 +122,7 @@ export async function readLabels(path: string, request: LabelsRequest, options: 
       [weightColumn, "the weight column"],
       [segmentColumn, "the segment column"],
     ] as const) {
-      if (column !== null && request.features.some((f) => f.name === column)) {
+      if (deriver === null && column !== null && request.features.some((f) => f.name === column)) {
         throw new CsvError(file, null, column, "feature reuses a special column", `column '${column}' of ${file} is both a feature of the model and ${role}`);
       }
     }
@@ -128,6 +137,8 @@ export async function readLabels(path: string, request: LabelsRequest, options: 
     let duplicatesSkipped = 0;
     for await (const record of table.rows) {
       const cells = record.cells;
+      // Every row joins its account's history, also one skipped below as a repeat.
+      deriver?.derive(cells.map(restoreTextCell), record.line, derived);
       const id = restoreTextCell(cells[idIndex]);
       if (id.trim() === "") throw new CsvError(file, record.line, idColumn, "the id is empty; every decided payment needs its id");
       const label = labelCell(cells[labelIndex], file, record.line, labelColumn);
@@ -159,10 +170,10 @@ export async function readLabels(path: string, request: LabelsRequest, options: 
         }
       }
       for (let j = 0; j < k; j++) {
-        const column = header[featureIndex[j]];
-        const value = numberCell(cells[featureIndex[j]], file, record.line, column);
+        const column = deriver === null ? header[featureIndex[j]] : request.features[j].name;
+        const value = deriver === null ? numberCell(cells[featureIndex[j]], file, record.line, column) : derived[j];
         const problem = checkRawValue(request.features[j], value);
-        if (problem !== null) throw new CsvError(file, record.line, column, problem);
+        if (problem !== null) throw new CsvError(file, record.line, column, deriver === null ? problem : `derived value ${problem}`);
         values.push(value);
       }
       const segmentText = segmentIndex < 0 ? "" : restoreTextCell(cells[segmentIndex]);

@@ -10,6 +10,7 @@ import type { FeatureDeclaration } from "../shared-model/src/types";
 import { checkRawValue } from "../shared-model/src/features";
 import type { FitRow, RowSource } from "../shared-model/src/fit";
 import { CsvError, numberCell, openCsvTable, requireColumn, type CsvReadOptions } from "./csv";
+import { RecordDeriver, type RecordsSpec } from "./records";
 
 /** A review outcome: `fraud`, `legitimate`, or `null` when the row was never reviewed. */
 export type Label = "fraud" | "legitimate" | null;
@@ -55,6 +56,13 @@ export interface LedgerRequest {
   labelColumn?: string;
   /** Segment column; must exist when given. */
   segmentColumn?: string | null;
+  /**
+   * How the features derive from payment records (same features, same order). Used when the
+   * header lacks a feature column: the rows are then payment records in time order, and each row's
+   * features are derived from it and the account's earlier rows. A ledger that has every feature
+   * column is read as it is.
+   */
+  records?: RecordsSpec;
 }
 
 /** Column positions resolved against one ledger's header. */
@@ -72,6 +80,8 @@ export interface LedgerLayout {
   /** Segment column and its index, or `null`/-1. */
   segmentColumn: string | null;
   segmentIndex: number;
+  /** The spec the features are derived with, or `null` when the ledger has the feature columns. */
+  records: RecordsSpec | null;
 }
 
 /**
@@ -80,6 +90,11 @@ export interface LedgerLayout {
  *   feature that is also the id, label or segment column.
  */
 export function resolveLedgerLayout(header: readonly string[], file: string, request: LedgerRequest): LedgerLayout {
+  const records = request.records !== undefined && request.features.some((f) => !header.includes(f.name)) ? request.records : null;
+  if (records !== null) {
+    // Checks the record columns now, so a missing one fails before any row is read.
+    new RecordDeriver(records, file, header);
+  }
   const seen = new Set<string>();
   for (const feature of request.features) {
     if (seen.has(feature.name)) {
@@ -87,8 +102,9 @@ export function resolveLedgerLayout(header: readonly string[], file: string, req
     }
     seen.add(feature.name);
   }
-  const featureIndex = request.features.map((f) => requireColumn(header, f.name, file, "feature"));
-  const idColumn = request.idColumn ?? (header.includes(DEFAULT_ID_COLUMN) ? DEFAULT_ID_COLUMN : null);
+  const featureIndex = records !== null ? [] : request.features.map((f) => requireColumn(header, f.name, file, "feature"));
+  const defaultId = records !== null ? records.record.id : header.includes(DEFAULT_ID_COLUMN) ? DEFAULT_ID_COLUMN : null;
+  const idColumn = request.idColumn ?? defaultId;
   const idIndex = idColumn === null ? -1 : requireColumn(header, idColumn, file, "--id-column");
   const labelColumn = request.labelColumn ?? (header.includes(DEFAULT_LABEL_COLUMN) ? DEFAULT_LABEL_COLUMN : null);
   const labelIndex = labelColumn === null ? -1 : requireColumn(header, labelColumn, file, "--label-column");
@@ -100,7 +116,7 @@ export function resolveLedgerLayout(header: readonly string[], file: string, req
     [segmentColumn, "the segment column"],
   ];
   for (const [column, role] of roles) {
-    if (column !== null && seen.has(column)) {
+    if (records === null && column !== null && seen.has(column)) {
       throw new CsvError(
         file,
         null,
@@ -110,7 +126,7 @@ export function resolveLedgerLayout(header: readonly string[], file: string, req
       );
     }
   }
-  return { file, header: [...header], featureIndex, idColumn, idIndex, labelColumn, labelIndex, segmentColumn, segmentIndex };
+  return { file, header: [...header], featureIndex, idColumn, idIndex, labelColumn, labelIndex, segmentColumn, segmentIndex, records };
 }
 
 /** One validated ledger row. */
@@ -154,11 +170,19 @@ export async function openLedger(path: string, request: LedgerRequest, options: 
   const k = features.length;
   async function* rows(): AsyncGenerator<LedgerRow, void, undefined> {
     let rowNumber = 0;
+    const deriver = layout.records === null ? null : new RecordDeriver(layout.records, file, header);
     for await (const record of table.rows) {
       rowNumber++;
       const cells = record.cells;
       const values = new Float64Array(k);
-      for (let j = 0; j < k; j++) {
+      if (deriver !== null) {
+        deriver.derive(cells, record.line, values);
+        for (let j = 0; j < k; j++) {
+          const problem = checkRawValue(features[j], values[j]);
+          if (problem !== null) throw new CsvError(file, record.line, features[j].name, `derived value ${problem}`);
+        }
+      }
+      for (let j = 0; deriver === null && j < k; j++) {
         const column = header[layout.featureIndex[j]];
         const value = numberCell(cells[layout.featureIndex[j]], file, record.line, column);
         const problem = checkRawValue(features[j], value);

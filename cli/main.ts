@@ -33,6 +33,11 @@ async function loadOptional(relativePath: string, exportName: string): Promise<C
 /** Every command, in the order `isodense --help` lists them. New commands (tune, refit) go here. */
 export const COMMANDS: readonly CommandEntry[] = [
   {
+    name: "derive",
+    summary: "derive the features of a record spec from a ledger of payment records (the same code the edge runs)",
+    load: async () => (await import("./commands/derive")).deriveCommand,
+  },
+  {
     name: "fit",
     summary: "fit a model to the normal payments of a ledger and write the model file",
     load: async () => (await import("./commands/fit")).fitCommand,

@@ -6,6 +6,7 @@
 import { readFile } from "node:fs/promises";
 import { basename, resolve } from "node:path";
 import { FeatureSpecError, parseFeatureSpec } from "../../shared-model/src/features";
+import { derivesFromRecords, parseRecordSpec, type RecordSpec } from "../../shared-model/src/records/spec";
 import { fitModel, type FitOptions } from "../../shared-model/src/fit";
 import type { CovarianceShapeRequest, EstimatorName, FeatureDeclaration } from "../../shared-model/src/types";
 import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
@@ -25,7 +26,7 @@ export const fitSpec: CommandSpec = {
   options: [
     { name: "out", kind: "string", valueName: "model.json", description: "where to write the model (required)" },
     { name: "features", kind: "string", valueName: "a,b,…", description: "numeric columns used as they are (no transform)" },
-    { name: "spec", kind: "string", valueName: "spec.json", description: 'feature spec with transforms: {"features":[{"name":"amount","transform":"log"}]}' },
+    { name: "spec", kind: "string", valueName: "spec.json", description: 'feature spec with transforms: {"features":[{"name":"amount","transform":"log"}]}; with "record", features derived from payment records (docs/features.md)' },
     { name: "covariance", kind: "string", choices: ["full", "diagonal", "auto"], description: "covariance shape; auto is full when rows ≥ 10 × columns", defaultText: "auto" },
     { name: "estimator", kind: "string", choices: ["classical", "shrinkage", "robust"], description: "covariance estimator", defaultText: "classical" },
     { name: "id-column", kind: "string", valueName: "column", description: "id column (kept out of the features)", defaultText: "id if present" },
@@ -38,6 +39,7 @@ export const fitSpec: CommandSpec = {
   ],
   notes: [
     "Give exactly one of --features and --spec.",
+    "With a spec that has \"record\", a ledger of payment records (in time order) is derived on the way; a ledger that already has every feature column is read as it is.",
     "Exit codes: 0 written; 1 refused by diagnostics (each printed with its remedy; nothing written); 2 usage or input error.",
   ],
 };
@@ -61,7 +63,8 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
     if (resolve(out) === resolve(ledgerPath)) {
       throw new UsageError("--out", "same as the ledger", `option --out names the ledger itself (${out}); choose another file`);
     }
-    const features = await readFeatures(stringOption(args, "features"), stringOption(args, "spec"));
+    const spec = await readSpec(stringOption(args, "features"), stringOption(args, "spec"));
+    const features = spec.features;
     await checkOutputPath(out, "--out");
     const segmentBy = stringOption(args, "segment-by") ?? null;
 
@@ -70,6 +73,7 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
       idColumn: stringOption(args, "id-column"),
       labelColumn: stringOption(args, "label-column"),
       segmentColumn: segmentBy,
+      records: derivesFromRecords(spec) ? spec : undefined,
     });
     // Header and columns are checked before the first pass, so a typo fails at once.
     await source.layout();
@@ -84,6 +88,7 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
       seed: numberOption(args, "seed"),
       supportFraction: numberOption(args, "support-fraction"),
       source: basename(ledgerPath),
+      recordSpec: spec,
       // Counted by the source while it streams; fitModel reads them after its last pass.
       get rowsRead() {
         return source.counts.rowsRead;
@@ -107,9 +112,19 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
 /**
  * Feature declarations from `--features a,b` (no transform) or `--spec file.json`; exactly one.
  * @throws UsageError when both or neither are given or a name is empty; InputError when the spec
- *   file is missing or not JSON; FeatureSpecError when the spec breaks a rule.
+ *   file is missing or not JSON, or breaks a rule (naming the feature and key).
  */
 export async function readFeatures(list: string | undefined, specPath: string | undefined): Promise<FeatureDeclaration[]> {
+  return (await readSpec(list, specPath)).features.map((f) => ({ name: f.name, transform: f.transform }));
+}
+
+/**
+ * The spec from `--features a,b` (each read as it is) or `--spec file.json` (a feature spec, or a
+ * record spec that derives features from payment records); exactly one.
+ * @throws UsageError when both or neither are given or a name is empty; InputError when the spec
+ *   file is missing or not JSON, or breaks a rule (naming the feature and key).
+ */
+export async function readSpec(list: string | undefined, specPath: string | undefined): Promise<RecordSpec> {
   if (list !== undefined && specPath !== undefined) {
     throw new UsageError("--features", "exclusive with --spec", "give either --features or --spec, not both");
   }
@@ -121,7 +136,8 @@ export async function readFeatures(list: string | undefined, specPath: string | 
     }
     try {
       // The spec's rules (name length, characters) apply to names given on the command line too.
-      return parseFeatureSpec({ features: names.map((name) => ({ name, transform: "none" })) });
+      const declared = parseFeatureSpec({ features: names.map((name) => ({ name, transform: "none" })) });
+      return parseRecordSpec({ features: declared });
     } catch (error) {
       if (error instanceof FeatureSpecError) {
         throw new UsageError("--features", error.rule, `option --features: ${error.problems.map((p) => `${p.field.replace(/^features\[(\d+)\]\.name$/, (_, k) => `name ${Number(k) + 1}`)} ${p.rule}`).join("; ")}`);
@@ -146,7 +162,7 @@ export async function readFeatures(list: string | undefined, specPath: string | 
     throw new InputError("--spec", "not JSON", `--spec ${specPath} is not valid JSON: ${(error as Error).message}`);
   }
   try {
-    return parseFeatureSpec(json);
+    return parseRecordSpec(json);
   } catch (error) {
     if (error instanceof FeatureSpecError) {
       throw new InputError("--spec", error.rule, `--spec ${specPath}: ${error.problems.map((p) => `${p.field} ${p.rule}`).join("; ")}`);

@@ -19,6 +19,8 @@ import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { EXPORT_SEGMENT_COLUMN, readLabels, type LabelSet } from "../labels";
 import { openLedger, type LedgerRequest } from "../ledger";
+import { recordsOfModel } from "../records";
+import { recordSpecFromArtifact } from "../../shared-model/src/records/artifact-spec";
 import { formatCount, formatForPeople, formatPercent } from "../numbers";
 import { createProgress } from "../progress";
 import { loadArtifact } from "./score";
@@ -149,6 +151,7 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
       weightColumn: stringOption(args, "weight-column"),
       segmentCandidates: live.segmentBy === null ? [] : [live.segmentBy, EXPORT_SEGMENT_COLUMN],
       duplicates: "merge-agreeing",
+      records: recordsOfModel(live),
     });
     const confirmedFraud = new Set<string>();
     const dismissed = new Set<string>();
@@ -160,6 +163,7 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
       idColumn: stringOption(args, "id-column"),
       labelColumn: stringOption(args, "label-column"),
       segmentColumn: live.segmentBy,
+      records: recordsOfModel(live),
     };
     const source = new RefitRowSource(ledgerPath, request, confirmedFraud, dismissed);
     // Header and columns are checked before the first pass, so a typo fails at once.
@@ -187,6 +191,7 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
       cutoffRate,
       seed: numberOption(args, "seed") ?? liveSeed,
       source: basename(ledgerPath),
+      recordSpec: recordSpecFromArtifact(live) ?? undefined,
       get rowsRead() {
         return source.counts.rowsRead;
       },

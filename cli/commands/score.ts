@@ -15,6 +15,7 @@ import { EXIT_OK, InputError, reportFailure } from "../errors";
 import { AtomicLineWriter, checkOutputPath } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { openLedger } from "../ledger";
+import { recordsOfModel } from "../records";
 import { formatCount, formatForPeople, formatPercent } from "../numbers";
 import { createProgress } from "../progress";
 
@@ -27,7 +28,7 @@ export const scoreSpec: CommandSpec = {
     "With a label column it also prints precision, recall and flag rate.",
   positionals: [
     { name: "model.json", description: "model file written by isodense fit" },
-    { name: "ledger.csv", description: "payments with the model's feature columns" },
+    { name: "ledger.csv", description: "payments with the model's feature columns, or payment records in time order when the model derives its features" },
   ],
   options: [
     { name: "out", kind: "string", valueName: "scores.csv", description: "where to write the scores (required)" },
@@ -81,6 +82,7 @@ export async function scoreCommand(argv: string[], io: CommandIO = processIO()):
       idColumn: stringOption(args, "id-column"),
       labelColumn: stringOption(args, "label-column"),
       segmentColumn: artifact.segmentBy,
+      records: recordsOfModel(artifact),
     });
     const counts: BacktestCounts = { rows: 0, flagged: 0, labelled: 0, truePositives: 0, falsePositives: 0, falseNegatives: 0, trueNegatives: 0 };
     let labelledFraud = 0;

@@ -32,6 +32,7 @@ import { processIO, writeLines, type CommandIO } from "../io";
 import { EXPORT_SEGMENT_COLUMN, readLabels, type LabelSet } from "../labels";
 import { formatCount, formatForPeople, formatPercent, parseStrictNumber } from "../numbers";
 import { loadArtifact } from "./score";
+import { recordsOfModel } from "../records";
 
 /** Command line of `isodense tune`. */
 export const tuneSpec: CommandSpec = {
@@ -95,6 +96,7 @@ export async function tuneCommand(argv: string[], io: CommandIO = processIO()): 
       weightColumn: stringOption(args, "weight-column"),
       segmentColumn: stringOption(args, "segment-column"),
       segmentCandidates: artifact.segmentBy === null ? [] : [artifact.segmentBy, EXPORT_SEGMENT_COLUMN],
+      records: recordsOfModel(artifact),
     });
     if (labels.fraudCount === 0) {
       throw new InputError(labelsPath, "no fraud", `${labels.file}: no row is labelled fraud in '${labels.labelColumn}'; a cutoff cannot be tuned without confirmed fraud`);

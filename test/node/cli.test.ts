@@ -358,7 +358,7 @@ describe("usage", () => {
   it("rejects an unknown command with exit 2 and lists the commands", async () => {
     const run = await isodense(["train", "ledger.csv"]);
     expect(run.code).toBe(2);
-    expect(run.stderr).toContain("unknown command 'train'; commands are: fit, score, tune, refit, publish, demo-ledger");
+    expect(run.stderr).toContain("unknown command 'train'; commands are: derive, fit, score, tune, refit, drift, publish, demo-ledger");
   });
 
   it("rejects an unknown option by name with exit 2", async () => {

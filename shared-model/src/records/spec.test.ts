@@ -92,12 +92,12 @@ describe("parseRecordSpec", () => {
     ]);
   });
 
-  it("refuses a history derivation without record, but lets column and ratio read a row alone", () => {
+  it("refuses a derivation key without record", () => {
     expect(problemsOf({ features: [{ name: "n", transform: "none", count: { within: "1h" } }] })[0]).toEqual({
       field: "features[0].count",
       rule: `needs the spec's top-level "record" (its id, time and account columns); got nothing (feature "n")`,
     });
-    expect(parseRecordSpec({ features: [{ name: "share", transform: "none", ratio: ["fee", "total"] }] }).features[0].derivation.kind).toBe("ratio");
+    expect(problemsOf({ features: [{ name: "share", transform: "none", ratio: ["fee", "total"] }] })[0].field).toBe("features[0].ratio");
   });
 
   it("refuses unknown keys, listing the keys allowed there", () => {

@@ -206,11 +206,6 @@ function toDerivation(name: string, json: DerivationJson): Derivation {
   return { kind: "read", column: name };
 }
 
-/** Derivations that read a payment's own columns only, and so work without `record`. */
-function isRowLocal(derivation: Derivation): boolean {
-  return derivation.kind === "read" || derivation.kind === "ratio";
-}
-
 /** The longest window of any derivation (ms); 0 when none has a window. */
 export function longestWindowMs(features: readonly DerivedFeatureDeclaration[]): number {
   let longest = 0;
@@ -245,7 +240,7 @@ export function parseRecordSpec(json: unknown): RecordSpec {
       const keys = DERIVATION_KEYS.filter((key) => feature[key] !== undefined);
       if (keys.length > 1) {
         problems.push({ field: `features[${i}].${keys[1]}`, rule: `must not be given with ${keys[0]}: a feature takes at most one derivation key` });
-      } else if (keys.length === 1 && result.data.record === undefined && !isRowLocal(toDerivation(feature.name, feature))) {
+      } else if (keys.length === 1 && result.data.record === undefined) {
         problems.push({
           field: `features[${i}].${keys[0]}`,
           rule: `needs the spec's top-level "record" (its id, time and account columns); got ${describeReceived(result.data.record)}`,
