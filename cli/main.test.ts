@@ -9,7 +9,7 @@ describe("the isodense dispatcher", () => {
     const c = captureIO();
     expect(await main(["--help"], c.io)).toBe(0);
     expect(c.out()).toBe(topLevelHelp());
-    expect(c.out()).toMatch(/^  demo-ledger  write a fictional demo ledger/m);
+    expect(c.out()).toMatch(/^ {2}demo-ledger {2}write a fictional demo ledger/m);
   });
 
   it("prints the help on stderr and exits 2 when no command is given", async () => {

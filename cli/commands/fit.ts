@@ -130,7 +130,7 @@ export async function readSpec(list: string | undefined, specPath: string | unde
   }
   if (list !== undefined) {
     const names = list.split(",").map((name) => name.trim());
-    const empty = names.findIndex((name) => name === "");
+    const empty = names.indexOf("");
     if (empty >= 0) {
       throw new UsageError("--features", "empty name", `option --features has an empty name at position ${empty + 1}; write names separated by commas, e.g. amount,items`);
     }

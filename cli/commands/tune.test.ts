@@ -86,8 +86,10 @@ function counts(cutoff: number) {
   const c = { tp: 0, fp: 0, fn: 0, tn: 0, total: 0 };
   labelled.forEach((r, i) => {
     const flagged = d2[i] > cutoff;
-    if (r.fraud) flagged ? (c.tp += r.weight) : (c.fn += r.weight);
-    else flagged ? (c.fp += r.weight) : (c.tn += r.weight);
+    if (r.fraud && flagged) c.tp += r.weight;
+    else if (r.fraud) c.fn += r.weight;
+    else if (flagged) c.fp += r.weight;
+    else c.tn += r.weight;
     c.total += r.weight;
   });
   return c;

@@ -9,7 +9,7 @@
  */
 import { EigenvalueDecomposition, Matrix } from "ml-matrix";
 import type { CovarianceShape, Diagnostic } from "./types";
-import { EstimationInputError, MomentAccumulator } from "./moments";
+import { EstimationInputError, type MomentAccumulator } from "./moments";
 import { FULL_COVARIANCE_ROWS_PER_COLUMN } from "./estimators";
 import { symmetrize } from "./linalg";
 

@@ -31,8 +31,10 @@ function countAt(scores: number[], labels: boolean[], weights: number[], cutoff:
   let tn = 0;
   scores.forEach((s, i) => {
     const flagged = s > cutoff;
-    if (labels[i]) flagged ? (tp += weights[i]) : (fn += weights[i]);
-    else flagged ? (fp += weights[i]) : (tn += weights[i]);
+    if (labels[i] && flagged) tp += weights[i];
+    else if (labels[i]) fn += weights[i];
+    else if (flagged) fp += weights[i];
+    else tn += weights[i];
   });
   return { tp, fp, fn, tn, total: tp + fp + fn + tn };
 }

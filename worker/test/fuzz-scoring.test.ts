@@ -47,7 +47,6 @@ const DOMAIN_BREAKS: Record<string, fc.Arbitrary<number>> = {
   accountAgeDays: fc.double({ min: -1e6, max: -1, noNaN: true }),
 };
 
-type Payment = (typeof BASE)[number];
 const base = fc.constantFrom(...BASE);
 const feature = fc.constantFrom(...FEATURE_NAMES);
 

@@ -57,7 +57,10 @@ export function historyPlan(spec: RecordSpec): HistoryPlan {
     const means = new Set<string>();
     for (const { derivation: d } of spec.features) {
       if (d.kind === "sum" || d.kind === "distinct") kept.add(d.column);
-      if (d.kind === "vsMean") (kept.add(d.column), means.add(d.column));
+      if (d.kind === "vsMean") {
+        kept.add(d.column);
+        means.add(d.column);
+      }
     }
     plan = { keptColumns: [...kept], meanColumns: [...means], windowMs: longestWindowMs(spec.features) };
     plans.set(spec, plan);

@@ -48,8 +48,10 @@ export function recordValueColumns(spec: RecordSpec): Map<string, ColumnKind> {
   };
   for (const { derivation: d } of spec.features) {
     if (d.kind === "read") mark(d.column, "number");
-    else if (d.kind === "ratio") (mark(d.numerator, "number"), mark(d.denominator, "number"));
-    else if (d.kind === "since") mark(d.column, "timestamp");
+    else if (d.kind === "ratio") {
+      mark(d.numerator, "number");
+      mark(d.denominator, "number");
+    } else if (d.kind === "since") mark(d.column, "timestamp");
     else if (d.kind === "sum" || d.kind === "vsMean") mark(d.column, "number");
     else if (d.kind === "distinct") mark(d.column, "text");
   }

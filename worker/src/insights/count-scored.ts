@@ -17,7 +17,7 @@
 import type { Env } from "../env";
 import type { ScoreAnswer } from "../routes/schemas";
 import type { LoadedModel } from "../scoring/model-cache";
-import { readSettings } from "../settings";
+import { readSettings, type Settings } from "../settings";
 import { TrafficTally, type TallyModel } from "./tally";
 
 /** This isolate's tally (module scope, like the model cache). */
@@ -45,7 +45,7 @@ export function countScored(
   live: LoadedModel,
   scored: readonly ScoredForCount[],
 ): void {
-  let settings;
+  let settings: Pick<Settings, "DRIFT_FLUSH_PAYMENTS" | "DRIFT_FLUSH_SECONDS">;
   try {
     settings = readSettings(env, ["DRIFT_FLUSH_PAYMENTS", "DRIFT_FLUSH_SECONDS"]);
   } catch (error) {

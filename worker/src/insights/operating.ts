@@ -10,8 +10,6 @@ import {
   operatingPoints,
   pointAtCutoff,
   TuningInputError,
-  type OperatingPoint,
-  type RateEstimates,
 } from "../../../shared-model/src";
 import type { LabelledRows } from "./traffic-queries";
 import type { CutoffFigures } from "./contract";

@@ -9,9 +9,9 @@
 import type { Env } from "../env";
 import { loadModel } from "../scoring/model-cache";
 import { readPointer } from "../storage/model-store";
-import { dayFlagRates, driftEntries, refitReasons, type DayFlagRate, type DriftEntry } from "./drift-report";
+import { dayFlagRates, driftEntries, refitReasons } from "./drift-report";
 import { readSettings } from "../settings";
-import { bucketTotals, dailyVolumes, dayBefore, labelCounts, liveSince, type LabelCounts } from "./traffic-queries";
+import { bucketTotals, dailyVolumes, dayBefore, labelCounts, liveSince } from "./traffic-queries";
 import type { FailedReport, WeeklyReport } from "./contract";
 export type { FailedReport, WeeklyReport };
 

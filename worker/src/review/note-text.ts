@@ -9,6 +9,7 @@
  */
 
 /** C0 controls but tab, LF and CR; DEL and the C1 controls. */
+// biome-ignore lint/suspicious/noControlCharactersInRegex: matching control characters is the point.
 const CONTROL = /[\u0000-\u0008\u000b\u000c\u000e-\u001f\u007f-\u009f]/u;
 /** Bidirectional embeddings and overrides (LRE, RLE, PDF, LRO, RLO) and isolates (LRI, RLI, FSI, PDI). */
 const BIDI_CONTROL = /[\u202a-\u202e\u2066-\u2069]/u;

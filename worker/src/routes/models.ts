@@ -19,6 +19,7 @@ import {
   storeArtifact,
   writePointer,
   type ModelPointer,
+  type VersionPage,
 } from "../storage/model-store";
 import { markModelEventFailed, recordModelEvent, type ModelEventAction } from "../storage/review-store";
 import { shadowRequestSchema, versionParamSchema } from "./schemas";
@@ -71,7 +72,7 @@ modelRoutes.get("/models", async (c) => {
     return problemResponse(c, 400, "invalid-request", [{ field: "cursor", rule: "must be the cursor of a previous page of this list" }]);
   }
   const pointer = await readPointer(c.env);
-  let page;
+  let page: VersionPage;
   try {
     page = await listVersions(c.env, PAGE_SIZE, cursor);
   } catch (error) {
