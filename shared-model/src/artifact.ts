@@ -8,6 +8,7 @@
  */
 import { z } from "zod";
 import { chiSquareSurvival } from "./distributions";
+import { logDensityAt } from "./log-density";
 import { columnsOf } from "./features";
 import { cholesky, inverseFromCholesky, logDetFromCholesky, symmetrize, toRows } from "./linalg";
 import type { CholeskyResult } from "./linalg";
@@ -47,7 +48,6 @@ export const INVERSE_TOLERANCE = 1e-6;
 /** Largest accepted |logDet − 2·Σ ln L_ii| (absolute; ln|Σ| is dimensionless in this sense). */
 export const LOG_DET_TOLERANCE = 1e-8;
 
-const LN_2PI = Math.log(2 * Math.PI);
 
 // ---------------------------------------------------------------------------------------------
 // Schema
@@ -607,7 +607,7 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
       add(joinPath("cutoff.logDensity", key), `is required: every segment needs its log-density cutoff`);
       continue;
     }
-    const expected = -0.5 * (n * LN_2PI + a.segments[key].logDet + c.mahalanobisSq);
+    const expected = logDensityAt(n, a.segments[key].logDet, c.mahalanobisSq);
     const actual = c.logDensity[key];
     if (!(Math.abs(actual - expected) <= 1e-9 * Math.max(1, Math.abs(expected)))) {
       add(

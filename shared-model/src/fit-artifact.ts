@@ -15,7 +15,8 @@ import {
 import { cutoffForFlagRate } from "./cutoff";
 import type { ModelSlot, ModelSlots } from "./fit-slots";
 import { decileReference, type DecileReference } from "./drift";
-import { LN_2PI, type FitOptions } from "./fit-types";
+import type { FitOptions } from "./fit-types";
+import { logDensityAt } from "./log-density";
 import { withRecordSpec } from "./records/artifact-spec";
 import type { CovarianceShape, Diagnostic, FittedFeature } from "./types";
 
@@ -58,7 +59,7 @@ export async function sealFit(input: ArtifactInput): Promise<SealedFit> {
   const segments: Record<string, ArtifactSegment> = {};
   for (const slot of fitted) {
     segments[slot.key] = slot.segment!;
-    logDensity[slot.key] = -0.5 * (n * LN_2PI + slot.segment!.logDet + cut.mahalanobisSq);
+    logDensity[slot.key] = logDensityAt(n, slot.segment!.logDet, cut.mahalanobisSq);
   }
   const segmentFallbacks: Record<string, string> = {};
   for (const key of [...slots.fallbacks.keys()].sort()) segmentFallbacks[key] = slots.fallbacks.get(key)!;

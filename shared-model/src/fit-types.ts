@@ -105,8 +105,6 @@ export const FIT_SAMPLE_ROWS = 100_000;
 export const CUTOFF_SAMPLE_ROWS = 200_000;
 /** Rows between progress calls. */
 export const PROGRESS_EVERY = 8192;
-/** ln 2π, the constant of the Gaussian log-density. */
-export const LN_2PI = Math.log(2 * Math.PI);
 
 /** Default rows a segment needs for its own model: 10 per model column (common practice), at least 200. */
 export function defaultMinSegmentRows(n: number): number {

@@ -8,11 +8,11 @@ import type { ModelArtifact } from "./artifact";
 import { chiSquareSurvival, log10ChiSquareSurvival } from "./distributions";
 import { checkRawValue, transformInto } from "./features";
 import { fromRows } from "./linalg";
+import { logDensityAt } from "./log-density";
 import { kernelScratch, mahalanobisSqPacked, packQuadraticForm, type PackedQuadraticForm } from "./quadratic-form";
 import { conditionalReasons } from "./reasons";
 import type { FittedFeature, Reason, ScoreResult, SegmentModel } from "./types";
 
-const LN_2PI = Math.log(2 * Math.PI);
 
 /** A model ready to score: every segment's mean and precision as Float64Arrays, built once. */
 export interface CompiledModel {
@@ -63,7 +63,7 @@ export function compileModel(artifact: ModelArtifact): CompiledModel {
       covariance: fromRows(s.covariance),
       precision: fromRows(s.precision),
       logDet: s.logDet,
-      logNormalizer: -0.5 * (n * LN_2PI + s.logDet),
+      logNormalizer: logDensityAt(n, s.logDet, 0),
     });
   }
   const pooled = segments.get("*");

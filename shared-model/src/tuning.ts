@@ -14,9 +14,9 @@
  */
 import { parseArtifact, sealArtifact, type ModelArtifact, type UnsealedArtifact } from "./artifact";
 import { chiSquareSurvival } from "./distributions";
+import { logDensityAt } from "./log-density";
 import { contentVersion } from "./fit";
 
-const LN_2PI = Math.log(2 * Math.PI);
 
 /** A bad argument to a tuning function, naming the field and the rule it broke. */
 export class TuningInputError extends RangeError {
@@ -383,7 +383,7 @@ export function cutoffForms(model: CutoffModel, cutoffMahalanobisSq: number): Cu
   }
   const logDensity: Record<string, number> = {};
   for (const key of Object.keys(model.logDet)) {
-    logDensity[key] = -0.5 * (model.n * LN_2PI + model.logDet[key] + cutoffMahalanobisSq);
+    logDensity[key] = logDensityAt(model.n, model.logDet[key], cutoffMahalanobisSq);
   }
   return { mahalanobisSq: cutoffMahalanobisSq, tailProbability: chiSquareSurvival(cutoffMahalanobisSq, model.n), logDensity };
 }
