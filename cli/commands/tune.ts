@@ -353,6 +353,8 @@ function estimateLines(e: RateEstimates): string[] {
     `  prevalence  ${shareText(e.prevalence, true)}`,
     `  recall      ${shareText(e.recall, false)}`,
     `  precision   ${shareText(e.precision, false)}`,
+    `  (intervals about this period's payments; exact Poisson limits for the sampled frauds. For future traffic, as binomial shares:`,
+    `   recall ${shareText(e.future.recall, false)}, precision ${shareText(e.future.precision, false)})`,
   ];
   if (e.tooFewLabels) {
     lines.push(`  too few labels to trust these estimates: ${e.reasons.join("; ")}`);
@@ -366,7 +368,9 @@ function estimateLines(e: RateEstimates): string[] {
 function shareText(estimate: Estimate, asPercent: boolean): string {
   if (estimate.value === null) return "n/a";
   const show = (x: number): string => (asPercent ? formatPercent(x) : num(x));
-  return `${show(estimate.value)}  (${show(estimate.low!)} – ${show(estimate.high!)})`;
+  if (estimate.exact) return `${show(estimate.value)}  (exact: every flag decided)`;
+  if (estimate.low === null || estimate.high === null) return `${show(estimate.value)}  (no interval: no audit sample)`;
+  return `${show(estimate.value)}  (${show(estimate.low)} – ${show(estimate.high)})`;
 }
 
 function num(value: number): string {

@@ -413,6 +413,24 @@ export function chiSquareQuantile(p: number, dof: number): number {
 }
 
 /**
+ * Quantile of the standard gamma distribution: the y with P(a, y) = p, for any real shape a > 0
+ * (the χ² quantile is 2·gammaQuantile(p, dof/2)). Exact Poisson (Garwood) limits for a count k
+ * are gammaQuantile(α/2, k) and gammaQuantile(1 − α/2, k + 1); a real shape serves an effective
+ * count such as Kish's.
+ * @param p probability in [0, 1]; 0 gives 0, 1 gives Infinity
+ * @param a shape, finite and > 0
+ * @throws {RangeError} when p is outside [0, 1] or NaN, or a is not a finite number > 0
+ * @example gammaQuantile(0.975, 1) // 3.6888794541139354 (= −ln 0.025)
+ */
+export function gammaQuantile(p: number, a: number): number {
+  requireProbability("p", p);
+  requireFinitePositive("a", a);
+  if (p === 0) return 0;
+  if (p === 1) return Infinity;
+  return (p <= 0.5 ? solveGammaTail(a, p, false) : solveGammaTail(a, 1 - p, true)) / 2;
+}
+
+/**
  * Upper-tail chi-square quantile: the x with P(χ²_dof > x) = tailProbability. Use this rather than
  * chiSquareQuantile(1 − q) for small q (a cutoff at q = 1e-20 is not representable as 1 − q).
  * @param tailProbability upper-tail probability in [0, 1]; 1 gives 0, 0 gives Infinity

@@ -18,7 +18,7 @@
  * Pure functions over counts, so the worker can accumulate counts per day in D1 and the review app
  * can show the table.
  */
-import { normalQuantile } from "./distributions";
+import { wilsonInterval } from "./intervals";
 import { quantiles } from "./reservoir";
 
 /**
@@ -353,15 +353,8 @@ export function flagRateCheck(flagged: number, scored: number, expectedRate: num
   if (typeof confidence !== "number" || !(confidence > 0 && confidence < 1)) {
     throw new DriftInputError("confidence", `must be strictly between 0 and 1. Actual: ${String(confidence)}`);
   }
-  const z = normalQuantile(1 - (1 - confidence) / 2);
-  const n = scored;
-  const p = flagged / n;
-  const z2n = (z * z) / n;
-  const centre = (p + z2n / 2) / (1 + z2n);
-  const half = (z * Math.sqrt((p * (1 - p)) / n + (z * z) / (4 * n * n))) / (1 + z2n);
-  // Exact ends: with 0 or n successes the interval touches 0 or 1 (rounding could leave 1e-17).
-  const low = flagged === 0 ? 0 : Math.max(0, centre - half);
-  const high = flagged === n ? 1 : Math.min(1, centre + half);
+  const { low, high } = wilsonInterval(flagged, scored, confidence);
+  const p = flagged / scored;
   const verdict = expectedRate < low ? "above" : expectedRate > high ? "below" : "as-expected";
   return { flagged, scored, observedRate: p, expectedRate, confidence, low, high, verdict };
 }

@@ -13,11 +13,21 @@
  * sampling; chapter numbers from memory). Ratios R = T_a / T_b (recall, precision, and prevalence
  * when the payment count is itself estimated) use Taylor linearisation: with
  * zᵢ = (aᵢ − R̂·bᵢ)/T̂_b, v(R̂) = Σ_s (1 − πᵢ)/πᵢ²·zᵢ² (ibid., ch. 5 on ratio estimation).
- * Intervals are Wald intervals R̂ ± z₁₋α/₂·√v, clipped to [0, 1]; they are trusted only when
- * enough audit-sample frauds stand behind them (see {@link MIN_AUDIT_FRAUDS}).
- * Flagged rows have π = 1 and add nothing to the variance: flags are a census.
+ * The standard errors are reported; the intervals are not built from them. A Wald interval
+ * collapses exactly where it matters: with no missed fraud in the audit sample recall reads
+ * "100 % (100–100 %)", with one "48 % (0–96 %)". Every flag is decided (π = 1, a census), so what
+ * is unknown is the sampled part — above all the fraud the rule misses, known from k audit-sample
+ * frauds. Each sampled part (audit frauds the rule misses, audit frauds it flags, audit legitimate
+ * payments it flags) gets an exact Poisson interval for its count (Garwood 1936; Kish's effective
+ * count (Σw)²/Σw² and scale Σw²/Σw when weights differ, so equal weights give k and 1/π), and
+ * the figure's interval follows by monotone mapping: recall A/(A + M) is lowest at the fewest
+ * flagged and the most missed frauds. When a figure rests on two sampled parts each gets half the
+ * error (Bonferroni). A figure with no sampled part is exact and says so (`exact`), with no
+ * interval width. These intervals are about **this period's payments** (the finite population the
+ * labels were drawn from). For future traffic the rule's recall and precision are also binomial
+ * shares: `future` widens each with the Wilson interval over the decided counts at both ends.
  */
-import { normalQuantile } from "./distributions";
+import { garwoodInterval, wilsonInterval, type Bounds } from "./intervals";
 
 /**
  * Fewest audit-sample frauds (Kish effective count, see {@link RateEstimates.effectiveAuditFrauds})
@@ -41,12 +51,18 @@ export class EstimateInputError extends RangeError {
   }
 }
 
-/** An estimated share with its standard error and confidence interval (all null when undefined). */
+/**
+ * An estimated share with its standard error and confidence interval (all null when undefined).
+ * `exact` is true when the figure rests on decided payments only (every flag decided, no sampled
+ * part): then low = high = value, and the display says "exact" rather than printing a zero-width
+ * interval.
+ */
 export interface Estimate {
   value: number | null;
   standardError: number | null;
   low: number | null;
   high: number | null;
+  exact: boolean;
 }
 
 /** The labelled rows: parallel arrays, one entry per reviewed payment. */
@@ -97,6 +113,12 @@ export interface RateEstimates {
   recall: Estimate;
   /** Share of the rule's flags that are fraud. */
   precision: Estimate;
+  /**
+   * The same rule on future traffic (recall and precision as probabilities, not this period's
+   * shares): the period's interval widened by the binomial (Wilson) interval of the decided counts.
+   * Wider than the period's; what a cutoff decision for the coming weeks should read.
+   */
+  future: { recall: Estimate; precision: Estimate };
   confidence: number;
   /** True when an estimate should not be trusted; `reasons` says why. */
   tooFewLabels: boolean;
@@ -180,7 +202,7 @@ export function estimateRates(labels: ReviewedLabels, options: EstimateOptions =
     totalPaymentsSource = "given";
   }
 
-  const z = normalQuantile(1 - (1 - confidence) / 2);
+  const census = allCensus && (totalPaymentsSource === "estimated" || totalPayments === m);
   // Σ_s (1 − π)/π² · u² with π = 1/w: (1 − 1/w)·w² = w(w − 1).
   const varianceOf = (u: (i: number) => number): number => {
     let v = 0;
@@ -192,22 +214,81 @@ export function estimateRates(labels: ReviewedLabels, options: EstimateOptions =
     }
     return v;
   };
-  const ratio = (num: number, den: number, a: (i: number) => number, b: (i: number) => number): Estimate => {
-    if (!(den > 0)) return { value: null, standardError: null, low: null, high: null };
-    const r = num / den;
-    const se = Math.sqrt(varianceOf((i) => (a(i) - r * b(i)) / den));
-    return interval(r, se, z);
+  const ratioSe = (r: number, den: number, a: (i: number) => number, b: (i: number) => number): number =>
+    Math.sqrt(varianceOf((i) => (a(i) - r * b(i)) / den));
+
+  // Decided (w = 1) and sampled (w > 1) parts of the three counts the figures are made of.
+  const flaggedFraud = new PartTotals();
+  const flaggedLegit = new PartTotals();
+  const missedFraud = new PartTotals();
+  let auditWeight = 0;
+  let auditRows = 0;
+  for (let i = 0; i < m; i++) {
+    if (w[i] > 1) {
+      auditWeight += w[i];
+      auditRows++;
+    }
+    if (f[i] === 1) (y[i] === 1 ? flaggedFraud : flaggedLegit).add(w[i]);
+    else if (y[i] === 1) missedFraud.add(w[i]);
+  }
+  const sampling = auditRows > 0;
+  // An audit sample draws from every unflagged payment, so the missed fraud is a sampled part even
+  // when no audit fraud was drawn (k = 0, at the typical audit weight). The parts flagged by the
+  // rule but not decided as flags are seen only through audit rows the rule flags.
+  const typicalWeight = sampling ? auditWeight / auditRows : 1;
+  const missedSampled = sampling;
+  const frauds = flaggedFraud.plus(missedFraud);
+
+  const exact = (value: number): Estimate => ({ value, standardError: 0, low: value, high: value, exact: true });
+  const undefinedEstimate: Estimate = { value: null, standardError: null, low: null, high: null, exact: false };
+  const split = (parts: number): number => 1 - (1 - confidence) / Math.max(1, parts);
+
+  // Recall A/(A + M): lowest with the fewest flagged and the most missed frauds.
+  let recall: Estimate = undefinedEstimate;
+  if (tY > 0) {
+    const value = tYF / tY;
+    const parts = (flaggedFraud.sampled ? 1 : 0) + (missedSampled ? 1 : 0);
+    const se = ratioSe(value, tY, (i) => y[i] * f[i], (i) => y[i]);
+    if (!census && !sampling) recall = { value, standardError: se, low: null, high: null, exact: false };
+    else if (parts === 0) recall = exact(value);
+    else {
+      const a = flaggedFraud.bounds(split(parts), typicalWeight, false);
+      const mm = missedFraud.bounds(split(parts), typicalWeight, missedSampled);
+      recall = { value, standardError: se, low: share(a.low, a.low + mm.high), high: share(a.high, a.high + mm.low), exact: false };
+    }
+  }
+  // Precision A/(A + B): lowest with the fewest flagged frauds and the most flagged legitimate.
+  let precision: Estimate = undefinedEstimate;
+  if (tF > 0) {
+    const value = tYF / tF;
+    const parts = (flaggedFraud.sampled ? 1 : 0) + (flaggedLegit.sampled ? 1 : 0);
+    const se = ratioSe(value, tF, (i) => y[i] * f[i], (i) => f[i]);
+    if (parts === 0) precision = exact(value);
+    else {
+      const a = flaggedFraud.bounds(split(parts), typicalWeight, false);
+      const b = flaggedLegit.bounds(split(parts), typicalWeight, false);
+      precision = { value, standardError: se, low: share(a.low, a.low + b.high), high: share(a.high, a.high + b.low), exact: false };
+    }
+  }
+  // Prevalence (frauds)/N: every audit fraud is one sampled part, whichever side of the rule it is.
+  let prevalence: Estimate;
+  {
+    const value = tY / totalPayments;
+    const se =
+      totalPaymentsSource === "given" ? Math.sqrt(varianceOf((i) => y[i])) / totalPayments : ratioSe(value, sumW, (i) => y[i], () => 1);
+    if (census) prevalence = exact(value);
+    else if (!sampling) prevalence = { value, standardError: se, low: null, high: null, exact: false };
+    else {
+      const all = frauds.bounds(confidence, typicalWeight, true);
+      prevalence = { value, standardError: se, low: Math.min(1, all.low / totalPayments), high: Math.min(1, all.high / totalPayments), exact: false };
+    }
+  }
+  const future = {
+    recall: widenForFuture(recall, flaggedFraud, missedFraud, split(2), typicalWeight, missedSampled, confidence),
+    precision: widenForFuture(precision, flaggedFraud, flaggedLegit, split(2), typicalWeight, false, confidence),
   };
 
-  const prevalence =
-    totalPaymentsSource === "given"
-      ? interval(tY / totalPayments, Math.sqrt(varianceOf((i) => y[i])) / totalPayments, z)
-      : ratio(tY, sumW, (i) => y[i], () => 1);
-  const recall = ratio(tYF, tY, (i) => y[i] * f[i], (i) => y[i]);
-  const precision = ratio(tYF, tF, (i) => y[i] * f[i], (i) => f[i]);
-
   const effectiveAuditFrauds = auditFraudW2 > 0 ? (auditFraudW * auditFraudW) / auditFraudW2 : 0;
-  const census = allCensus && (totalPaymentsSource === "estimated" || totalPayments === m);
   const reasons: string[] = [];
   if (labelledFraud === 0) {
     reasons.push("no label is fraud: recall is undefined and prevalence cannot be told from zero");
@@ -235,6 +316,7 @@ export function estimateRates(labels: ReviewedLabels, options: EstimateOptions =
     prevalence,
     recall,
     precision,
+    future,
     confidence,
     tooFewLabels: reasons.length > 0,
     reasons,
@@ -247,14 +329,79 @@ function readFlag(value: boolean | number, field: string): 0 | 1 {
   throw new EstimateInputError(field, `must be true/1 or false/0. Actual: ${String(value)}`);
 }
 
-/** Wald interval r ± z·se clipped to [0, 1]. */
-function interval(value: number, standardError: number, z: number): Estimate {
-  return {
-    value,
-    standardError,
-    low: Math.max(0, value - z * standardError),
-    high: Math.min(1, value + z * standardError),
-  };
+/** a/b, or null when b is 0. */
+function share(a: number, b: number): number | null {
+  return b > 0 ? Math.min(1, Math.max(0, a / b)) : null;
+}
+
+/**
+ * A weighted count split into its decided part (weight 1, known exactly) and its sampled part
+ * (weight > 1, an estimate), with an exact interval for the sampled part.
+ */
+class PartTotals {
+  decided = 0;
+  sampledWeight = 0;
+  sampledWeightSq = 0;
+  sampledRows = 0;
+
+  add(weight: number): void {
+    if (weight > 1) {
+      this.sampledWeight += weight;
+      this.sampledWeightSq += weight * weight;
+      this.sampledRows++;
+    } else this.decided += weight;
+  }
+
+  get sampled(): boolean {
+    return this.sampledRows > 0;
+  }
+
+  plus(other: PartTotals): PartTotals {
+    const sum = new PartTotals();
+    sum.decided = this.decided + other.decided;
+    sum.sampledWeight = this.sampledWeight + other.sampledWeight;
+    sum.sampledWeightSq = this.sampledWeightSq + other.sampledWeightSq;
+    sum.sampledRows = this.sampledRows + other.sampledRows;
+    return sum;
+  }
+
+  /**
+   * Bounds of the total: decided + scale · Garwood(k) with k = (Σw)²/Σw² and scale = Σw²/Σw over the
+   * sampled rows (k rows and weight 1/π when the weights are equal). With no sampled row the total
+   * is exact, unless `drawnFrom` says a sample was drawn from this part (then k = 0 at
+   * `typicalWeight`: nothing seen is not the same as nothing there).
+   */
+  bounds(confidence: number, typicalWeight: number, drawnFrom: boolean): Bounds {
+    if (this.sampledRows === 0) {
+      if (!drawnFrom) return { low: this.decided, high: this.decided };
+      return { low: this.decided, high: this.decided + typicalWeight * garwoodInterval(0, confidence).high };
+    }
+    const k = (this.sampledWeight * this.sampledWeight) / this.sampledWeightSq;
+    const scale = this.sampledWeightSq / this.sampledWeight;
+    const g = garwoodInterval(k, confidence);
+    return { low: this.decided + scale * g.low, high: this.decided + scale * g.high };
+  }
+}
+
+/**
+ * The future-traffic version of a share num/(num + other): the Wilson interval of the decided
+ * counts, taken at both ends of the period's interval so that it holds the sampling uncertainty too.
+ */
+function widenForFuture(
+  period: Estimate,
+  num: PartTotals,
+  other: PartTotals,
+  partConfidence: number,
+  typicalWeight: number,
+  otherDrawnFrom: boolean,
+  confidence: number,
+): Estimate {
+  if (period.value === null || period.low === null || period.high === null) return { ...period, exact: false };
+  const a = num.bounds(partConfidence, typicalWeight, false);
+  const b = other.bounds(partConfidence, typicalWeight, otherDrawnFrom);
+  const lowEnd = a.low + b.high > 0 ? wilsonInterval(a.low, a.low + b.high, confidence).low : 0;
+  const highEnd = a.high + b.low > 0 ? wilsonInterval(a.high, a.high + b.low, confidence).high : 1;
+  return { value: period.value, standardError: period.standardError, low: Math.min(lowEnd, period.low), high: Math.max(highEnd, period.high), exact: false };
 }
 
 function formatCount(x: number): string {

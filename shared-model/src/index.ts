@@ -18,5 +18,6 @@ export * from "./fit";
 export * from "./tuning";
 export * from "./estimates";
 export * from "./drift";
+export * from "./intervals";
 export * from "./records";
 export * from "./spreadsheet-cell";

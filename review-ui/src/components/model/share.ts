@@ -9,11 +9,20 @@ export function percent(share: number | null | undefined, digits = 1): string {
   return share === null || share === undefined || !Number.isFinite(share) ? "—" : `${(share * 100).toFixed(digits)} %`;
 }
 
-/** An estimate with its interval. @example withInterval({ value: 0.6, low: 0.5, high: 0.7, standardError: 0.05 }) // "60.0 % (50.0–70.0 %)" */
+/**
+ * An estimate with its interval; a figure resting on decided payments only says it is exact
+ * rather than printing a zero-width interval, and one whose interval cannot be given says so.
+ * @example withInterval({ value: 0.6, low: 0.5, high: 0.7, standardError: 0.05, exact: false }) // "60.0 % (50.0–70.0 %)"
+ * @example withInterval({ value: 0.6, low: 0.6, high: 0.6, standardError: 0, exact: true }) // "60.0 % (exact: every flag decided)"
+ */
 export function withInterval(estimate: Estimate): string {
   if (estimate.value === null) return "—";
-  if (estimate.low === null || estimate.high === null) return percent(estimate.value);
-  return `${percent(estimate.value)} (${(estimate.low * 100).toFixed(1)}–${percent(estimate.high)})`;
+  if (estimate.exact) return `${percent(estimate.value)} (exact: every flag decided)`;
+  if (estimate.low === null || estimate.high === null) return `${percent(estimate.value)} (no interval: no audit sample)`;
+  // A sampled interval is never zero-width; one decimal must not make it look so (99.96–100.0 %).
+  let digits = 1;
+  while (digits < 4 && (estimate.low * 100).toFixed(digits) === (estimate.high * 100).toFixed(digits)) digits++;
+  return `${percent(estimate.value, digits)} (${(estimate.low * 100).toFixed(digits)}–${percent(estimate.high, digits)})`;
 }
 
 /** A d² value with two decimals. @example distance(24.517) // "24.52" */
