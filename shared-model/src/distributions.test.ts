@@ -1,4 +1,3 @@
-import { readFileSync } from "node:fs";
 import stdlibChiSquareCdf from "@stdlib/stats-base-dists-chisquare-cdf";
 import stdlibChiSquareQuantile from "@stdlib/stats-base-dists-chisquare-quantile";
 import fc from "fast-check";
@@ -15,12 +14,12 @@ import {
   regularizedGammaP,
   regularizedGammaQ,
 } from "./distributions";
+import { readReferenceData } from "../../test/reference-data/files";
 
-const referenceData = (file: string) => new URL(`../../../shared/reference-data/${file}`, import.meta.url);
 
 /** Parses a table `df,alpha_0.10,…` into rows of { df, alpha, value }. */
 function readCriticalValues(file: string): { df: number; alpha: number; value: number }[] {
-  const [header, ...lines] = readFileSync(referenceData(file), "utf8").trim().split(/\r?\n/);
+  const [header, ...lines] = readReferenceData(file).trim().split(/\r?\n/);
   const alphas = header
     .split(",")
     .slice(1)
@@ -187,7 +186,7 @@ describe("chiSquareQuantile and chiSquareUpperQuantile against published tables"
 
   it("reproduce the spot values recorded in expected-values.json", () => {
     // reference-data/expected-values.json → chi2_upper_critical (scipy chi2.isf / sf / cdf).
-    const expected = JSON.parse(readFileSync(referenceData("expected-values.json"), "utf8")).chi2_upper_critical;
+    const expected = JSON.parse(readReferenceData("expected-values.json")).chi2_upper_critical;
     for (const [key, value] of Object.entries(expected.spot_values as Record<string, number>)) {
       const median = /^df(\d+)_median_isf0\.5$/.exec(key);
       const match = /^df(\d+)_alpha([\d.]+)$/.exec(key);

@@ -1,6 +1,3 @@
-import { readFileSync } from "node:fs";
-import { dirname, resolve } from "node:path";
-import { fileURLToPath } from "node:url";
 import fc from "fast-check";
 import { describe, expect, it } from "vitest";
 import {
@@ -17,14 +14,13 @@ import { MomentAccumulator } from "./moments";
 import { mulberry32 } from "./seeded-stream";
 import type { EstimatorDetails } from "./types";
 import { expectRelativelyClose } from "./test-support";
+import { readReferenceData } from "../../test/reference-data/files";
 
-const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
-const referenceDir = resolve(repoRoot, "../shared/reference-data");
-const expected = JSON.parse(readFileSync(resolve(referenceDir, "expected-values.json"), "utf8"));
+const expected = JSON.parse(readReferenceData("expected-values.json"));
 
 /** Numeric columns `from`..`to` (0-based after the rownames column) of a reference CSV. */
 function csvRows(file: string, from: number, to: number): number[][] {
-  const lines = readFileSync(resolve(referenceDir, file), "utf8").trim().split("\n").slice(1);
+  const lines = readReferenceData(file).trim().split("\n").slice(1);
   return lines.map((line) => line.split(",").slice(1 + from, 1 + to).map(Number));
 }
 

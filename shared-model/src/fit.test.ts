@@ -1,4 +1,3 @@
-import { readFileSync } from "node:fs";
 import { describe, expect, it } from "vitest";
 import { canonicalJson, parseArtifact, sha256Hex, type ModelArtifact } from "./artifact";
 import { FitRefusal } from "./diagnostics";
@@ -19,8 +18,8 @@ import { createRandom } from "./random";
 import { Scorer, compileModel } from "./score";
 import { parseCsv } from "./test-support";
 import type { FeatureDeclaration } from "./types";
+import { readReferenceData } from "../../test/reference-data/files";
 
-const referenceData = (file: string): URL => new URL(`../../../shared/reference-data/${file}`, import.meta.url);
 
 /** An in-memory row source; counts its passes so tests can check the fit restarts it. */
 class ArraySource implements RowSource {
@@ -549,8 +548,8 @@ describe("outside references", () => {
   // Fisher's iris, setosa rows 1–50 (reference-data/iris.csv; SOURCES.md §4). Expected mean and
   // maximum-likelihood covariance from expected-values.json → iris_setosa (NumPy `np.cov(bias=True)`,
   // SOURCES.md §6); Ledoit–Wolf intensity from scikit-learn 1.2.1 `LedoitWolf().fit(X).shrinkage_`.
-  const expected = JSON.parse(readFileSync(referenceData("expected-values.json"), "utf8"));
-  const iris = parseCsv(readFileSync(referenceData("iris.csv"), "utf8"));
+  const expected = JSON.parse(readReferenceData("expected-values.json"));
+  const iris = parseCsv(readReferenceData("iris.csv"));
   const setosa = iris.rows.slice(0, 50).map((r) => r.slice(1, 5));
   const features = plain("sepal_length", "sepal_width", "petal_length", "petal_width");
 
@@ -580,7 +579,7 @@ describe("outside references", () => {
   it("ranks the published HBK outliers 1–14 as the 14 most distant rows under the robust fit", async () => {
     // Hawkins, Bradu & Kass (1984), Technometrics 26:197–208; robustbase man/hbk.Rd: "The first 14
     // observations are outliers … can be easily unmasked using robust distances computed by, e.g., MCD".
-    const hbk = parseCsv(readFileSync(referenceData("hbk.csv"), "utf8")).rows.map((r) => r.slice(1, 4));
+    const hbk = parseCsv(readReferenceData("hbk.csv")).rows.map((r) => r.slice(1, 4));
     const { artifact } = await fitModel(new ArraySource(asRows(hbk)), options(plain("X1", "X2", "X3"), { estimator: "robust", seed: 0 }));
     const scorer = new Scorer(compileModel(artifact));
     const ranked = hbk

@@ -1,4 +1,3 @@
-import { readFileSync } from "node:fs";
 import chisquareCdf from "@stdlib/stats-base-dists-chisquare-cdf";
 import chisquareQuantile from "@stdlib/stats-base-dists-chisquare-quantile";
 import { describe, expect, it } from "vitest";
@@ -13,11 +12,11 @@ import {
   type McdResult,
 } from "./mcd";
 import { createRandom } from "./random";
+import { readReferenceData } from "../../test/reference-data/files";
 
-// ───────────── reference data (see shared/reference-data/SOURCES.md) ─────────────
+// ───────────── reference data (see test/reference-data/SOURCES.md) ─────────────
 
-const referenceDir = new URL("../../../shared/reference-data/", import.meta.url);
-const readReference = (file: string): string => readFileSync(new URL(file, referenceDir), "utf8");
+const readReference = readReferenceData;
 
 interface Dataset {
   rows: Float64Array;

@@ -1,18 +1,14 @@
-import { readFileSync } from "node:fs";
-import { dirname, resolve } from "node:path";
-import { fileURLToPath } from "node:url";
 import fc from "fast-check";
 import { describe, expect, it } from "vitest";
 import { EstimationInputError, MomentAccumulator } from "./moments";
 import { expectRelativelyClose } from "./test-support";
+import { readReferenceData } from "../../test/reference-data/files";
 
-const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
-const referenceDir = resolve(repoRoot, "../shared/reference-data");
-const expected = JSON.parse(readFileSync(resolve(referenceDir, "expected-values.json"), "utf8"));
+const expected = JSON.parse(readReferenceData("expected-values.json"));
 
 /** The four measurements of iris.csv, rows in file order (1-based row r is index r − 1). */
 function irisRows(): number[][] {
-  const lines = readFileSync(resolve(referenceDir, "iris.csv"), "utf8").trim().split("\n").slice(1);
+  const lines = readReferenceData("iris.csv").trim().split("\n").slice(1);
   return lines.map((line) => line.split(",").slice(1, 5).map(Number));
 }
 

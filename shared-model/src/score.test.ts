@@ -1,4 +1,3 @@
-import { readFileSync } from "node:fs";
 import stdlibChiSquareCdf from "@stdlib/stats-base-dists-chisquare-cdf";
 import fc from "fast-check";
 import { describe, expect, it } from "vitest";
@@ -18,8 +17,8 @@ import {
 } from "./score";
 import { fitted, jsonCopy, parseCsv, sealedFixture, spdCases, spdFrom } from "./test-support";
 import type { FixtureOptions } from "./test-support";
+import { readReferenceData } from "../../test/reference-data/files";
 
-const referenceData = (file: string): URL => new URL(`../../../shared/reference-data/${file}`, import.meta.url);
 const LN_2PI = Math.log(2 * Math.PI);
 
 /** Relative closeness with the numbers and their difference in the failure message. */
@@ -38,10 +37,10 @@ async function loaded(options: FixtureOptions): Promise<ModelArtifact> {
 const details = { estimator: "classical", denominator: "m" } as const;
 
 describe("scoring against iris setosa reference values (SciPy multivariate_normal)", () => {
-  // Expected values: /work/shared/reference-data/expected-values.json → iris_setosa, computed with
+  // Expected values: test/reference-data/expected-values.json → iris_setosa, computed with
   // scipy.stats.multivariate_normal (SciPy 1.10.1) from Fisher's iris rows 1–50 (SOURCES.md §4, §6).
-  const expected = JSON.parse(readFileSync(referenceData("expected-values.json"), "utf8")).iris_setosa;
-  const iris = parseCsv(readFileSync(referenceData("iris.csv"), "utf8"));
+  const expected = JSON.parse(readReferenceData("expected-values.json")).iris_setosa;
+  const iris = parseCsv(readReferenceData("iris.csv"));
   const features = ["sepal_length", "sepal_width", "petal_length", "petal_width"].map((name) => fitted(name, "none"));
   const points: number[][] = expected.points.rows.map((row: number) => iris.rows[row - 1].slice(1, 5));
 
@@ -84,8 +83,8 @@ describe("scoring against R's mahalanobis() on the stackloss data (R package qqt
   it("reproduces qqtest's `ordinary` squared distances (covariance ÷ (m−1)) to 1e-7", () => {
     // Reference: R package qqtest (rwoldford/qqtest, data/stacklossDistances.rda), column `ordinary`
     // = mahalanobis(stack.x, colMeans, cov()) with cov() dividing by m − 1 (SOURCES.md §1).
-    const data = parseCsv(readFileSync(referenceData("stackloss.csv"), "utf8")).rows.map((r) => r.slice(1, 4));
-    const reference = parseCsv(readFileSync(referenceData("stackloss-mahalanobis-qqtest.csv"), "utf8")).rows;
+    const data = parseCsv(readReferenceData("stackloss.csv")).rows.map((r) => r.slice(1, 4));
+    const reference = parseCsv(readReferenceData("stackloss-mahalanobis-qqtest.csv")).rows;
     const m = data.length;
     const n = 3;
     const mean = new Float64Array(n);

@@ -3,7 +3,7 @@
  * shop and checks files, exit codes and the messages people read.
  */
 import { spawn } from "node:child_process";
-import { existsSync, readFileSync } from "node:fs";
+import { existsSync } from "node:fs";
 import { copyFile, mkdtemp, readdir, readFile, rm, writeFile } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
@@ -12,10 +12,10 @@ import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { parseArtifact } from "../../shared-model/src/artifact";
 import { createRandom } from "../../shared-model/src/random";
 import { parseCsvChunks } from "../../cli/csv";
+import { readReferenceData, referenceDataPath } from "../reference-data/files";
 
 const repoRoot = fileURLToPath(new URL("../../", import.meta.url));
 const bin = join(repoRoot, "bin", "isodense.js");
-const referenceData = (file: string): string => fileURLToPath(new URL(`../../../shared/reference-data/${file}`, import.meta.url));
 
 interface Run {
   code: number | null;
@@ -149,8 +149,8 @@ describe("isodense fit and score on a ledger", () => {
   it("fits iris setosa through the CLI to NumPy's mean and maximum-likelihood covariance", async () => {
     // Fisher's iris (reference-data/iris.csv, SOURCES.md §4); expected values from
     // expected-values.json → iris_setosa (NumPy, covariance divided by m; SOURCES.md §6).
-    await copyFile(referenceData("iris.csv"), join(dir, "iris.csv"));
-    const expected = JSON.parse(readFileSync(referenceData("expected-values.json"), "utf8")).iris_setosa;
+    await copyFile(referenceDataPath("iris.csv"), join(dir, "iris.csv"));
+    const expected = JSON.parse(readReferenceData("expected-values.json")).iris_setosa;
     const run = await isodense([
       "fit", "iris.csv", "--out", "iris-model.json",
       "--features", "Sepal.Length,Sepal.Width,Petal.Length,Petal.Width",

@@ -55,7 +55,10 @@ describe("readSettings", () => {
     for (const bad of ["0.01abc", "0x10", "1e", "", " ", "Infinity", "NaN", "+1", "1,5"]) {
       for (const name of Object.keys(settingsSchema.shape) as (keyof typeof settingsSchema.shape)[]) {
         const error = configError(() => readSettings({ [name]: bad }, [name]));
-        expect(error.problems.map((p) => p.field), `${name}=${JSON.stringify(bad)}`).toEqual([name]);
+        expect(
+          error.problems.map((p) => p.field),
+          `${name}=${JSON.stringify(bad)}`,
+        ).toEqual([name]);
       }
     }
     expect(readSettings({ DRIFT_FLUSH_SECONDS: " 2.5e1 " }, ["DRIFT_FLUSH_SECONDS"])).toEqual({ DRIFT_FLUSH_SECONDS: 25 });

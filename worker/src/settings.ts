@@ -32,16 +32,14 @@ interface NumberRule {
 /** The one number rule every numeric setting follows (see the module comment). */
 function numberSetting({ min, max, whole = false, unit }: NumberRule) {
   const rule = `must be a ${whole ? "whole " : ""}number${unit ? ` of ${unit}` : ""} from ${min} to ${max}`;
-  return z
-    .string({ error: (issue) => `${rule} (${issue.input === undefined ? "the variable is not set" : `received a ${typeof issue.input}`})` })
-    .transform((raw, ctx) => {
-      const value = DECIMAL_TEXT.test(raw) ? Number(raw) : Number.NaN;
-      if (!(Number.isFinite(value) && value >= min && value <= max && (!whole || Number.isInteger(value)))) {
-        ctx.addIssue({ code: "custom", message: `${rule} (received ${JSON.stringify(raw.length > 32 ? `${raw.slice(0, 32)}…` : raw)})` });
-        return z.NEVER;
-      }
-      return value;
-    });
+  return z.string({ error: (issue) => `${rule} (${issue.input === undefined ? "the variable is not set" : `received a ${typeof issue.input}`})` }).transform((raw, ctx) => {
+    const value = DECIMAL_TEXT.test(raw) ? Number(raw) : Number.NaN;
+    if (!(Number.isFinite(value) && value >= min && value <= max && (!whole || Number.isInteger(value)))) {
+      ctx.addIssue({ code: "custom", message: `${rule} (received ${JSON.stringify(raw.length > 32 ? `${raw.slice(0, 32)}…` : raw)})` });
+      return z.NEVER;
+    }
+    return value;
+  });
 }
 
 /**
@@ -83,10 +81,7 @@ const parsed = new Map<string, unknown>();
  * readSettings({ MAX_BATCH: "100", MODEL_REFRESH_SECONDS: "10" }, ["MAX_BATCH", "MODEL_REFRESH_SECONDS"])
  * // → { MAX_BATCH: 100, MODEL_REFRESH_SECONDS: 10 }
  */
-export function readSettings<K extends SettingName = SettingName>(
-  env: Partial<Record<SettingName, string>>,
-  names: readonly K[] = ALL_SETTINGS as K[],
-): Pick<Settings, K> {
+export function readSettings<K extends SettingName = SettingName>(env: Partial<Record<SettingName, string>>, names: readonly K[] = ALL_SETTINGS as K[]): Pick<Settings, K> {
   const raw = env as Partial<Record<K, unknown>>;
   const key = names.map((name) => `${name}=${String(raw[name])}`).join("\u0000");
   const hit = parsed.get(key);
