@@ -8,6 +8,7 @@
  * skipped. Every error names the file, the 1-based physical line and, where known, the column.
  */
 import { createReadStream } from "node:fs";
+import { quoteCsvCell } from "../shared-model/src/spreadsheet-cell";
 import { whyNotANumber } from "./numbers";
 
 /** A problem in a CSV file, located by file, physical line (1-based) and column name. */
@@ -422,8 +423,7 @@ export function numberCell(text: string, file: string, line: number, column: str
  * @example formatCsvCell('say "hi"') // '"say ""hi"""'
  */
 export function formatCsvCell(value: string | number | boolean): string {
-  const text = String(value);
-  return /[",\r\n]/.test(text) ? `"${text.replace(/"/g, '""')}"` : text;
+  return quoteCsvCell(String(value));
 }
 
 /** Writes one CSV row, cells quoted as needed, ending with LF. */

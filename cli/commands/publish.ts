@@ -5,12 +5,10 @@
  * it again), so a broken file fails here with every problem listed. Versions are immutable:
  * publishing the same file twice is harmless; other content under a published version is refused.
  */
-import { readFile } from "node:fs/promises";
-import { resolve } from "node:path";
-import { ArtifactError, parseArtifact, type ModelArtifact } from "../../shared-model/src/artifact";
 import { formatHelp, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
-import { EXIT_INTERNAL, EXIT_OK, EXIT_REFUSED, InputError, reportFailure } from "../errors";
+import { EXIT_INTERNAL, EXIT_OK, EXIT_REFUSED, reportFailure } from "../errors";
 import { processIO, writeLines, type CommandIO } from "../io";
+import { loadArtifact } from "./score";
 
 /** Environment variable read when `--token` is not given (keeps the token out of shell history). */
 export const TOKEN_ENV = "ISODENSE_ADMIN_TOKEN";
@@ -54,7 +52,7 @@ export async function publishCommand(argv: string[], io: CommandIO = processIO()
       throw new UsageError("--token", "is required", `option --token is required (or set ${TOKEN_ENV}): the admin bearer token`);
     }
     const file = args.positionals[0];
-    const artifact = await readModelFile(file);
+    const artifact = await loadArtifact(file);
     const upload = await send(base, "POST", "/v1/models", token, artifact);
     if (upload.status === 201) writeLines(io.stdout, [`published ${artifact.version} (${artifact.checksum}) to ${base.origin}`]);
     else if (upload.status === 200) writeLines(io.stdout, [`${artifact.version} was already published with identical content`]);
@@ -99,27 +97,6 @@ function serviceUrl(raw: string | undefined): URL {
     throw new UsageError("--url", "not http(s)", `option --url must be an http(s) URL; got '${raw}'`);
   }
   return url;
-}
-
-async function readModelFile(file: string): Promise<ModelArtifact> {
-  let text: string;
-  try {
-    text = await readFile(resolve(file), "utf8");
-  } catch (error) {
-    throw new InputError(file, "cannot be read", `${file}: cannot be read (${(error as NodeJS.ErrnoException).code ?? (error as Error).message})`);
-  }
-  let value: unknown;
-  try {
-    value = JSON.parse(text);
-  } catch (error) {
-    throw new InputError(file, "is not JSON", `${file}: is not JSON (${(error as Error).message})`);
-  }
-  try {
-    return await parseArtifact(value);
-  } catch (error) {
-    if (error instanceof ArtifactError) throw error;
-    throw new InputError(file, "is not a model file", `${file}: ${(error as Error).message}`);
-  }
 }
 
 interface ServiceAnswer {

@@ -8,6 +8,7 @@
  */
 import { z } from "zod";
 import { chiSquareSurvival } from "./distributions";
+import { formatFieldPath, joinFieldPath } from "./field-path";
 import { logDensityAt } from "./log-density";
 import { columnsOf } from "./features";
 import { cholesky, inverseFromCholesky, logDetFromCholesky, symmetrize, toRows } from "./linalg";
@@ -513,7 +514,7 @@ function findReservedKeys(value: unknown, path: string, depth: number, problems:
     return;
   }
   for (const key of Object.keys(value)) {
-    const child = joinPath(path, key);
+    const child = joinFieldPath(path, key);
     if (key === "__proto__") {
       problems.push({ path: child, rule: '"__proto__" is a reserved key and is not allowed' });
       continue;
@@ -523,10 +524,10 @@ function findReservedKeys(value: unknown, path: string, depth: number, problems:
 }
 
 function issueToProblems(issue: z.core.$ZodIssue): ArtifactProblem[] {
-  const base = formatPath(issue.path);
+  const base = formatFieldPath(issue.path);
   if (issue.code === "unrecognized_keys") {
     return issue.keys.map((key) => ({
-      path: joinPath(base, key),
+      path: joinFieldPath(base, key),
       rule: `is not a field of ${MODEL_FORMAT} (unknown keys are refused)`,
     }));
   }
@@ -593,7 +594,7 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
 
   for (const key of Object.keys(a.segmentFallbacks)) {
     if (Object.hasOwn(a.segments, key) || key === "*") {
-      add(joinPath("segmentFallbacks", key), "must not name a fitted segment: a value is either fitted or falls back to \"*\"");
+      add(joinFieldPath("segmentFallbacks", key), "must not name a fitted segment: a value is either fitted or falls back to \"*\"");
     }
   }
   if (a.segmentBy === null && Object.keys(a.segmentFallbacks).length > 0) {
@@ -604,20 +605,20 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
   const c = a.cutoff;
   for (const key of keys) {
     if (!Object.hasOwn(c.logDensity, key)) {
-      add(joinPath("cutoff.logDensity", key), `is required: every segment needs its log-density cutoff`);
+      add(joinFieldPath("cutoff.logDensity", key), `is required: every segment needs its log-density cutoff`);
       continue;
     }
     const expected = logDensityAt(n, a.segments[key].logDet, c.mahalanobisSq);
     const actual = c.logDensity[key];
     if (!(Math.abs(actual - expected) <= 1e-9 * Math.max(1, Math.abs(expected)))) {
       add(
-        joinPath("cutoff.logDensity", key),
+        joinFieldPath("cutoff.logDensity", key),
         `must equal −½(n ln 2π + logDet + cutoff.mahalanobisSq) = ${expected}. Actual: ${actual}`,
       );
     }
   }
   for (const key of Object.keys(c.logDensity)) {
-    if (!Object.hasOwn(a.segments, key)) add(joinPath("cutoff.logDensity", key), "names no segment");
+    if (!Object.hasOwn(a.segments, key)) add(joinFieldPath("cutoff.logDensity", key), "names no segment");
   }
   const tail = chiSquareSurvival(c.mahalanobisSq, n);
   // 1e-6 relative: far looser than the χ² routine's error, far tighter than any edited cutoff.
@@ -660,7 +661,7 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
 
 function checkSegment(a: ModelArtifact, key: string, n: number, add: (path: string, rule: string) => void): void {
   const seg = a.segments[key];
-  const base = joinPath("segments", key);
+  const base = joinFieldPath("segments", key);
   if (seg.details.estimator !== a.estimator) {
     add(`${base}.details.estimator`, `must match the artifact's estimator "${a.estimator}". Actual: "${seg.details.estimator}"`);
   }
@@ -818,22 +819,6 @@ function sameStrings(a: readonly string[], b: readonly string[]): boolean {
   return a.length === b.length && a.every((v, i) => v === b[i]);
 }
 
-const IDENTIFIER = /^[A-Za-z_$][A-Za-z0-9_$-]*$/;
-
-/** Appends an object key to a path: `.web` for plain names, `["card not present"]` otherwise. */
-function joinPath(base: string, key: string): string {
-  const part = IDENTIFIER.test(key) ? key : `[${JSON.stringify(key)}]`;
-  if (part.startsWith("[")) return `${base}${part}`;
-  return base === "" ? part : `${base}.${part}`;
-}
-
-function formatPath(path: readonly PropertyKey[]): string {
-  let out = "";
-  for (const part of path) {
-    out = typeof part === "number" ? `${out}[${part}]` : joinPath(out, String(part));
-  }
-  return out;
-}
 
 function formatNumber(x: number): string {
   if (!Number.isFinite(x)) return String(x);

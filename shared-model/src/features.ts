@@ -19,6 +19,7 @@
  *     (minimisation by golden section and successive parabolic interpolation).
  */
 import { z } from "zod";
+import { formatFieldPath } from "./field-path";
 import type { FeatureDeclaration, FittedFeature, TransformKind } from "./types";
 
 /** Every transform kind, in the order the documentation lists them. */
@@ -155,8 +156,7 @@ export const featureSpecSchema = z
 
 /** ["features", 2, "transform"] → "features[2].transform"; the empty path is the document, "spec". */
 function formatPath(path: readonly PropertyKey[]): string {
-  if (path.length === 0) return "spec";
-  return path.map((key, i) => (typeof key === "number" ? `[${key}]` : i === 0 ? String(key) : `.${String(key)}`)).join("");
+  return path.length === 0 ? "spec" : formatFieldPath(path);
 }
 
 function valueAt(json: unknown, path: readonly PropertyKey[]): unknown {

@@ -10,6 +10,7 @@ export * from "./random";
 export * from "./diagnostics";
 export * from "./artifact";
 export * from "./quadratic-form";
+export * from "./field-path";
 export * from "./log-density";
 export * from "./score";
 export * from "./reasons";

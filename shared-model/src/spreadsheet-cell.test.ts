@@ -1,6 +1,6 @@
 import fc from "fast-check";
 import { describe, expect, it } from "vitest";
-import { neutraliseTextCell, restoreTextCell } from "./spreadsheet-cell";
+import { neutraliseTextCell, quoteCsvCell, restoreTextCell } from "./spreadsheet-cell";
 
 describe("spreadsheet-safe text cells", () => {
   it("puts an apostrophe before text that begins with =, +, -, @, tab or carriage return", () => {
@@ -36,5 +36,18 @@ describe("spreadsheet-safe text cells", () => {
     expect(restoreTextCell("'quoted")).toBe("'quoted");
     expect(restoreTextCell("plain")).toBe("plain");
     expect(restoreTextCell("'")).toBe("'");
+  });
+});
+
+describe("quoteCsvCell", () => {
+  it("quotes a cell holding a comma, a quote or a line break and doubles inner quotes, as RFC 4180 §2 rules 6 and 7 say", () => {
+    expect(quoteCsvCell("a,b")).toBe('"a,b"');
+    expect(quoteCsvCell('say "hi"')).toBe('"say ""hi"""');
+    expect(quoteCsvCell("two\nlines")).toBe('"two\nlines"');
+    expect(quoteCsvCell("cr\r")).toBe('"cr\r"');
+  });
+
+  it("leaves every other cell as it is, spaces and apostrophes included", () => {
+    for (const text of ["web", "", " padded ", "'=SUM(A1)", "-12.5"]) expect(quoteCsvCell(text)).toBe(text);
   });
 });

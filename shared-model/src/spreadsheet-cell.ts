@@ -1,5 +1,6 @@
 /**
- * Spreadsheet-safe text cells for CSV files that people open in a spreadsheet (the labelled-set
+ * Writing CSV cells: RFC 4180 quoting for every CSV file isodense writes, and spreadsheet-safe
+ * text cells for CSV files that people open in a spreadsheet (the labelled-set
  * export). A spreadsheet reads a cell that begins with `=`, `+`, `-` or `@` as a formula, and a
  * leading tab or carriage return can hide one; a payment id such as `=HYPERLINK(…)` chosen by the
  * caller would then run on an analyst's machine ("CSV injection", OWASP; the leading-apostrophe
@@ -11,6 +12,17 @@
  * trigger or an apostrophe. Numbers written by the service are not text cells (a number cannot
  * carry a formula) and are left alone, so `-12.5` stays a number.
  */
+
+/**
+ * One CSV cell as RFC 4180 writes it: quoted when it holds a comma, a quote or a line break, with
+ * inner quotes doubled; anything else as it is.
+ *
+ * @example quoteCsvCell('say "hi"') // → '"say ""hi"""'
+ * @example quoteCsvCell("web") // → "web"
+ */
+export function quoteCsvCell(text: string): string {
+  return /[",\r\n]/.test(text) ? `"${text.replace(/"/g, '""')}"` : text;
+}
 
 /** Leading characters a spreadsheet may read as the start of a formula. */
 const TRIGGERS = "=+-@\t\r";

@@ -6,6 +6,7 @@
 import type { Context } from "hono";
 import type { ContentfulStatusCode } from "hono/utils/http-status";
 import type { z } from "zod";
+import { formatFieldPath } from "../../shared-model/src/field-path";
 import type { Problem } from "./env";
 
 /** Body of every error answer. */
@@ -42,15 +43,7 @@ export function problemResponse(
  * fieldPath("payments[0].", ["features", "amount"]) // → "payments[0].features.amount"
  */
 export function fieldPath(prefix: string, path: readonly PropertyKey[]): string {
-  let out = prefix.endsWith(".") ? prefix.slice(0, -1) : prefix;
-  for (const segment of path) {
-    if (typeof segment === "number") out += `[${segment}]`;
-    else {
-      const name = String(segment);
-      out += /^[A-Za-z_$][A-Za-z0-9_$.-]*$/.test(name) ? `${out ? "." : ""}${name}` : `[${JSON.stringify(name)}]`;
-    }
-  }
-  return out || "body";
+  return formatFieldPath(path, prefix.endsWith(".") ? prefix.slice(0, -1) : prefix) || "body";
 }
 
 /**

@@ -9,7 +9,7 @@
 import type { Env } from "../env";
 import { modelFor } from "./evidence";
 import { ModelLoadError } from "../scoring/model-cache";
-import { neutraliseTextCell } from "../../../shared-model/src/spreadsheet-cell";
+import { neutraliseTextCell, quoteCsvCell } from "../../../shared-model/src/spreadsheet-cell";
 
 const EXPORT_PAGE = 500;
 
@@ -89,8 +89,7 @@ export async function exportFeatureColumns(env: Pick<Env, "DB" | "MODELS">, mode
  */
 function csvCell(value: string | number | null): string {
   if (value === null) return "";
-  const text = typeof value === "string" ? neutraliseTextCell(value) : String(value);
-  return /[",\r\n]/.test(text) ? `"${text.replace(/"/g, '""')}"` : text;
+  return quoteCsvCell(typeof value === "string" ? neutraliseTextCell(value) : String(value));
 }
 
 /**
