@@ -6,6 +6,8 @@ import { runWeeklyReport } from "./insights/weekly-report";
 import { handleHandoffBatch } from "./storage/queue-consumer";
 
 export type { Env } from "./env";
+// Durable Object classes must be exported by the main module (wrangler.toml binds them by name).
+export { IdempotencyObject } from "./idempotency/idempotency-object";
 export type { HandoffMessage, ReviewMessage, ShadowMessage } from "./storage/messages";
 export type { ScoreAnswer } from "./routes/schemas";
 

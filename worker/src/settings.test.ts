@@ -33,6 +33,7 @@ describe("readSettings", () => {
       DRIFT_FLUSH_SECONDS: 30,
       REFIT_AFTER_DAYS: 28,
       ANALYST_DAILY_CAPACITY: 200,
+      IDEMPOTENCY_WINDOW_SECONDS: 86_400,
     });
   });
 

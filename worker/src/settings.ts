@@ -53,6 +53,8 @@ export const settingsSchema = z.object({
   MODEL_REFRESH_SECONDS: numberSetting({ min: 0, max: 3600, unit: "seconds" }),
   /** Most payments accepted by one batch call. */
   MAX_BATCH: numberSetting({ min: 1, max: MAX_BATCH_CEILING, whole: true, unit: "payments" }),
+  /** How long a transaction id names one payment, from its first sight (idempotency/claims.ts). */
+  IDEMPOTENCY_WINDOW_SECONDS: numberSetting({ min: 1, max: 7 * 86_400, unit: "seconds" }),
   /** An isolate flushes its traffic counts after this many payments… */
   DRIFT_FLUSH_PAYMENTS: numberSetting({ min: 1, max: 100_000, whole: true, unit: "payments" }),
   /** …or once its oldest unflushed count is this old. */

@@ -1,7 +1,7 @@
 /**
  * Runs the real worker on workerd (Miniflare, the simulator inside wrangler) with the bindings of
- * wrangler.toml: real local KV, D1 (migrations from worker/migrations applied) and Queues, with
- * both consumers. Nothing is faked: tests talk HTTP to the worker and read KV/D1 through
+ * wrangler.toml: real local KV, D1 (migrations from worker/migrations applied), Queues, with both
+ * consumers, and Durable Objects (SQLite-backed, persisted beside KV and D1 when `persistDir` is set). Nothing is faked: tests talk HTTP to the worker and read KV/D1 through
  * Miniflare's own binding proxies.
  *
  * The worker is bundled once per test run with esbuild, as wrangler would bundle it
@@ -128,8 +128,8 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
   }
   const logs: CapturedLog[] = [];
   const persist = options.persistDir
-    ? { kvPersist: join(options.persistDir, "kv"), d1Persist: join(options.persistDir, "d1") }
-    : { kvPersist: false, d1Persist: false };
+    ? { kvPersist: join(options.persistDir, "kv"), d1Persist: join(options.persistDir, "d1"), durableObjectsPersist: join(options.persistDir, "do") }
+    : { kvPersist: false, d1Persist: false, durableObjectsPersist: false };
   const mf = new Miniflare({
     ...(workerOptions as object),
     name: "isodense",

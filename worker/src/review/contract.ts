@@ -124,6 +124,20 @@ export interface AuditEvent {
   modelVersion: string;
 }
 
+/**
+ * The payment's transaction id sent again, inside the idempotency window, with other content than
+ * when first seen; the payment flow was answered 409. The content shown is the refused repeat's.
+ */
+export interface ConflictView {
+  at: string;
+  firstSeenAt: string;
+  /** Live model when the repeat came. */
+  modelVersion: string;
+  segment: string | null;
+  accountRef: string | null;
+  features: Record<string, number>;
+}
+
 /** GET /v1/review/items/:id */
 export interface ItemDetail {
   item: QueueRow & {
@@ -142,6 +156,8 @@ export interface ItemDetail {
   evidenceGap: string | null;
   history: HistoryRow[];
   events: AuditEvent[];
+  /** Repeats of this transaction id with other content (newest first, at most 20). */
+  conflicts: ConflictView[];
   /** Whether the caller may still undo their latest decision on this item. */
   undoableUntil: string | null;
 }

@@ -4,7 +4,7 @@
  */
 import type { Reason } from "../../../shared-model/src";
 import type { Env } from "../env";
-import type { AuditAction, AuditEvent, HistoryRow, Outcome } from "./contract";
+import type { AuditAction, AuditEvent, ConflictView, HistoryRow, Outcome } from "./contract";
 import { STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
 import { HISTORY_LIMIT } from "./settings";
 
@@ -29,6 +29,18 @@ interface EventRow {
   model_version: string;
 }
 
+interface ConflictRow {
+  at: string;
+  first_seen_at: string;
+  model_version: string;
+  segment: string | null;
+  account_ref: string | null;
+  features_json: string;
+}
+
+/** Conflicting repeats shown on the payment view. */
+const CONFLICTS_SHOWN = 20;
+
 export interface StoredItem {
   status: StatusRow;
   features: Record<string, unknown>;
@@ -39,6 +51,7 @@ export interface StoredItem {
   receivedAt: string;
   history: HistoryRow[];
   events: AuditEvent[];
+  conflicts: ConflictView[];
 }
 
 /**
@@ -49,7 +62,7 @@ export async function readItem(env: Pick<Env, "DB">, id: number, nowMs: number):
   const prefixed = STATUS_COLUMNS.split(", ")
     .map((c) => `s.${c}`)
     .join(", ");
-  const [itemResult, historyResult, eventResult] = await env.DB.batch([
+  const [itemResult, historyResult, eventResult, conflictResult] = await env.DB.batch([
     env.DB.prepare(
       `SELECT ${prefixed}, i.features_json, i.log_density, i.cutoff_mahalanobis_sq, i.reasons_json, i.inclusion_probability, i.received_at ` +
         "FROM review_status s JOIN review_items i ON i.id = s.item_id WHERE s.item_id = ?1",
@@ -59,6 +72,10 @@ export async function readItem(env: Pick<Env, "DB">, id: number, nowMs: number):
         "AND item_id != ?1 ORDER BY scored_ms DESC LIMIT ?2",
     ).bind(id, HISTORY_LIMIT),
     env.DB.prepare("SELECT id, at, actor, action, from_outcome, to_outcome, note, model_version FROM review_events WHERE item_id = ?1 ORDER BY id").bind(id),
+    env.DB.prepare(
+      "SELECT at, first_seen_at, model_version, segment, account_ref, features_json FROM payment_conflicts " +
+        "WHERE transaction_id = (SELECT transaction_id FROM review_status WHERE item_id = ?1) ORDER BY id DESC LIMIT ?2",
+    ).bind(id, CONFLICTS_SHOWN),
   ]);
   const row = itemResult.results[0] as (StatusRow & ItemRow) | undefined;
   if (!row) return null;
@@ -89,6 +106,14 @@ export async function readItem(env: Pick<Env, "DB">, id: number, nowMs: number):
       toOutcome: e.to_outcome,
       note: e.note,
       modelVersion: e.model_version,
+    })),
+    conflicts: (conflictResult.results as ConflictRow[]).map((c) => ({
+      at: c.at,
+      firstSeenAt: c.first_seen_at,
+      modelVersion: c.model_version,
+      segment: c.segment,
+      accountRef: c.account_ref,
+      features: parseObject(c.features_json) as Record<string, number>,
     })),
   };
 }

@@ -128,6 +128,7 @@ reviewRoutes.get("/items/:id", async (c) => {
     evidenceGap: evidence.gap,
     history: stored.history,
     events: stored.events,
+    conflicts: stored.conflicts,
     undoableUntil: undoableUntil(stored.status, c.get("principal").user, now),
   };
   return c.json(body);

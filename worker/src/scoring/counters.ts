@@ -9,4 +9,8 @@ export const counters = {
   shadowSendFailures: 0,
   /** Review hand-offs that could not be enqueued (the payment was answered 503, retryable). */
   handoffSendFailures: 0,
+  /** Payments scored without the durable idempotency check because its store could not be reached. */
+  idempotencyUnavailable: 0,
+  /** Conflicting repeats whose record could not be enqueued for the analysts (the 409 went out all the same). */
+  conflictSendFailures: 0,
 };

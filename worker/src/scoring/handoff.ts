@@ -6,8 +6,10 @@
  * send therefore fails the payment with a retryable 503, never a silent loss. Shadow comparisons
  * are evidence for a promotion decision, not for a payment: they go through `waitUntil`, best
  * effort, so that a shadow never adds latency to the flow (a lost one thins the sample only).
+ * Conflict records (a transaction id sent again with other content) are awaited on the 409 path,
+ * which is not the payment's usual path, so the analysts' record does not die with the isolate.
  */
-import { QUEUE_LIMITS, type HandoffMessage, type ReviewMessage, type ShadowMessage } from "../storage/messages";
+import { QUEUE_LIMITS, type ConflictMessage, type HandoffMessage, type ReviewMessage, type ShadowMessage } from "../storage/messages";
 import { counters } from "./counters";
 
 /** Splits messages into `sendBatch` calls within the platform's count and byte limits. */
@@ -75,6 +77,26 @@ export async function sendShadowComparisons(queue: Queue<HandoffMessage>, messag
       } catch (error) {
         counters.shadowSendFailures += chunk.length;
         console.error(JSON.stringify({ event: "shadow-send-failed", messages: chunk.length, error: String(error) }));
+      }
+    }),
+  );
+}
+
+/**
+ * Enqueues records of conflicting repeats for the review store, awaited; never rejects (a failure
+ * is logged with the full records, so they can be replayed from the logs, and counted).
+ *
+ * @example
+ * await sendConflicts(env.FLAGS, conflicts);
+ */
+export async function sendConflicts(queue: Queue<HandoffMessage>, messages: readonly ConflictMessage[]): Promise<void> {
+  await Promise.all(
+    chunkForSend(messages).map(async (chunk) => {
+      try {
+        await queue.sendBatch(chunk.map((body) => ({ body, contentType: "json" as const })));
+      } catch (error) {
+        counters.conflictSendFailures += chunk.length;
+        console.error(JSON.stringify({ event: "conflict-send-failed", messages: chunk, error: String(error) }));
       }
     }),
   );

@@ -1,30 +1,30 @@
 /**
  * The one scoring path behind `POST /v1/score` (a batch of one) and `POST /v1/score/batch`:
- * validate every payment, answer repeats from this isolate's memory, score, hand the review items
- * off, remember the answers and count the traffic. Each payment ends as an {@link Outcome}: scored,
- * or refused with the status it would have had alone.
+ * validate every payment, claim its transaction id in the durable idempotency store (one awaited
+ * round trip per shard involved), answer repeats with the stored answer, refuse conflicting repeats
+ * (409, recorded for the analysts), score, hand the review items off, keep the answers (after the
+ * response, through `waitUntil`) and count the traffic. Each payment ends as an {@link Outcome}:
+ * scored, or refused with the status it would have had alone.
  *
- * Idempotency: the answer is a pure function of (model version, request); the isolate also
- * remembers recent answers by (model version, transactionId), so a repeat gets the identical
- * answer with no second hand-off, and a repeat with different content gets 409. The review store
- * keeps one row per (transaction, model version) in any case.
+ * Idempotency (idempotency/claims.ts): a transaction id names one payment for the idempotency
+ * window on every isolate. If the store cannot be reached the payment is scored all the same (a
+ * review item matters more than a refusal) and the miss is counted in `/v1/health`. The review
+ * store keeps one row per (transaction, model version) in any case.
  */
 import type { Env, Problem } from "../env";
 import { countScored } from "../insights/count-scored";
 import type { ScoreAnswer } from "../routes/schemas";
 import type { Settings } from "../settings";
-import type { ShadowMessage } from "../storage/messages";
-import { AnswerCache, answerKey, contentHash } from "./answer-cache";
+import type { ConflictMessage, ReviewMessage, ShadowMessage } from "../storage/messages";
+import { claimTransactions, contentHash, rememberAnswers, type Claim } from "../idempotency/claims";
 import { auditPosition } from "./audit-sample";
-import { sendReviewItems, sendShadowComparisons } from "./handoff";
+import { counters } from "./counters";
+import { sendConflicts, sendReviewItems, sendShadowComparisons } from "./handoff";
 import type { ModelSnapshot } from "./model-cache";
 import { scorePayment, validatePayment, type ScoredPayment, type ValidPayment } from "./score-payment";
 
 /** The `[vars]` the scoring path reads (the loop's own variables never fail a payment). */
-export const SCORING_SETTINGS = ["AUDIT_SAMPLE_RATE", "MODEL_REFRESH_SECONDS", "MAX_BATCH"] as const;
-
-/** Recent answers of this isolate (module scope). */
-const answers = new AnswerCache<ScoreAnswer>();
+export const SCORING_SETTINGS = ["AUDIT_SAMPLE_RATE", "MODEL_REFRESH_SECONDS", "MAX_BATCH", "IDEMPOTENCY_WINDOW_SECONDS"] as const;
 
 /** How one payment ended: its answer, or the refusal it would have had alone. */
 export type Outcome =
@@ -40,6 +40,12 @@ export type Outcome =
       retryable?: boolean;
     };
 
+/** What the idempotency store keeps for an answered id: the answer and its review item, if any. */
+interface StoredOutcome {
+  answer: ScoreAnswer;
+  review: ReviewMessage | null;
+}
+
 /** A refusal. */
 type Refusal = Extract<Outcome, { outcome: "refused" }>;
 
@@ -54,8 +60,9 @@ export interface ScoringCall {
 /** One payment while it is being worked on. */
 type Entry =
   | { index: number; state: "refused"; refusal: Refusal }
-  | { index: number; state: "remembered"; answer: ScoreAnswer }
-  | { index: number; state: "valid"; payment: ValidPayment; key: string; bodyHash: string; scored?: ScoredPayment }
+  /** Answered before: the stored answer, and its review item, sent again (the review store keeps one row). */
+  | { index: number; state: "remembered"; answer: ScoreAnswer; review: ReviewMessage | null }
+  | { index: number; state: "valid"; payment: ValidPayment; bodyHash: string; claim?: Claim; scored?: ScoredPayment }
   | { index: number; state: "same-as"; of: number };
 
 type ValidEntry = Extract<Entry, { state: "valid" }>;
@@ -71,7 +78,9 @@ type ValidEntry = Extract<Entry, { state: "valid" }>;
 export async function scoreMany(call: ScoringCall, payments: readonly unknown[], prefixOf: (index: number) => string): Promise<Outcome[]> {
   const { snapshot, settings, env, executionCtx } = call;
   const version = snapshot.live.version;
+  const nowMs = Date.now();
   const entries: Entry[] = [];
+  const conflicts: ConflictMessage[] = [];
   // First occurrence of each transactionId in this call: a later duplicate shares its outcome.
   const firstInCall = new Map<string, { index: number; bodyHash: string }>();
   for (let index = 0; index < payments.length; index++) {
@@ -82,27 +91,42 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
       continue;
     }
     const payment = checked.value;
-    const key = answerKey(version, payment.transactionId);
     const bodyHash = await contentHash(payment.features, payment.segment, payment.accountRef);
-    const conflict = () => refusal(index, 409, "conflict", [conflictProblem(`${prefix}transactionId`, payment.transactionId, version)]);
-    const earlier = firstInCall.get(key);
+    const earlier = firstInCall.get(payment.transactionId);
     if (earlier) {
-      entries.push(earlier.bodyHash === bodyHash ? { index, state: "same-as", of: earlier.index } : { index, state: "refused", refusal: conflict() });
+      if (earlier.bodyHash === bodyHash) entries.push({ index, state: "same-as", of: earlier.index });
+      else {
+        entries.push({ index, state: "refused", refusal: conflictRefusal(index, prefix, payment.transactionId, nowMs) });
+        conflicts.push(conflictMessage(payment, bodyHash, earlier.bodyHash, nowMs, nowMs, version));
+      }
       continue;
     }
-    firstInCall.set(key, { index, bodyHash });
-    const remembered = answers.get(key);
-    if (remembered) {
-      entries.push(
-        remembered.bodyHash === bodyHash ? { index, state: "remembered", answer: remembered.answer } : { index, state: "refused", refusal: conflict() },
-      );
-      continue;
-    }
-    entries.push({ index, state: "valid", payment, key, bodyHash });
+    firstInCall.set(payment.transactionId, { index, bodyHash });
+    entries.push({ index, state: "valid", payment, bodyHash });
   }
 
+  const claimed = entries.filter((e): e is ValidEntry => e.state === "valid");
+  const claims = await claimTransactions(
+    env,
+    claimed.map((e) => ({ transactionId: e.payment.transactionId, contentHash: e.bodyHash })),
+    nowMs,
+    settings.IDEMPOTENCY_WINDOW_SECONDS * 1000,
+  );
+  claimed.forEach((entry, i) => {
+    const claim = claims[i];
+    entry.claim = claim;
+    if (claim.kind === "unavailable") counters.idempotencyUnavailable++;
+    if (claim.kind === "conflict") {
+      entries[entry.index] = { index: entry.index, state: "refused", refusal: conflictRefusal(entry.index, prefixOf(entry.index), entry.payment.transactionId, claim.firstSeenMs) };
+      conflicts.push(conflictMessage(entry.payment, entry.bodyHash, claim.firstContentHash, claim.firstSeenMs, nowMs, version));
+    } else if (claim.kind === "repeat" && claim.answer !== null) {
+      const stored = JSON.parse(claim.answer) as StoredOutcome;
+      entries[entry.index] = { index: entry.index, state: "remembered", answer: stored.answer, review: stored.review };
+    }
+  });
+
   const scoredAt = new Date().toISOString();
-  const valid = entries.filter((e): e is ValidEntry => e.state === "valid");
+  const valid = claimed.filter((e) => entries[e.index] === e);
   const positions = await Promise.all(valid.map((e) => auditPosition(e.payment.transactionId)));
   valid.forEach((entry, i) => {
     const scored = scorePayment(snapshot, entry.payment, positions[i], settings.AUDIT_SAMPLE_RATE, scoredAt, prefixOf(entry.index));
@@ -111,20 +135,38 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
   });
 
   const stillValid = () => valid.filter((e) => entries[e.index] === e && e.scored);
-  const withReview = stillValid().filter((e) => e.scored!.review);
-  const accepted = await sendReviewItems(env.FLAGS, withReview.map((e) => e.scored!.review!));
+  // Review items of fresh answers, and those of remembered ones again: a hand-off accepted earlier
+  // may still have been lost before the store (a dead local queue), and the store keeps one row.
+  const withReview = [
+    ...stillValid()
+      .filter((e) => e.scored!.review)
+      .map((e) => ({ index: e.index, transactionId: e.payment.transactionId, review: e.scored!.review! })),
+    ...entries.flatMap((e) => (e.state === "remembered" && e.review ? [{ index: e.index, transactionId: e.answer.transactionId, review: e.review }] : [])),
+  ];
+  const accepted = await sendReviewItems(env.FLAGS, withReview.map((e) => e.review));
   withReview.forEach((entry, i) => {
     if (accepted[i]) return;
-    const problem = { field: `${prefixOf(entry.index)}transactionId`, rule: `the review hand-off of ${JSON.stringify(entry.payment.transactionId)} could not be enqueued; send the same request again` };
+    const problem = { field: `${prefixOf(entry.index)}transactionId`, rule: `the review hand-off of ${JSON.stringify(entry.transactionId)} could not be enqueued; send the same request again` };
     entries[entry.index] = { index: entry.index, state: "refused", refusal: refusal(entry.index, 503, "handoff-failed", [problem], true) };
   });
   const fresh = stillValid();
   const shadows: ShadowMessage[] = [];
-  for (const entry of fresh) {
-    answers.set(entry.key, { bodyHash: entry.bodyHash, answer: entry.scored!.answer });
-    if (entry.scored!.shadow) shadows.push(entry.scored!.shadow);
-  }
+  for (const entry of fresh) if (entry.scored!.shadow) shadows.push(entry.scored!.shadow);
   if (shadows.length > 0) executionCtx.waitUntil(sendShadowComparisons(env.FLAGS, shadows));
+  // Kept only once handed off: a repeat after a failed hand-off is scored and handed off again.
+  const toRemember = fresh.filter((e) => e.claim?.kind !== "unavailable");
+  if (toRemember.length > 0) {
+    executionCtx.waitUntil(
+      rememberAnswers(
+        env,
+        toRemember.map((e) => {
+          const stored: StoredOutcome = { answer: e.scored!.answer, review: e.scored!.review };
+          return { transactionId: e.payment.transactionId, contentHash: e.bodyHash, answer: JSON.stringify(stored) };
+        }),
+      ),
+    );
+  }
+  if (conflicts.length > 0) await sendConflicts(env.FLAGS, conflicts);
   countScored(env, executionCtx, snapshot.live, fresh.map((e) => ({ raw: e.payment.raw, answer: e.scored!.answer, scoredAt })));
 
   return entries.map((entry) => {
@@ -140,9 +182,28 @@ function refusal(index: number, status: Refusal["status"], error: string, proble
   return { index, outcome: "refused", status, error, problems, ...(retryable !== undefined ? { retryable } : {}) };
 }
 
-function conflictProblem(field: string, transactionId: string, version: string): Problem {
+function conflictRefusal(index: number, prefix: string, transactionId: string, firstSeenMs: number): Refusal {
+  return refusal(index, 409, "conflict", [
+    {
+      field: `${prefix}transactionId`,
+      rule:
+        `${JSON.stringify(transactionId)} was first seen at ${new Date(firstSeenMs).toISOString()} with different features, segment or accountRef; ` +
+        "a transactionId names one payment for the idempotency window (IDEMPOTENCY_WINDOW_SECONDS): send a new payment under a new id",
+    },
+  ]);
+}
+
+function conflictMessage(payment: ValidPayment, contentHash: string, firstContentHash: string, firstSeenMs: number, nowMs: number, modelVersion: string): ConflictMessage {
   return {
-    field,
-    rule: `${JSON.stringify(transactionId)} was already scored under model ${version} with different features, segment or accountRef; a transactionId names one payment`,
+    kind: "conflict",
+    transactionId: payment.transactionId,
+    firstSeenAt: new Date(firstSeenMs).toISOString(),
+    at: new Date(nowMs).toISOString(),
+    firstContentHash,
+    contentHash,
+    modelVersion,
+    segment: payment.segment,
+    accountRef: payment.accountRef,
+    features: payment.features,
   };
 }

@@ -51,15 +51,37 @@ export const shadowMessageSchema = z.object({
   scoredAt: z.string().min(1),
 });
 
+/**
+ * A transaction id sent again, inside the idempotency window, with other content than when first
+ * seen: refused with 409 and recorded here for the analysts (the content is the refused one's).
+ */
+export const conflictMessageSchema = z.object({
+  kind: z.literal("conflict"),
+  transactionId: z.string().min(1).max(128),
+  /** ISO-8601 time the id was first seen. */
+  firstSeenAt: z.string().min(1),
+  /** ISO-8601 time of the refused repeat. */
+  at: z.string().min(1),
+  firstContentHash: z.string().min(1).max(128),
+  contentHash: z.string().min(1).max(128),
+  /** Live model when the repeat came. */
+  modelVersion: z.string().min(1),
+  segment: z.string().max(64).nullable(),
+  accountRef: z.string().max(128).nullable(),
+  features: z.record(z.string(), finite),
+});
+
 /** Any message on the hand-off queue (traffic counts: `insights/counts-message.ts`). */
-export const handoffMessageSchema = z.discriminatedUnion("kind", [reviewMessageSchema, shadowMessageSchema, countsMessageSchema]);
+export const handoffMessageSchema = z.discriminatedUnion("kind", [reviewMessageSchema, shadowMessageSchema, conflictMessageSchema, countsMessageSchema]);
 
 /** A review-store item in flight. */
 export type ReviewMessage = z.infer<typeof reviewMessageSchema>;
 /** A shadow comparison in flight. */
 export type ShadowMessage = z.infer<typeof shadowMessageSchema>;
+/** A conflicting repeat in flight. */
+export type ConflictMessage = z.infer<typeof conflictMessageSchema>;
 /** Body of a message on `isodense-flags` (and, after five failed deliveries, `isodense-flags-dead`). */
-export type HandoffMessage = ReviewMessage | ShadowMessage | CountsMessage;
+export type HandoffMessage = ReviewMessage | ShadowMessage | ConflictMessage | CountsMessage;
 export type { CountsMessage };
 
 /** Production caps one queue message at 128 KB and one `sendBatch` at 256 KB and 100 messages. */

@@ -20,7 +20,7 @@
 import type { Env } from "../env";
 import { handoffMessageSchema, type HandoffMessage } from "./messages";
 import { countsStatements } from "../insights/counts-store";
-import { reviewItemInsert, shadowScoreInsert } from "./review-store";
+import { conflictInsert, reviewItemInsert, shadowScoreInsert } from "./review-store";
 
 /** Queues whose name ends with this suffix are dead-letter queues. */
 export const DEAD_LETTER_SUFFIX = "-dead";
@@ -136,6 +136,7 @@ function prepare(message: Message<unknown>, env: Env, receivedAt: string): D1Pre
 
 function statementFor(env: Env, body: HandoffMessage, receivedAt: string): D1PreparedStatement[] {
   if (body.kind === "counts") return countsStatements(env, body, receivedAt);
+  if (body.kind === "conflict") return [conflictInsert(env, body)];
   return [body.kind === "review" ? reviewItemInsert(env, body, receivedAt) : shadowScoreInsert(env, body)];
 }
 

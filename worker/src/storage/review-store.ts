@@ -4,7 +4,7 @@
  * Query functions take `env` first, SQL uses numbered `?N` parameters.
  */
 import type { Env } from "../env";
-import type { ReviewMessage, ShadowMessage } from "./messages";
+import type { ConflictMessage, ReviewMessage, ShadowMessage } from "./messages";
 
 const INSERT_REVIEW_ITEM = `INSERT INTO review_items (
   transaction_id, model_version, segment, account_ref, features_json, log_density, mahalanobis_sq,
@@ -64,6 +64,31 @@ export function shadowScoreInsert(env: Pick<Env, "DB">, item: ShadowMessage): D1
     item.liveTailProbability,
     item.shadowTailProbability,
     item.scoredAt,
+  );
+}
+
+const INSERT_CONFLICT = `INSERT INTO payment_conflicts (
+  transaction_id, first_seen_at, at, first_content_hash, content_hash, model_version, segment, account_ref, features_json
+) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)
+ON CONFLICT (transaction_id, at, content_hash) DO NOTHING`;
+
+/**
+ * Prepares the idempotent insert of one conflicting repeat.
+ *
+ * @example
+ * await env.DB.batch([conflictInsert(env, message)]);
+ */
+export function conflictInsert(env: Pick<Env, "DB">, item: ConflictMessage): D1PreparedStatement {
+  return env.DB.prepare(INSERT_CONFLICT).bind(
+    item.transactionId,
+    item.firstSeenAt,
+    item.at,
+    item.firstContentHash,
+    item.contentHash,
+    item.modelVersion,
+    item.segment,
+    item.accountRef,
+    JSON.stringify(item.features),
   );
 }
 
