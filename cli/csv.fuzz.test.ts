@@ -13,8 +13,9 @@ import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, describe, expect, test } from "vitest";
 import { CsvError, formatCsvRow, openCsvTable } from "./csv";
+import { byTestDepth } from "../shared-model/src/test-support";
 
-const RUNS = Number(process.env.FUZZ_RUNS ?? 10_000);
+const RUNS = Number(process.env.FUZZ_RUNS ?? byTestDepth({ quick: 1_000, thorough: 10_000 }));
 const SEED = Number(process.env.FUZZ_SEED ?? 20261201);
 const dir = mkdtempSync(join(tmpdir(), "isodense-csv-fuzz-"));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));

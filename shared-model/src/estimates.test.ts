@@ -3,6 +3,7 @@ import { lnGamma } from "./distributions";
 import { EstimateInputError, MIN_AUDIT_FRAUDS, estimateRates } from "./estimates";
 import { createRandom } from "./random";
 import { mulberry32, type SeededStream } from "./seeded-stream";
+import { byTestDepth } from "./test-support";
 
 function expectClose(actual: number | null, expected: number, tolerance = 1e-12): void {
   expect(actual).not.toBeNull();
@@ -224,8 +225,7 @@ describe("estimateRates coverage with few audit-sample frauds", () => {
     // A fixed period of 50,000 payments with 400 frauds; the live rule flags recall·400 of them and
     // 300 legitimate payments, every flag decided (π = 1). The audit sample draws each unflagged
     // payment independently with probability π. Truth is this period's shares.
-    const thorough = process.env.ISODENSE_TEST_DEPTH === "thorough";
-    const reps = thorough ? 2000 : 300;
+    const reps = byTestDepth({ quick: 300, thorough: 2000 });
     const stream = mulberry32(20261204);
     const N = 50_000;
     const frauds = 400;

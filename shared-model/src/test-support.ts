@@ -12,6 +12,31 @@ import { chiSquareSurvival } from "./distributions";
 import { columnsOf } from "./features";
 import type { CovarianceShape, EstimatorDetails, FittedFeature, TransformKind } from "./types";
 
+/** How deep the randomized and long tests go: `quick` for `npm test`, `thorough` in CI. */
+export type TestDepth = "quick" | "thorough";
+
+/**
+ * The test depth, from `ISODENSE_TEST_DEPTH` (`.ci/run` sets `thorough`; unset or anything else is
+ * `quick`). Heavy cases scale with it — more simulation draws, 10,000 fuzz inputs per endpoint
+ * instead of a few hundred — so `npm test` stays within its five minutes and CI still goes deep.
+ * Reads `process.env` only when there is one, so it also works where tests run without Node globals.
+ *
+ * @example
+ * const reps = testDepth() === "thorough" ? 2000 : 300;
+ */
+export function testDepth(): TestDepth {
+  const env = (globalThis as { process?: { env?: Record<string, string | undefined> } }).process?.env;
+  return env?.ISODENSE_TEST_DEPTH === "thorough" ? "thorough" : "quick";
+}
+
+/**
+ * `quick` or `thorough` by the test depth.
+ * @example const draws = byTestDepth({ quick: 300, thorough: 2000 });
+ */
+export function byTestDepth<T>(values: Record<TestDepth, T>): T {
+  return values[testDepth()];
+}
+
 const LN_2PI = Math.log(2 * Math.PI);
 const CLASSICAL: EstimatorDetails = { estimator: "classical", denominator: "m" };
 

@@ -1,10 +1,11 @@
 /**
- * The Hono app: security headers on every answer, `no-store` on the API, the routes, a JSON 404,
+ * The Hono app: every answer after the request body has been read, security headers on every answer, `no-store` on the API, the routes, a JSON 404,
  * and one place that turns unknown errors into a plain 500 without internals.
  */
 import { Hono } from "hono";
 import type { AppEnv } from "./app-env";
 import { ConfigError } from "./env";
+import { drainUnreadBody } from "./middleware/drain-body";
 import { noStore, securityHeaders } from "./middleware/headers";
 import { problemResponse } from "./problems";
 import { echoRoutes } from "./routes/echo";
@@ -18,6 +19,8 @@ import { scoreRoutes } from "./routes/score";
 /** The worker's HTTP app. */
 export const app = new Hono<AppEnv>();
 
+// First, so that it wraps every answer, refusals and the 404 included: the body is read before any goes out.
+app.use("*", drainUnreadBody());
 app.use("*", securityHeaders());
 app.use("*", noStore());
 

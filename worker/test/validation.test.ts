@@ -6,6 +6,7 @@
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { countRows, eventually, publishModel, startWorker, type RunningWorker } from "./harness";
 import { fitShopModel, UNUSUAL_PAYMENT } from "./fixtures";
+import { describeRequest } from "./fuzz-kit";
 
 let worker: RunningWorker;
 
@@ -42,13 +43,15 @@ async function expectRefused(body: unknown, status: number, error: string, probl
   const id = typeof body === "object" && body !== null && typeof (body as { transactionId?: unknown }).transactionId === "string" ? (body as { transactionId: string }).transactionId : null;
   if (id) rejectedIds.add(id);
   const answer = await sendRaw(text);
-  expect(answer.status, JSON.stringify(answer.body)).toBe(status);
-  expect(answer.body.error).toBe(error);
+  // Every failure names the request that caused it.
+  const request = describeRequest({ method: "POST", path: "/v1/score", headers: { "content-type": "application/json", authorization: "Bearer <flow>" }, body: text });
+  expect(answer.status, `${request} answered ${JSON.stringify(answer.body)}`).toBe(status);
+  expect(answer.body.error, request).toBe(error);
   for (const expected of problems) {
     const match = answer.body.problems.find((p) => p.field === expected.field);
-    expect(match, `no problem for ${expected.field} in ${JSON.stringify(answer.body.problems)}`).toBeDefined();
-    if (typeof expected.rule === "string") expect(match!.rule).toBe(expected.rule);
-    else expect(match!.rule).toMatch(expected.rule);
+    expect(match, `${request}: no problem for ${expected.field} in ${JSON.stringify(answer.body.problems)}`).toBeDefined();
+    if (typeof expected.rule === "string") expect(match!.rule, request).toBe(expected.rule);
+    else expect(match!.rule, request).toMatch(expected.rule);
   }
 }
 

@@ -1,6 +1,7 @@
 import { describe, expect, it } from "vitest";
 import { flagRateCheck } from "../../../shared-model/src/drift";
 import { mulberry32, type SeededStream } from "../../../shared-model/src/seeded-stream";
+import { byTestDepth } from "../../../shared-model/src/test-support";
 import { dayFlagRates, driftEntries, refitReasons } from "./drift-report";
 import type { TallyModel } from "./tally";
 
@@ -43,7 +44,7 @@ describe("the weekly report's figures", () => {
     // Simulated quiet weeks: every day's flags ~ Binomial(scored, expected), scored 2,000–12,000.
     const stream = mulberry32(20261204);
     const expected = 0.01;
-    const weeks = process.env.ISODENSE_TEST_DEPTH === "thorough" ? 4000 : 600;
+    const weeks = byTestDepth({ quick: 600, thorough: 4000 });
     let alarms = 0;
     let uncorrectedAlarms = 0;
     for (let w = 0; w < weeks; w++) {

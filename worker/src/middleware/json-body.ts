@@ -3,8 +3,8 @@
  * the content type must be `application/json`, with no charset or `charset=utf-8` (415: a body
  * declared as UTF-16 or Latin-1 would otherwise be read as UTF-8 and mean something else), the body must fit the route's byte limit
  * (413, checked on the declared length and again while streaming, so a lying or absent
- * Content-Length cannot get past it; a refused body of up to 1 MiB is read to its end first, see
- * DRAIN_LIMIT_BYTES), and it must be UTF-8 JSON (400). The parsed value is stored
+ * Content-Length cannot get past it), and it must be UTF-8 JSON (400). A refused body is left
+ * unread here: `drain-body.ts` reads the rest of every body before any answer goes out. The parsed value is stored
  * as `body` in the context; nothing has been stored anywhere when one of these checks refuses.
  */
 import type { MiddlewareHandler } from "hono";
@@ -22,14 +22,6 @@ export const BODY_LIMITS = {
   /** Small admin bodies (shadow). */
   small: 4 * 1024,
 } as const;
-
-/**
- * A refused body up to this size is read to its end (and dropped) before the 413 goes out. A client
- * still sending when the answer comes would otherwise have its connection reset and never see the
- * answer (found with a raw socket: worker/test/body-limit.test.ts). Bigger bodies are cut off:
- * reading megabytes of junk is not worth a tidy answer.
- */
-const DRAIN_LIMIT_BYTES = 1024 * 1024;
 
 /**
  * Middleware that enforces content type, size and JSON syntax, then sets `body`.
@@ -58,7 +50,6 @@ export function jsonBody(limitBytes: number): MiddlewareHandler<AppEnv> {
     }
     const declared = c.req.header("content-length");
     if (declared !== undefined && /^\d+$/.test(declared) && Number(declared) > limitBytes) {
-      if (Number(declared) <= DRAIN_LIMIT_BYTES) await drain(c.req.raw.body?.getReader() ?? null, DRAIN_LIMIT_BYTES);
       return tooLarge(c, limitBytes, `${declared} bytes declared`);
     }
     const bytes = await readLimited(c.req.raw, limitBytes);
@@ -101,23 +92,7 @@ function tooLarge(c: Parameters<MiddlewareHandler<AppEnv>>[0], limitBytes: numbe
   return problemResponse(c, 413, "payload-too-large", [{ field: "body", rule: `must be at most ${limitBytes} bytes. Actual: ${actual}` }]);
 }
 
-/** Reads and drops what is left of a body, up to `budget` bytes; past that, cancels it. */
-async function drain(reader: ReadableStreamDefaultReader<Uint8Array> | null, budget: number): Promise<void> {
-  if (reader === null) return;
-  try {
-    let left = budget;
-    while (left >= 0) {
-      const { done, value } = await reader.read();
-      if (done) return;
-      left -= value.byteLength;
-    }
-    await reader.cancel();
-  } catch {
-    /* the client went away: nothing to answer */
-  }
-}
-
-/** Reads the whole body, or returns null when it exceeds `limitBytes` (after draining it). */
+/** Reads the whole body, or returns null when it exceeds `limitBytes` (the rest is left to drain-body). */
 async function readLimited(request: Request, limitBytes: number): Promise<Uint8Array | null> {
   if (request.body === null) return new Uint8Array(0);
   const reader = request.body.getReader();
@@ -128,7 +103,7 @@ async function readLimited(request: Request, limitBytes: number): Promise<Uint8A
     if (done) break;
     total += value.byteLength;
     if (total > limitBytes) {
-      await drain(reader, DRAIN_LIMIT_BYTES - total);
+      reader.releaseLock();
       return null;
     }
     chunks.push(value);
