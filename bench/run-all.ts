@@ -1,11 +1,13 @@
 /**
  * `npm run bench`: the model core's figures — scoring kernel vectors/s against C, fit throughput and
- * peak memory for 100k and 1M rows of 32 columns — printed and written to bench/results/core.json.
+ * peak memory for 100k and 1M rows of 32 columns, offline derive throughput and memory per account
+ * on 1M payment records — printed and written to bench/results/core.json.
  * The service benchmarks (worker load, review UI, the soak) run after it; `--core` leaves them out.
  */
 import { execFileSync } from "node:child_process";
 import { existsSync, mkdirSync, writeFileSync } from "node:fs";
 import { cpus } from "node:os";
+import { benchDerive } from "./derive";
 import { benchKernel } from "./kernel";
 
 const root = new URL("../", import.meta.url);
@@ -31,11 +33,15 @@ const fit = [100_000, 1_000_000].map((rows) => {
   return figure;
 });
 
+console.log("offline derive: payment records to features (isodense derive's reading and derivation; each in its own process)");
+const derive = await benchDerive();
+
 const summary = {
   measuredAt: new Date().toISOString(),
   machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version },
   kernel,
   fit,
+  derive,
   targets: {
     kernelAtLeastHalfOfC: kernel.find((k) => k.n === 32)?.ratioToC ?? null,
     fitMemoryRatio1MTo100k: Number((fit[1].peakRssMiB / fit[0].peakRssMiB).toFixed(3)),

@@ -41,6 +41,21 @@ export class RecordDeriver {
     this.indexes = this.columns.map((column) => requireColumn(header, column, file, "read by the spec"));
   }
 
+  /**
+   * Size of the account histories held, as the JSON a store keeps (UTF-8 bytes of each account's
+   * history): the total and the largest. Walks every account: for reports, not per row.
+   */
+  heldBytes(): { total: number; largest: number } {
+    let total = 0;
+    let largest = 0;
+    for (const history of this.histories.values()) {
+      const bytes = Buffer.byteLength(JSON.stringify(history));
+      total += bytes;
+      largest = Math.max(largest, bytes);
+    }
+    return { total, largest };
+  }
+
   /** The record of one row, before derivation, with the CLI's file/line/column errors. */
   recordOf(cells: readonly string[], line: number): PaymentRecord {
     const fields: Record<string, string> = {};

@@ -2,10 +2,12 @@
  * Demo ledger generator: the card-not-present payments of Orvenna Housewares, an invented
  * mid-size online shop for kitchen and household goods, over eight weeks, with labelled fraud.
  *
- * The ledger is simulated, not sampled row by row: every account has a history, payments arrive
- * as events in time order, and the per-account columns (account age, hours since the previous
- * payment, payments in the last 24 h, amount against the account's running average) are computed
- * from that account's earlier payments, so they agree with the earlier rows of the same account.
+ * The ledger is simulated, not sampled row by row: every account has a history and payments arrive
+ * as events in time order. The CSV holds payment records only (time, account, amount, basket,
+ * shipping fee, account creation time, destination, channel); the model's features are derived
+ * from them by demo-ledger/spec.json (isodense derive, and the edge). The generator still computes
+ * its own figures of those features from the account's earlier rows in the ledger, as a check that
+ * the derivation reproduces them.
  *
  * Pure TypeScript (no `node:*` imports): a browser can run it. Same seed → identical rows.
  */
@@ -13,21 +15,18 @@
 import { EventQueue } from "./event-queue";
 import { createRandom, type Random } from "./random";
 
-/** CSV header of the ledger, in column order. */
+/** CSV header of the ledger (payment records), in column order. */
 export const LEDGER_COLUMNS = [
   "paymentId",
   "createdAt",
   "accountRef",
+  "accountCreatedAt",
   "channel",
   "amount",
   "basketItems",
-  "shippingShare",
-  "accountAgeDays",
-  "hoursSincePrevious",
-  "paymentsLast24h",
+  "shippingFee",
   "shipDistanceKm",
-  "amountVsAccountAverage",
-  "hourOfDay",
+  "shipTo",
   "label",
   "fraudPattern",
 ] as const;
@@ -35,7 +34,10 @@ export const LEDGER_COLUMNS = [
 /** One ledger column name. */
 export type LedgerColumn = (typeof LEDGER_COLUMNS)[number];
 
-/** The numeric columns a model may use as features (never `fraudPattern`, `label` or ids). */
+/**
+ * The demo model's features (demo-ledger/spec.json derives each from the records). The generator
+ * keeps its own figure of each on {@link LedgerRow}, as a check on the derivation.
+ */
 export const LEDGER_FEATURES = [
   "amount",
   "basketItems",
@@ -90,7 +92,16 @@ export const FRAUD_PATTERN_NOTES: Readonly<Record<FraudPattern, string>> = {
 /** Label column values. */
 export type Label = "fraud" | "legitimate";
 
-/** One payment as written to the ledger; numbers are already rounded to their printed precision. */
+/**
+ * Hours since the previous payment written for an account's first payment in the ledger (the
+ * spec's `sincePrevious.none`): a year, longer than any gap inside the eight weeks.
+ */
+export const NO_PREVIOUS_HOURS = 8760;
+
+/**
+ * One payment: the record written to the ledger, and the generator's own figures of the demo
+ * features (rounded to 4 decimals; not written). Numbers are rounded to their printed precision.
+ */
 export interface LedgerRow {
   /** `pay-000001`, increasing with time. */
   paymentId: string;
@@ -98,22 +109,28 @@ export interface LedgerRow {
   createdAt: string;
   /** Pseudonymous account id `acct-NNNNN`; never a card number or a name. */
   accountRef: string;
+  /** When the account was opened, ISO 8601 UTC with milliseconds. */
+  accountCreatedAt: string;
   channel: Channel;
   /** Total charged, currency units, 2 decimals (merchandise + shipping). */
   amount: number;
   /** Items in the basket, integer ≥ 1. */
   basketItems: number;
+  /** Shipping fee charged, currency units, 2 decimals (part of `amount`). */
+  shippingFee: number;
+  /** Pseudonymous destination id `dst-NNNNNN` (an address book entry; never an address). */
+  shipTo: string;
   /** Shipping fee / amount, in [0, 0.6], 4 decimals. */
   shippingShare: number;
   /** Days since the account was opened, ≥ 0, 4 decimals. */
   accountAgeDays: number;
-  /** Hours since the account's previous payment (since opening, for a first payment), ≥ 0, 4 decimals. */
+  /** Hours since the account's previous payment in the ledger ({@link NO_PREVIOUS_HOURS} for its first), ≥ 0, 4 decimals. */
   hoursSincePrevious: number;
-  /** The account's earlier payments within the 24 h before this one, integer ≥ 0. */
+  /** The account's earlier payments in the ledger within the 24 h before this one (both ends included), integer ≥ 0. */
   paymentsLast24h: number;
   /** Billing-to-shipping address distance in km, ≥ 0, 2 decimals. */
   shipDistanceKm: number;
-  /** amount / mean of the account's earlier amounts (1 for a first payment), > 0, 4 decimals. */
+  /** amount / mean of the account's earlier amounts in the ledger (1 for its first payment), > 0, 4 decimals. */
   amountVsAccountAverage: number;
   /** Customer's local hour (UTC+01:00), fractional in [0, 24), 4 decimals. */
   hourOfDay: number;
@@ -267,23 +284,20 @@ export function csvHeader(): string {
 /**
  * Formats one row as a CSV line (no newline). No field can contain a comma or a quote, so none is
  * quoted.
- * @example formatCsvRow(row) // "pay-000001,2026-10-01T06:12:09.381Z,acct-01234,web,42.50,2,…"
+ * @example formatCsvRow(row) // "pay-000001,2026-10-01T06:12:09.381Z,acct-01234,2025-07-14T18:02:11.000Z,web,42.50,2,3.90,…"
  */
 export function formatCsvRow(row: LedgerRow): string {
   return [
     row.paymentId,
     row.createdAt,
     row.accountRef,
+    row.accountCreatedAt,
     row.channel,
     row.amount.toFixed(2),
     String(row.basketItems),
-    row.shippingShare.toFixed(4),
-    row.accountAgeDays.toFixed(4),
-    row.hoursSincePrevious.toFixed(4),
-    String(row.paymentsLast24h),
+    row.shippingFee.toFixed(2),
     row.shipDistanceKm.toFixed(2),
-    row.amountVsAccountAverage.toFixed(4),
-    row.hourOfDay.toFixed(4),
+    row.shipTo,
     row.label,
     row.fraudPattern,
   ].join(",");
@@ -411,16 +425,24 @@ interface Account {
   sum: number;
   /** Time of the previous payment, or null when the account has never paid. */
   lastPaymentMs: number | null;
-  /** Times of the account's payments within the last 24 h, oldest first. */
+  /** The account's payments in the ledger so far, their amount sum and the time of the latest. */
+  ledgerCount: number;
+  ledgerSum: number;
+  ledgerLastMs: number | null;
+  /** Times of the account's ledger payments within the last 24 h, oldest first. */
   recent: number[];
+  /** The destination the customer usually ships to. */
+  homeShipTo: string;
 }
 
 interface PaymentDraft {
   channel: Channel;
   amount: number;
   basketItems: number;
+  shippingFee: number;
   shippingShare: number;
   shipDistanceKm: number;
+  shipTo: string;
   pattern: FraudPattern | "";
 }
 
@@ -428,9 +450,9 @@ type SimEvent =
   | { type: "day"; dayStartMs: number }
   | { type: "arrival"; channel: Channel }
   | { type: "legit"; account: Account; channel: Channel; followUp: boolean }
-  | { type: "burst"; account: Account; channel: Channel; distanceKm: number; remaining: number }
-  | { type: "takeover"; account: Account; channel: Channel; distanceKm: number; remaining: number }
-  | { type: "reship"; account: Account; channel: Channel; distanceKm: number; remaining: number }
+  | { type: "burst"; account: Account; channel: Channel; distanceKm: number; shipTo: string; remaining: number }
+  | { type: "takeover"; account: Account; channel: Channel; distanceKm: number; shipTo: string; remaining: number }
+  | { type: "reship"; account: Account; channel: Channel; distanceKm: number; shipTo: string; remaining: number }
   | { type: "parts"; account: Account; channel: Channel };
 
 /** Local hour of day in [0, 24) at an epoch-millisecond instant. */
@@ -448,6 +470,7 @@ class Simulation {
   private readonly accounts: Account[] = [];
   private readonly triggers: { ordinal: number; kind: FraudPattern }[] = [];
   private nextTrigger = 0;
+  private destinations = 0;
   private readonly newAccountsPerDay: number;
   private readonly startMs: number;
 
@@ -525,7 +548,11 @@ class Simulation {
       count: 0,
       sum: 0,
       lastPaymentMs: null,
+      ledgerCount: 0,
+      ledgerSum: 0,
+      ledgerLastMs: null,
       recent: [],
+      homeShipTo: this.freshDestination(),
     };
     this.accounts.push(account);
     return account;
@@ -615,6 +642,12 @@ class Simulation {
 
   // --- legitimate payments -------------------------------------------------------------------
 
+  /** A destination id never used before (counted, so the random stream is untouched). */
+  private freshDestination(): string {
+    this.destinations += 1;
+    return `dst-${String(this.destinations).padStart(6, "0")}`;
+  }
+
   /** Usual or one-off shipping address distance: mostly the billing address (geocoding jitter), some local, a few far. */
   private freshDistance(): number {
     const u = this.rng.uniform();
@@ -634,11 +667,19 @@ class Simulation {
     return Math.min(round2(fee), feeCap(merchandise));
   }
 
-  private finishDraft(channel: Channel, merchandise: number, items: number, distanceKm: number, delivery: Delivery, pattern: FraudPattern | ""): PaymentDraft {
+  private finishDraft(
+    channel: Channel,
+    merchandise: number,
+    items: number,
+    distanceKm: number,
+    shipTo: string,
+    delivery: Delivery,
+    pattern: FraudPattern | "",
+  ): PaymentDraft {
     const merch = Math.max(0.5, round2(merchandise));
     const fee = this.shippingFee(distanceKm, items, delivery, merch);
     const amount = round2(merch + fee);
-    return { channel, amount, basketItems: items, shippingShare: round4(fee / amount), shipDistanceKm: distanceKm, pattern };
+    return { channel, amount, basketItems: items, shippingFee: fee, shippingShare: round4(fee / amount), shipDistanceKm: distanceKm, shipTo, pattern };
   }
 
   private legitDraft(account: Account, channel: Channel, followUp: boolean): PaymentDraft {
@@ -652,11 +693,11 @@ class Simulation {
     // Spending settles as an account matures: the first purchases vary more, which is what
     // gives young accounts their wide spread of amountVsAccountAverage.
     merchandise *= Math.exp((0.42 / Math.sqrt(1 + account.count)) * rng.normal());
-    const distanceKm = rng.chance(USUAL_ADDRESS_CHANCE)
-      ? round2(account.usualDistanceKm * Math.exp(0.04 * rng.normal()))
-      : this.freshDistance();
+    const usual = rng.chance(USUAL_ADDRESS_CHANCE);
+    const distanceKm = usual ? round2(account.usualDistanceKm * Math.exp(0.04 * rng.normal())) : this.freshDistance();
+    const shipTo = usual ? account.homeShipTo : this.freshDestination();
     const delivery: Delivery = rng.chance(COURIER_CHANCE) ? "courier" : rng.chance(profile.expressChance) ? "express" : "standard";
-    return this.finishDraft(channel, merchandise, items, distanceKm, delivery, "");
+    return this.finishDraft(channel, merchandise, items, distanceKm, shipTo, delivery, "");
   }
 
   // --- fraud episodes ------------------------------------------------------------------------
@@ -687,7 +728,7 @@ class Simulation {
         const channel: Channel = rng.chance(0.75) ? "web" : "app";
         const account = this.openAccount(start - 2 * MINUTE_MS - Math.round(rng.exponential(8 * MINUTE_MS)), channel, true);
         const remaining = 5 + rng.poisson(5);
-        this.queue.schedule(start, { type: "burst", account, channel, distanceKm: round2(rng.logNormal(40, 1.3)), remaining });
+        this.queue.schedule(start, { type: "burst", account, channel, distanceKm: round2(rng.logNormal(40, 1.3)), shipTo: this.freshDestination(), remaining });
         return;
       }
       case "takeover-spike": {
@@ -696,7 +737,7 @@ class Simulation {
         const u = rng.uniform();
         const remaining = u < 0.55 ? 1 : u < 0.85 ? 2 : 3;
         const channel: Channel = rng.chance(0.6) ? "app" : "web";
-        this.queue.schedule(start, { type: "takeover", account, channel, distanceKm: round2(rng.logNormal(650, 0.5)), remaining });
+        this.queue.schedule(start, { type: "takeover", account, channel, distanceKm: round2(rng.logNormal(650, 0.5)), shipTo: this.freshDestination(), remaining });
         return;
       }
       case "reship-haul": {
@@ -706,7 +747,7 @@ class Simulation {
         const account = this.openAccount(start - ageMs, channel, true);
         const u = rng.uniform();
         const remaining = u < 0.4 ? 1 : u < 0.75 ? 2 : 3;
-        this.queue.schedule(start, { type: "reship", account, channel, distanceKm: round2(rng.logNormal(1100, 0.45)), remaining });
+        this.queue.schedule(start, { type: "reship", account, channel, distanceKm: round2(rng.logNormal(1100, 0.45)), shipTo: this.freshDestination(), remaining });
         return;
       }
       case "ordinary-parts": {
@@ -725,7 +766,8 @@ class Simulation {
   /** A long-standing customer with a purchase history; retries at random, then falls back to a scan. */
   private pickTakeoverVictim(atMs: number): Account {
     const rng = this.rng;
-    const suitable = (a: Account): boolean => !a.fraudster && a.count >= 3 && atMs - a.createdAtMs > 180 * DAY_MS;
+    // At least two payments in the ledger, so the spike shows against the account's mean there.
+    const suitable = (a: Account): boolean => !a.fraudster && a.count >= 3 && a.ledgerCount >= 2 && atMs - a.createdAtMs > 180 * DAY_MS;
     for (let tries = 0; tries < 64; tries++) {
       const candidate = this.accounts[rng.integer(0, this.accounts.length - 1)];
       if (suitable(candidate)) return candidate;
@@ -748,8 +790,10 @@ class Simulation {
       channel: event.channel,
       amount,
       basketItems: 1,
+      shippingFee: fee,
       shippingShare: round4(fee / amount),
       shipDistanceKm: event.distanceKm,
+      shipTo: event.shipTo,
       pattern: "test-burst",
     };
     const row = this.emit(event.account, time, draft);
@@ -767,7 +811,7 @@ class Simulation {
     // Several times the account's usual spend, in a few costly items.
     const merchandise = clamp(usual * rng.logNormal(7, 0.35), 120, 4000);
     const items = 1 + rng.poisson(1);
-    const draft = this.finishDraft(event.channel, merchandise, items, event.distanceKm, rng.chance(0.6) ? "express" : "standard", "takeover-spike");
+    const draft = this.finishDraft(event.channel, merchandise, items, event.distanceKm, event.shipTo, rng.chance(0.6) ? "express" : "standard", "takeover-spike");
     const row = this.emit(account, time, draft);
     if (event.remaining > 1) {
       const gap = 5 * MINUTE_MS + Math.round(rng.exponential(25 * MINUTE_MS));
@@ -781,7 +825,7 @@ class Simulation {
     const items = 6 + rng.poisson(5);
     let merchandise = 0;
     for (let i = 0; i < items; i++) merchandise += rng.logNormal(24, 0.35);
-    const draft = this.finishDraft(event.channel, merchandise, items, event.distanceKm, rng.chance(0.3) ? "express" : "standard", "reship-haul");
+    const draft = this.finishDraft(event.channel, merchandise, items, event.distanceKm, event.shipTo, rng.chance(0.3) ? "express" : "standard", "reship-haul");
     const row = this.emit(event.account, time, draft);
     if (event.remaining > 1) {
       const gap = HOUR_MS + Math.round(rng.exponential(6 * HOUR_MS));
@@ -797,35 +841,39 @@ class Simulation {
     // total stays inside that channel's 2nd–98th percentile band as well as the pooled one.
     const merchandise = channel === "web" ? rng.between(110, 160) : rng.between(75, 98);
     const distanceKm = round2(this.boundedLogNormal(36, 0.3, 18, 70));
-    return this.finishDraft(channel, merchandise, 1, distanceKm, "courier", "ordinary-parts");
+    return this.finishDraft(channel, merchandise, 1, distanceKm, this.freshDestination(), "courier", "ordinary-parts");
   }
 
   // --- the ledger row ------------------------------------------------------------------------
 
   /**
-   * Writes one payment: derives the per-account columns from the account's earlier payments,
-   * then records this payment in the account's history.
+   * Writes one payment: computes the generator's figures of the features from the account's
+   * earlier payments in the ledger (as the spec defines them: strictly earlier, windows including
+   * their start), then records this payment in the account's history.
    */
   private emit(account: Account, timeMs: number, draft: PaymentDraft): LedgerRow {
-    const previousMs = account.lastPaymentMs ?? account.createdAtMs;
     const windowStart = timeMs - DAY_MS;
     const recent = account.recent;
-    while (recent.length > 0 && recent[0] <= windowStart) recent.shift();
-    const average = account.count > 0 ? account.sum / account.count : draft.amount;
+    while (recent.length > 0 && recent[0] < windowStart) recent.shift();
+    let last24h = 0;
+    for (const t of recent) if (t < timeMs) last24h++;
 
     const row: LedgerRow = {
       paymentId: `pay-${String(this.emitted + 1).padStart(6, "0")}`,
       createdAt: new Date(timeMs).toISOString(),
       accountRef: account.ref,
+      accountCreatedAt: new Date(account.createdAtMs).toISOString(),
       channel: draft.channel,
       amount: draft.amount,
       basketItems: draft.basketItems,
+      shippingFee: draft.shippingFee,
+      shipTo: draft.shipTo,
       shippingShare: draft.shippingShare,
       accountAgeDays: round4(Math.max(0, timeMs - account.createdAtMs) / DAY_MS),
-      hoursSincePrevious: round4(Math.max(0, timeMs - previousMs) / HOUR_MS),
-      paymentsLast24h: recent.length,
+      hoursSincePrevious: account.ledgerLastMs === null ? NO_PREVIOUS_HOURS : round4((timeMs - account.ledgerLastMs) / HOUR_MS),
+      paymentsLast24h: last24h,
       shipDistanceKm: draft.shipDistanceKm,
-      amountVsAccountAverage: Math.max(0.0001, round4(draft.amount / average)),
+      amountVsAccountAverage: account.ledgerCount === 0 ? 1 : Math.max(0.0001, round4(draft.amount / (account.ledgerSum / account.ledgerCount))),
       // Floor, not round, so 23.99999 h never prints as 24.0000.
       hourOfDay: Math.floor(localHour(timeMs) * 10_000) / 10_000,
       label: draft.pattern === "" ? "legitimate" : "fraud",
@@ -835,6 +883,9 @@ class Simulation {
     account.count += 1;
     account.sum += draft.amount;
     account.lastPaymentMs = timeMs;
+    account.ledgerCount += 1;
+    account.ledgerSum += draft.amount;
+    account.ledgerLastMs = timeMs;
     recent.push(timeMs);
     this.emitted += 1;
     while (this.nextTrigger < this.triggers.length && this.triggers[this.nextTrigger].ordinal <= this.emitted) {

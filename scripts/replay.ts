@@ -2,10 +2,12 @@
  * `npm run replay`: streams the demo ledger's payments to the running service
  * (`POST /v1/score/batch`), so that the review store fills with flags and audit-sample items.
  * Feature names and the segment column are taken from the live model (GET /v1/health), the
- * transaction id from `paymentId` and the account from `accountRef`; labels are never sent.
+ * transaction id from `paymentId` and the account from `accountRef`; labels are never sent. A
+ * ledger of payment records (the demo's) has its features derived in ledger order with --spec.
  *
  * Options: --url (default http://127.0.0.1:8787), --token (default: a flow credential from
- * .dev.vars), --ledger (default demo-ledger/data/ledger.csv), --limit N, --batch N (default 100),
+ * .dev.vars), --ledger (default demo-ledger/data/ledger.csv), --spec (default demo-ledger/spec.json),
+ * --limit N, --batch N (default 100),
  * --parallel N requests in flight (default 4).
  */
 import { existsSync } from "node:fs";
@@ -13,8 +15,8 @@ import { dirname, join, resolve } from "node:path";
 import { fileURLToPath } from "node:url";
 import { numberOption, stringOption, type CommandSpec } from "../cli/args";
 import { parseScriptArgs } from "./script-args";
-import { openCsvTable } from "../cli/csv";
 import { credentialsOf, readDevVars } from "./dev-vars";
+import { ledgerPayments } from "./ledger-payments";
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 
@@ -26,6 +28,7 @@ const spec: CommandSpec = {
     { name: "url", kind: "string", valueName: "url", description: "service base URL", defaultText: "http://127.0.0.1:8787" },
     { name: "token", kind: "string", valueName: "token", description: "flow bearer token", defaultText: "the 'replay' (else first) flow user of .dev.vars" },
     { name: "ledger", kind: "string", valueName: "ledger.csv", description: "payments to send", defaultText: "demo-ledger/data/ledger.csv" },
+    { name: "spec", kind: "string", valueName: "spec.json", description: "record spec deriving the features of a records ledger", defaultText: "demo-ledger/spec.json" },
     { name: "limit", kind: "integer", valueName: "N", min: 1, description: "send at most N payments", defaultText: "all" },
     { name: "batch", kind: "integer", valueName: "N", min: 1, max: 1000, description: "payments per request (≤ the service's MAX_BATCH)", defaultText: "100" },
     { name: "parallel", kind: "integer", valueName: "N", min: 1, max: 32, description: "requests in flight", defaultText: "4" },
@@ -50,6 +53,7 @@ async function main(): Promise<number> {
   if (typeof args === "number") return args;
   const url = (stringOption(args, "url") ?? "http://127.0.0.1:8787").replace(/\/$/, "");
   const ledger = resolve(stringOption(args, "ledger") ?? join(root, "demo-ledger/data/ledger.csv"));
+  const specPath = resolve(stringOption(args, "spec") ?? join(root, "demo-ledger/spec.json"));
   const limit = numberOption(args, "limit") ?? Number.POSITIVE_INFINITY;
   const batchSize = numberOption(args, "batch") ?? 100;
   const parallel = numberOption(args, "parallel") ?? 4;
@@ -80,16 +84,6 @@ async function main(): Promise<number> {
     return 1;
   }
   const model = health.model;
-  const table = await openCsvTable(ledger);
-  const column = (name: string): number => {
-    const index = table.header.indexOf(name);
-    if (index < 0) throw new Error(`${ledger} has no column '${name}' (the live model ${model.version} needs it)`);
-    return index;
-  };
-  const featureColumns = model.features.map((name) => [name, column(name)] as const);
-  const idColumn = column("paymentId");
-  const segmentColumn = model.segmentBy ? column(model.segmentBy) : -1;
-  const accountColumn = table.header.indexOf("accountRef");
 
   process.stdout.write(`replaying ${ledger} to ${url} (model ${model.version}, ${batchSize} per request, ${parallel} in flight)\n`);
   const tally: Tally = { sent: 0, scored: 0, review: 0, audit: 0, refused: 0, refusals: new Map() };
@@ -127,16 +121,16 @@ async function main(): Promise<number> {
     inFlight.add(request);
   };
 
+  const payments = ledgerPayments(ledger, model.features, specPath);
   try {
-    for await (const record of table.rows) {
+    for await (const payment of payments) {
       if (tally.sent >= limit || failure) break;
-      const features: Record<string, number> = {};
-      for (const [name, index] of featureColumns) features[name] = Number(record.cells[index]);
+      const accountRef = payment.cell("accountRef");
       batch.push({
-        transactionId: record.cells[idColumn],
-        features,
-        ...(segmentColumn >= 0 ? { segment: record.cells[segmentColumn] } : {}),
-        ...(accountColumn >= 0 && record.cells[accountColumn] !== "" ? { accountRef: record.cells[accountColumn] } : {}),
+        transactionId: payment.cell("paymentId"),
+        features: payment.features,
+        ...(model.segmentBy ? { segment: payment.cell(model.segmentBy) } : {}),
+        ...(accountRef !== "" ? { accountRef } : {}),
       });
       tally.sent++;
       if (batch.length === batchSize) {
@@ -151,7 +145,7 @@ async function main(): Promise<number> {
     if (batch.length > 0 && !failure) send(batch);
     await Promise.all(inFlight);
   } finally {
-    await table.rows.return(undefined);
+    await payments.return(undefined);
   }
   if (failure) {
     process.stderr.write(`replay: stopped after ${tally.scored + tally.refused} answers: ${(failure as Error).message}\n`);

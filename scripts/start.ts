@@ -19,7 +19,7 @@ import { copyFileSync, existsSync, mkdirSync, readFileSync, statSync } from "nod
 import { dirname, join, relative, resolve } from "node:path";
 import { fileURLToPath } from "node:url";
 import { publishCommand } from "../cli/commands/publish";
-import { openCsvTable } from "../cli/csv";
+import { ledgerPayments } from "./ledger-payments";
 import { demoLedgerCommand } from "../demo-ledger/cli";
 import { credentialsOf, readDevVars } from "./dev-vars";
 
@@ -164,18 +164,16 @@ async function sampleCurl(flowToken: string): Promise<string> {
   const health = (await (await fetch(`${url}/v1/health`)).json()) as { model: { features: string[]; segmentBy: string | null } | null };
   const model = health.model;
   if (!model) return "(no model loaded)";
-  const table = await openCsvTable(paths.ledger);
+  const payments = ledgerPayments(paths.ledger, model.features, paths.spec);
   let body: Record<string, unknown> | null = null;
   try {
-    for await (const record of table.rows) {
-      const cell = (name: string) => record.cells[table.header.indexOf(name)];
-      if (table.header.includes("label") && cell("label") !== "legitimate") continue;
-      const features = Object.fromEntries(model.features.map((name) => [name, Number(cell(name))]));
+    for await (const { cell, features } of payments) {
+      if (cell("label") !== "legitimate") continue;
       body = { transactionId: "demo-curl-0001", features, ...(model.segmentBy ? { segment: cell(model.segmentBy) } : {}), accountRef: cell("accountRef") };
       break;
     }
   } finally {
-    await table.rows.return(undefined);
+    await payments.return(undefined);
   }
   return [
     `curl -s ${url}/v1/score \\`,

@@ -15,6 +15,7 @@ import { EXIT_OK, reportFailure } from "../errors";
 import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { openLedger } from "../ledger";
+import { recordsOfModel } from "../records";
 import { formatCount, formatPercent } from "../numbers";
 import { createProgress } from "../progress";
 import { loadArtifact } from "./score";
@@ -82,6 +83,7 @@ export async function driftCommand(argv: string[], io: CommandIO = processIO()):
       features: artifact.features,
       labelColumn: stringOption(args, "label-column"),
       segmentColumn: artifact.segmentBy,
+      records: recordsOfModel(artifact),
     });
     const { columnEdges, scoreEdges } = artifact.reference;
     const n = artifact.columns.length;

@@ -4,7 +4,8 @@
  * model core, publish and activate it through the admin API, then score the later payments through
  * POST /v1/score/batch so the flags reach D1 the way production flags do (queue → consumer).
  */
-import { fitModel, type FeatureDeclaration, type FitRow } from "../../shared-model/src";
+import { readFileSync } from "node:fs";
+import { fitModel, parseRecordSpec, type FeatureDeclaration, type FitRow } from "../../shared-model/src";
 import { generateLedger, type LedgerRow } from "../../demo-ledger/generate";
 import type { StateCounts } from "../../worker/src/review/contract";
 
@@ -20,6 +21,12 @@ export const DEMO_FEATURES: FeatureDeclaration[] = [
   { name: "amountVsAccountAverage", transform: "log" },
   { name: "hourOfDay", transform: "cyclic-hour" },
 ];
+
+/**
+ * How the demo ledger's records give those features (same names, same order): the model carries it,
+ * so a refit on the records ledger derives them as the fit did.
+ */
+const DEMO_RECORD_SPEC = parseRecordSpec(JSON.parse(readFileSync(new URL("../../demo-ledger/spec.json", import.meta.url), "utf8")));
 
 export interface DemoOptions {
   /** Ledger rows to generate (default 14,000). */
@@ -74,6 +81,7 @@ export async function seedDemoQueue(base: string, tokens: DemoTokens, options: D
       cutoffRate: options.cutoffRate ?? 0.012,
       seed: 7,
       source: "demo ledger (Orvenna Housewares, invented)",
+      recordSpec: DEMO_RECORD_SPEC,
     },
   );
   await call(base, "/v1/models", tokens.admin, artifact);

@@ -1,20 +1,40 @@
 /**
- * The demo's point, checked: on the fictional shop's ledger (default seed and size), a Gaussian
+ * The demo's point, checked: on the fictional shop's ledger (default seed and size), its features
+ * derived from the payment records by demo-ledger/spec.json, a Gaussian
  * with a full covariance ranks fraud better than one with independent features (diagonal), and
  * it finds the combination kind of fraud — every value ordinary on its own, only the mix rare —
  * that the diagonal model misses.
  */
 import { readFileSync } from "node:fs";
 import { beforeAll, describe, expect, it } from "vitest";
-import { COMBINATION_PATTERN, DEFAULT_ROWS, DEFAULT_SEED, generateLedger, type LedgerRow } from "../../demo-ledger/generate";
+import { COMBINATION_PATTERN, DEFAULT_ROWS, DEFAULT_SEED, LEDGER_COLUMNS, formatCsvRow, generateLedger, type LedgerRow } from "../../demo-ledger/generate";
 import type { ModelArtifact } from "../../shared-model/src/artifact";
-import { parseFeatureSpec } from "../../shared-model/src/features";
+import { deriveInto } from "../../shared-model/src/records/derive";
+import { emptyHistory, recordPayment, type AccountHistory } from "../../shared-model/src/records/history";
+import { recordFromFields } from "../../shared-model/src/records/record";
+import { parseRecordSpec } from "../../shared-model/src/records/spec";
 import { fitModel, type FitRow, type RowSource } from "../../shared-model/src/fit";
 import { compileModel, Scorer } from "../../shared-model/src/score";
 import { operatingPoints } from "../../shared-model/src/tuning";
-import type { CovarianceShape, FeatureDeclaration } from "../../shared-model/src/types";
+import type { CovarianceShape } from "../../shared-model/src/types";
 
-const features: FeatureDeclaration[] = parseFeatureSpec(JSON.parse(readFileSync(new URL("../../demo-ledger/spec.json", import.meta.url), "utf8")));
+const spec = parseRecordSpec(JSON.parse(readFileSync(new URL("../../demo-ledger/spec.json", import.meta.url), "utf8")));
+const features = spec.features;
+
+/** Each row's features as the pipeline derives them: from the written record and the account's earlier records. */
+function deriveAll(ledger: readonly LedgerRow[]): Float64Array[] {
+  const histories = new Map<string, AccountHistory>();
+  return ledger.map((row) => {
+    const cells = formatCsvRow(row).split(",");
+    const record = recordFromFields(spec, Object.fromEntries(LEDGER_COLUMNS.map((column, j) => [column, cells[j]])));
+    const history = histories.get(record.account) ?? emptyHistory();
+    histories.set(record.account, history);
+    const out = new Float64Array(features.length);
+    deriveInto(spec, history, record, out);
+    recordPayment(spec, history, record);
+    return out;
+  });
+}
 
 let rows: LedgerRow[];
 let values: Float64Array[];
@@ -80,7 +100,7 @@ let diagonal: Outcome;
 
 beforeAll(async () => {
   rows = [...generateLedger({ seed: DEFAULT_SEED, rows: DEFAULT_ROWS })];
-  values = rows.map((row) => Float64Array.from(features, (f) => row[f.name as keyof LedgerRow] as number));
+  values = deriveAll(rows);
   full = await fitAndScore("full");
   diagonal = await fitAndScore("diagonal");
   console.log(

@@ -39,7 +39,9 @@ export type ColumnKind = "number" | "timestamp" | "text";
  * `since`, text for a column only `distinct` reads, a number otherwise.
  * @example recordValueColumns(spec) // Map { "amount" => "number", "accountCreatedAt" => "timestamp", "shipTo" => "text" }
  */
-export function recordValueColumns(spec: RecordSpec): Map<string, ColumnKind> {
+export function recordValueColumns(spec: RecordSpec): ReadonlyMap<string, ColumnKind> {
+  const cached = valueColumns.get(spec);
+  if (cached !== undefined) return cached;
   const kinds = new Map<string, ColumnKind>();
   const mark = (column: string, kind: ColumnKind) => {
     const held = kinds.get(column);
@@ -55,8 +57,12 @@ export function recordValueColumns(spec: RecordSpec): Map<string, ColumnKind> {
     else if (d.kind === "sum" || d.kind === "vsMean") mark(d.column, "number");
     else if (d.kind === "distinct") mark(d.column, "text");
   }
+  valueColumns.set(spec, kinds);
   return kinds;
 }
+
+/** Worked out once per spec object: records are read per payment, on the hot path. */
+const valueColumns = new WeakMap<RecordSpec, ReadonlyMap<string, ColumnKind>>();
 
 /**
  * Names of the ledger columns the spec reads: the record mapping's (id, time, account, segment)
