@@ -110,7 +110,11 @@ if (process.argv.some((arg) => arg.endsWith("bench/derive.ts"))) {
   const figures = await benchDerive();
   writeFileSync(
     new URL("results/derive.json", import.meta.url),
-    JSON.stringify({ measuredAt: new Date().toISOString(), machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version }, derive: figures }, null, 2) + "\n",
+    JSON.stringify(
+      { measuredAt: new Date().toISOString(), machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version }, derive: figures },
+      null,
+      2,
+    ) + "\n",
   );
   console.log("written bench/results/derive.json");
 }

@@ -22,7 +22,6 @@ import {
   resolveLedgerOptions,
   type LedgerFeature,
   type LedgerOptions,
-  type LedgerRow,
 } from "./generate";
 
 const HOUR_MS = 3_600_000;

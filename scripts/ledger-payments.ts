@@ -33,7 +33,9 @@ export async function* ledgerPayments(ledgerPath: string, featureNames: readonly
       const spec = parseRecordSpec(JSON.parse(readFileSync(specPath, "utf8")));
       const specNames = spec.features.map((f) => f.name);
       if (!derivesFromRecords(spec) || specNames.join(",") !== featureNames.join(",")) {
-        throw new Error(`${ledgerPath} lacks the live model's feature columns, and ${specPath} does not derive them (it gives ${specNames.join(", ")}; the model has ${featureNames.join(", ")})`);
+        throw new Error(
+          `${ledgerPath} lacks the live model's feature columns, and ${specPath} does not derive them (it gives ${specNames.join(", ")}; the model has ${featureNames.join(", ")})`,
+        );
       }
       deriver = new RecordDeriver(spec, table.file, table.header);
     }

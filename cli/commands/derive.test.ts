@@ -59,7 +59,9 @@ function recordsLedger(): string {
     const fraud = random.next() < 0.02;
     const amount = (Math.exp(3.5 + 0.5 * random.next()) * (fraud ? 6 : 1)).toFixed(2);
     const shipping = (2 + random.int(800) / 100).toFixed(2);
-    lines.push(`r${i},${new Date(t).toISOString()},acct-${random.int(60)},${random.next() < 0.6 ? "web" : "app"},${amount},${shipping},z${random.int(3)},${fraud ? "fraud" : "legitimate"}`);
+    lines.push(
+      `r${i},${new Date(t).toISOString()},acct-${random.int(60)},${random.next() < 0.6 ? "web" : "app"},${amount},${shipping},z${random.int(3)},${fraud ? "fraud" : "legitimate"}`,
+    );
   }
   return lines.join("\n") + "\n";
 }
@@ -139,7 +141,17 @@ describe("fit, score, tune and refit on payment records", () => {
     expect((await run(deriveCommand, [at("records.csv"), "--spec", at("spec.json"), "--out", at("features.csv")])).code).toBe(0);
     const direct = await run(fitCommand, [at("records.csv"), "--spec", at("spec.json"), "--out", at("direct.json"), "--segment-by", "channel"]);
     expect(direct.code, direct.err).toBe(0);
-    const twoStep = await run(fitCommand, [at("features.csv"), "--spec", at("plain-spec.json"), "--out", at("two-step.json"), "--segment-by", "channel", "--id-column", "paymentId"]);
+    const twoStep = await run(fitCommand, [
+      at("features.csv"),
+      "--spec",
+      at("plain-spec.json"),
+      "--out",
+      at("two-step.json"),
+      "--segment-by",
+      "channel",
+      "--id-column",
+      "paymentId",
+    ]);
     expect(twoStep.code, twoStep.err).toBe(0);
     const a = await parseArtifact(await readFile(at("direct.json"), "utf8"));
     const b = await parseArtifact(await readFile(at("two-step.json"), "utf8"));
@@ -159,13 +171,35 @@ describe("fit, score, tune and refit on payment records", () => {
   });
 
   it("tune takes a labelled records ledger, and refit a records ledger, deriving on the way", async () => {
-    const tuned = await run(tuneCommand, [at("records.csv"), "--model", at("direct.json"), "--id-column", "paymentId", "--label-column", "label", "--objective", "f1", "--out", at("tuned.json")]);
+    const tuned = await run(tuneCommand, [
+      at("records.csv"),
+      "--model",
+      at("direct.json"),
+      "--id-column",
+      "paymentId",
+      "--label-column",
+      "label",
+      "--objective",
+      "f1",
+      "--out",
+      at("tuned.json"),
+    ]);
     expect(tuned.code, tuned.err).toBe(0);
     // The review export carries each payment's derived features: here, the derived rows with their labels.
     const [header, ...rows] = (await readFile(at("features.csv"), "utf8")).trimEnd().split("\n");
     const labels = [header.replace(",label,", ",outcome,"), ...rows.filter((_, i) => i % 10 === 0 || rows[i].includes(",fraud,"))];
     await writeFile(at("labels.csv"), labels.join("\n") + "\n");
-    const refit = await run(refitCommand, [at("records.csv"), "--labels", at("labels.csv"), "--model", at("direct.json"), "--out", at("candidate.json"), "--labels-id-column", "paymentId"]);
+    const refit = await run(refitCommand, [
+      at("records.csv"),
+      "--labels",
+      at("labels.csv"),
+      "--model",
+      at("direct.json"),
+      "--out",
+      at("candidate.json"),
+      "--labels-id-column",
+      "paymentId",
+    ]);
     expect(refit.code, refit.err).toBe(0);
     const candidate = await parseArtifact(await readFile(at("candidate.json"), "utf8"));
     expect(candidate.record).toMatchObject(SPEC.record);

@@ -123,9 +123,7 @@ export async function deriveCommand(argv: string[], io: CommandIO = processIO())
     await writer.commit();
     writer = null;
     progress.done();
-    writeLines(io.stdout, [
-      `derived ${spec.features.length} features for ${formatCount(rows)} payments of ${formatCount(deriver.accounts)} accounts; wrote ${out}`,
-    ]);
+    writeLines(io.stdout, [`derived ${spec.features.length} features for ${formatCount(rows)} payments of ${formatCount(deriver.accounts)} accounts; wrote ${out}`]);
     return EXIT_OK;
   } catch (error) {
     progress.done();

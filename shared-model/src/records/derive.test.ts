@@ -84,7 +84,13 @@ describe("deriving features from a payment and the account's earlier payments", 
     // b happened at 10:20 but arrives after c.
     expect(step(SPEC, history, payment("b", "2026-10-01T10:20:00Z", 25, 5, "Z"))).toMatchObject({ n24h: 1, spent7d: 50, places30d: 1, gapHours: 1 / 3, vsAverage: 0.5 });
     // A later payment sees all three, in time order: its previous payment is c.
-    expect(step(SPEC, history, payment("d", "2026-10-01T11:00:00Z", 100, 5, "X"))).toMatchObject({ n24h: 3, spent7d: 575, places30d: 3, gapHours: 1 / 3, vsAverage: 100 / (575 / 3) });
+    expect(step(SPEC, history, payment("d", "2026-10-01T11:00:00Z", 100, 5, "X"))).toMatchObject({
+      n24h: 3,
+      spent7d: 575,
+      places30d: 3,
+      gapHours: 1 / 3,
+      vsAverage: 100 / (575 / 3),
+    });
   });
 
   it("counts a repeated payment id once", () => {
@@ -133,7 +139,13 @@ describe("deriving features from a payment and the account's earlier payments", 
 
 describe("account history", () => {
   it("stays bounded by the payments inside the longest window plus the lateness", () => {
-    const spec = parseRecordSpec({ record: RECORD, features: [{ name: "n", transform: "none", count: { within: "24h" } }, { name: "vs", transform: "none", vsMean: { column: "amount", none: 1 } }] });
+    const spec = parseRecordSpec({
+      record: RECORD,
+      features: [
+        { name: "n", transform: "none", count: { within: "24h" } },
+        { name: "vs", transform: "none", vsMean: { column: "amount", none: 1 } },
+      ],
+    });
     const history = emptyHistory();
     const start = Date.UTC(2026, 9, 1);
     let largest = 0;

@@ -82,7 +82,7 @@ describe("parseRecordSpec", () => {
       { field: "features[0].count.within", rule: expect.stringMatching(/^must be a duration.*; got "1 day" \(feature "paymentsLast24h"\)$/) },
       { field: "features[1].sincePrevious.unit", rule: 'must be one of seconds, minutes, hours, days; got "weeks" (feature "gap")' },
       { field: "features[2].hourOfDay.utcOffset", rule: expect.stringContaining('(feature "hour")') },
-      { field: "features[3].hourOfDay.timeZone", rule: expect.stringContaining('must be an IANA time zone this runtime knows') },
+      { field: "features[3].hourOfDay.timeZone", rule: expect.stringContaining("must be an IANA time zone this runtime knows") },
     ]);
   });
 
@@ -121,9 +121,23 @@ describe("parseRecordSpec", () => {
   });
 
   it("keeps the feature spec's own rules: duplicate names and bad transforms", () => {
-    const problems = problemsOf({ record: RECORD, features: [{ name: "a", transform: "log" }, { name: "a", transform: "sqrt" }] });
+    const problems = problemsOf({
+      record: RECORD,
+      features: [
+        { name: "a", transform: "log" },
+        { name: "a", transform: "sqrt" },
+      ],
+    });
     expect(problems.map((p) => p.field)).toEqual(["features[1].transform"]);
-    expect(problemsOf({ record: RECORD, features: [{ name: "a", transform: "log" }, { name: "a", transform: "none", count: { within: "1h" } }] })[0]).toMatchObject({
+    expect(
+      problemsOf({
+        record: RECORD,
+        features: [
+          { name: "a", transform: "log" },
+          { name: "a", transform: "none", count: { within: "1h" } },
+        ],
+      })[0],
+    ).toMatchObject({
       field: "features[1].name",
       rule: expect.stringContaining("must be unique"),
     });

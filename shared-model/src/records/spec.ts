@@ -11,16 +11,7 @@
  * ```
  */
 import { z } from "zod";
-import {
-  FeatureSpecError,
-  describeReceived,
-  expecting,
-  featureNameSchema,
-  featureTransformSchema,
-  parseFeatureSpec,
-  specProblems,
-  type FeatureSpecProblem,
-} from "../features";
+import { FeatureSpecError, describeReceived, expecting, featureNameSchema, featureTransformSchema, parseFeatureSpec, specProblems, type FeatureSpecProblem } from "../features";
 import type { FeatureDeclaration } from "../types";
 import { isKnownTimeZone } from "./local-hour";
 import { DAY_MS, DURATION_PATTERN, HOUR_MS, MINUTE_MS, TIME_UNITS, UTC_OFFSET_PATTERN, parseDuration, parseUtcOffset, type TimeUnit } from "./time";
@@ -148,10 +139,7 @@ export const derivationJsonSchema = z.strictObject(derivationShape).refine((valu
   error: `must hold at most one of ${DERIVATION_KEYS.join(", ")}`,
 });
 
-const featureSchema = objectOf(
-  { name: featureNameSchema, transform: featureTransformSchema, ...derivationShape },
-  '{ "name": …, "transform": … } with at most one derivation key',
-);
+const featureSchema = objectOf({ name: featureNameSchema, transform: featureTransformSchema, ...derivationShape }, '{ "name": …, "transform": … } with at most one derivation key');
 
 const specSchema = objectOf(
   {
