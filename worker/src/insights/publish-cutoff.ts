@@ -6,8 +6,8 @@
  */
 import { retuneArtifact, TuningInputError, type ModelArtifact } from "../../../shared-model/src";
 import type { Env, Problem } from "../env";
-import { loadModel, modelCache, ModelLoadError } from "../scoring/model-cache";
-import { MAX_PREVIOUS_VERSIONS, readArtifactText, readPointer, storeArtifact, writePointer, type ModelPointer } from "../storage/model-store";
+import { changePointer, loadModel, ModelLoadError } from "../scoring/model-cache";
+import { activatedPointer, readArtifactText, readPointer, storeArtifact } from "../storage/model-store";
 import { markModelEventFailed, recordModelEvent, type ModelEventAction } from "../storage/review-store";
 import type { PublishedCutoff } from "./contract";
 export type { PublishedCutoff };
@@ -76,16 +76,9 @@ export async function publishCutoff(env: Env, actor: string, input: PublishCutof
     storeArtifact(env, tuned.version, JSON.stringify(tuned), { createdAt: tuned.createdAt, checksum: tuned.checksum }),
   );
   if (stored) return stored;
-  const next: ModelPointer = {
-    version: tuned.version,
-    shadow: pointer.shadow === tuned.version ? null : pointer.shadow,
-    previous: [pointer.version, ...pointer.previous.filter((v) => v !== pointer.version && v !== tuned.version)].slice(0, MAX_PREVIOUS_VERSIONS),
-    updatedAt: new Date().toISOString(),
-    updatedBy: actor,
-  };
+  const next = activatedPointer(pointer, tuned.version, actor);
   const activated = await withEvent(env, { actor, action: "activate", fromVersion: pointer.version, toVersion: tuned.version, detail: why }, async () => {
-    await writePointer(env, next);
-    modelCache.invalidate();
+    await changePointer(env, next);
   });
   if (activated) return activated;
   return {

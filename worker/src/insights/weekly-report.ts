@@ -7,7 +7,7 @@
  * the model page instead of vanishing into the scheduler's logs.
  */
 import type { Env } from "../env";
-import { loadModel } from "../scoring/model-cache";
+import { modelCache } from "../scoring/model-cache";
 import { readPointer } from "../storage/model-store";
 import { dayFlagRates, driftEntries, refitReasons } from "./drift-report";
 import { readSettings } from "../settings";
@@ -58,7 +58,7 @@ export async function computeReport(env: Env, version: string, shadowVersion: st
   // All the loop's variables, so that a malformed flush setting (which only stops counting, never a
   // payment) shows as an error report on the model page.
   const settings = readSettings(env, ["DRIFT_FLUSH_PAYMENTS", "DRIFT_FLUSH_SECONDS", "REFIT_AFTER_DAYS"]);
-  const live = await loadModel(env, version);
+  const live = await modelCache.model(env, version);
   const fromDay = dayBefore(now, REPORT_WINDOW_DAYS - 1);
   const toDay = dayBefore(now, 0);
   const [totals, volumes, since] = await Promise.all([

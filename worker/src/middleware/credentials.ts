@@ -9,7 +9,7 @@
  */
 import { ConfigError, type Env, type Problem } from "../env";
 
-/** Roles: the payment flow scores; analysts review (next issue); admins may do everything. */
+/** Roles: the payment flow scores; analysts work the review queue; admins may do everything. */
 export type Role = "flow" | "analyst" | "admin";
 
 /** Who is calling, as established from the bearer token. */

@@ -9,7 +9,8 @@ import type { AppEnv } from "../app-env";
 
 /**
  * Security headers (HSTS, nosniff, frame denial, referrer policy, CSP `default-src 'none'`).
- * When the review UI is served from this worker (later issue), its pages need their own CSP.
+ * The review app's pages are static assets answered before the worker runs; their own CSP is in
+ * `review-ui/public/_headers`.
  */
 export function securityHeaders(): MiddlewareHandler<AppEnv> {
   return secureHeaders({

@@ -10,30 +10,16 @@
 import { conditionalReasons, rawVectorFromRecord, selectSegment, transformInto } from "../../../shared-model/src";
 import type { Reason } from "../../../shared-model/src";
 import type { Env } from "../env";
-import { loadModel, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
+import { modelCache, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
 import type { PairEvidence } from "./contract";
 
-/** Verified, compiled model versions kept in this isolate (versions are immutable, so never stale). */
-const MODEL_SLOTS = 8;
-const models = new Map<string, Promise<LoadedModel>>();
-
 /**
- * The verified, compiled model of a version, from this isolate's small cache or KV.
+ * The verified, compiled model of a version, from the isolate's model cache (shared with scoring
+ * and the model page) or KV.
  * @throws {ModelLoadError} when the version is missing or does not verify.
  */
-export async function modelFor(env: Pick<Env, "MODELS">, version: string): Promise<LoadedModel> {
-  const cached = models.get(version);
-  if (cached) {
-    // Refresh its place in the LRU order.
-    models.delete(version);
-    models.set(version, cached);
-    return cached;
-  }
-  const loading = loadModel(env, version);
-  models.set(version, loading);
-  loading.catch(() => models.delete(version));
-  while (models.size > MODEL_SLOTS) models.delete(models.keys().next().value!);
-  return loading;
+export function modelFor(env: Pick<Env, "MODELS">, version: string): Promise<LoadedModel> {
+  return modelCache.model(env, version);
 }
 
 export interface Evidence {

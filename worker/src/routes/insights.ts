@@ -37,7 +37,7 @@ import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
 import { parseQuery } from "./query";
-import { loadModel, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
+import { modelCache, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
 import { readArtifactText, readPointer, type ModelPointer } from "../storage/model-store";
 
 type InsightsContext = Context<AppEnv>;
@@ -163,7 +163,7 @@ function noActiveModel(c: InsightsContext): Response {
 /** Loads a version, answering 404/422 (naming `field`) when it is not stored or does not verify. */
 async function modelOrProblem(c: InsightsContext, version: string, field: string): Promise<LoadedModel | Response> {
   try {
-    return await loadModel(c.env, version);
+    return await modelCache.model(c.env, version);
   } catch (error) {
     if (!(error instanceof ModelLoadError)) throw error;
     if (error.code === "artifact-missing") return problemResponse(c, 404, "unknown-version", [{ field, rule: `no model version ${JSON.stringify(version)} is stored` }]);

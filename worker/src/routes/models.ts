@@ -10,14 +10,13 @@ import type { AppEnv } from "../app-env";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
-import { loadModel, modelCache, ModelLoadError } from "../scoring/model-cache";
+import { changePointer, loadModel, ModelLoadError } from "../scoring/model-cache";
 import {
+  activatedPointer,
   listVersions,
-  MAX_PREVIOUS_VERSIONS,
   readArtifactText,
   readPointer,
   storeArtifact,
-  writePointer,
   type ModelPointer,
   type VersionPage,
 } from "../storage/model-store";
@@ -107,8 +106,7 @@ modelRoutes.post("/models/rollback", async (c) => {
     updatedBy: c.get("principal").user,
   };
   return changeWithEvent(c, { action: "rollback", fromVersion: pointer.version, toVersion: target }, async () => {
-    await writePointer(c.env, next);
-    modelCache.invalidate();
+    await changePointer(c.env, next);
     return c.json({ pointer: next, changed: true });
   });
 });
@@ -135,8 +133,7 @@ modelRoutes.put("/models/shadow", jsonBody(BODY_LIMITS.small), async (c) => {
   const next: ModelPointer = { ...pointer, shadow: wanted, updatedAt: new Date().toISOString(), updatedBy: c.get("principal").user };
   const action: ModelEventAction = wanted === null ? "shadow-clear" : "shadow-set";
   return changeWithEvent(c, { action, fromVersion: pointer.shadow, toVersion: wanted }, async () => {
-    await writePointer(c.env, next);
-    modelCache.invalidate();
+    await changePointer(c.env, next);
     return c.json({ pointer: next, changed: true });
   });
 });
@@ -159,18 +156,9 @@ modelRoutes.post("/models/:version/activate", async (c) => {
   if (unusable) return unusable;
   const pointer = await readPointer(c.env);
   if (pointer?.version === version) return c.json({ pointer, changed: false });
-  const previous = pointer ? [pointer.version, ...pointer.previous.filter((v) => v !== pointer.version && v !== version)] : [];
-  const next: ModelPointer = {
-    version,
-    // Promoting the shadow ends the shadow run.
-    shadow: pointer?.shadow === version ? null : (pointer?.shadow ?? null),
-    previous: previous.slice(0, MAX_PREVIOUS_VERSIONS),
-    updatedAt: new Date().toISOString(),
-    updatedBy: c.get("principal").user,
-  };
+  const next = activatedPointer(pointer, version, c.get("principal").user);
   return changeWithEvent(c, { action: "activate", fromVersion: pointer?.version ?? null, toVersion: version }, async () => {
-    await writePointer(c.env, next);
-    modelCache.invalidate();
+    await changePointer(c.env, next);
     return c.json({ pointer: next, changed: true });
   });
 });

@@ -14,7 +14,7 @@
 import { compileModel, parseArtifact, Scorer, ArtifactError } from "../../../shared-model/src";
 import type { CompiledModel, ModelArtifact } from "../../../shared-model/src";
 import type { Env } from "../env";
-import { PointerFormatError, readArtifactText, readPointer, type ModelPointer } from "../storage/model-store";
+import { PointerFormatError, readArtifactText, readPointer, writePointer, type ModelPointer } from "../storage/model-store";
 
 /** A verified, compiled model ready to score. */
 export interface LoadedModel {
@@ -111,8 +111,12 @@ export interface ModelCacheStatus {
   lastFailure: LoadFailure | null;
 }
 
-/** Compiled versions kept for quick switches (rollback, shadow promoted to live). */
-const RECENT_MODELS = 4;
+/**
+ * Compiled versions kept: quick switches (rollback, shadow promoted to live) and the versions the
+ * review queue's evidence and the model page ask for. Versions are immutable, so a kept one is
+ * never stale.
+ */
+const KEPT_VERSIONS = 8;
 /** Distinct failure causes remembered for log-once; beyond this, causes are logged again. */
 const LOGGED_CAUSES = 256;
 
@@ -126,7 +130,7 @@ const LOGGED_CAUSES = 256;
 export class ModelCache {
   private live: LoadedModel | null = null;
   private shadow: LoadedModel | null = null;
-  private recent = new Map<string, LoadedModel>();
+  private kept = new Map<string, LoadedModel>();
   private pointer: ModelPointer | null = null;
   private checkedAt = Number.NEGATIVE_INFINITY;
   private refreshing: Promise<void> | null = null;
@@ -150,6 +154,28 @@ export class ModelCache {
       if (due || this.refreshing) await this.refresh(env, now);
     }
     return this.live ? { live: this.live, shadow: this.shadow } : null;
+  }
+
+  /**
+   * The verified, compiled model of one version, from the versions kept in this isolate or else
+   * from KV. Only finished loads are kept and shared: a load awaited across requests could hang
+   * with the request that started it (see {@link ModelCache.refresh}).
+   *
+   * @throws {ModelLoadError} as {@link loadModel}.
+   * @example const model = await modelCache.model(env, item.modelVersion);
+   */
+  async model(env: Pick<Env, "MODELS">, version: string): Promise<LoadedModel> {
+    const known = this.kept.get(version);
+    if (known) {
+      // Refresh its place in the least-recently-used order.
+      this.kept.delete(version);
+      this.kept.set(version, known);
+      return known;
+    }
+    const model = await loadModel(env, version);
+    this.kept.set(version, model);
+    if (this.kept.size > KEPT_VERSIONS) this.kept.delete(this.kept.keys().next().value as string);
+    return model;
   }
 
   /** Forces the next {@link snapshot} to re-read the pointer (after an admin change here). */
@@ -208,7 +234,7 @@ export class ModelCache {
     this.pointer = pointer;
     if (this.live?.version !== pointer.version) {
       try {
-        this.live = await this.obtain(env, pointer.version);
+        this.live = await this.model(env, pointer.version);
       } catch (error) {
         this.fail(asLoadError(error), false);
       }
@@ -218,21 +244,12 @@ export class ModelCache {
       this.shadow = null;
     } else if (this.shadow?.version !== wanted) {
       try {
-        this.shadow = await this.obtain(env, wanted);
+        this.shadow = await this.model(env, wanted);
       } catch (error) {
         this.shadow = null;
         this.fail(asLoadError(error), true);
       }
     }
-  }
-
-  private async obtain(env: Pick<Env, "MODELS">, version: string): Promise<LoadedModel> {
-    const known = this.recent.get(version);
-    if (known) return known;
-    const model = await loadModel(env, version);
-    this.recent.set(version, model);
-    if (this.recent.size > RECENT_MODELS) this.recent.delete(this.recent.keys().next().value as string);
-    return model;
   }
 
   private fail(error: ModelLoadError, shadow: boolean): void {
@@ -264,3 +281,14 @@ function describe(error: unknown): string {
 
 /** The isolate's cache (module scope: lives as long as the isolate). */
 export const modelCache = new ModelCache();
+
+/**
+ * Makes a pointer change: writes it to KV and has this isolate re-read it on its next request
+ * (other isolates follow within MODEL_REFRESH_SECONDS).
+ *
+ * @example await changePointer(env, activatedPointer(pointer, "m2", "ops-ana"));
+ */
+export async function changePointer(env: Pick<Env, "MODELS">, next: ModelPointer): Promise<void> {
+  await writePointer(env, next);
+  modelCache.invalidate();
+}

@@ -82,6 +82,24 @@ export async function writePointer(env: Pick<Env, "MODELS">, pointer: ModelPoint
 }
 
 /**
+ * The pointer after `version` goes live: the version that was live heads the rollback list (each
+ * version once, at most {@link MAX_PREVIOUS_VERSIONS}), and a shadow that goes live ends its run.
+ *
+ * @example activatedPointer({ version: "m1", shadow: "m2", previous: [], … }, "m2", "ops-ana")
+ *   // → { version: "m2", shadow: null, previous: ["m1"], updatedBy: "ops-ana", … }
+ */
+export function activatedPointer(pointer: ModelPointer | null, version: string, by: string, at: Date = new Date()): ModelPointer {
+  const previous = pointer ? [pointer.version, ...pointer.previous.filter((v) => v !== pointer.version && v !== version)] : [];
+  return {
+    version,
+    shadow: pointer?.shadow === version ? null : (pointer?.shadow ?? null),
+    previous: previous.slice(0, MAX_PREVIOUS_VERSIONS),
+    updatedAt: at.toISOString(),
+    updatedBy: by,
+  };
+}
+
+/**
  * Reads an artifact's JSON text; null when the version is not stored.
  *
  * @example
