@@ -12,7 +12,8 @@ import {
   type ModelArtifact,
   type UnsealedArtifact,
 } from "./artifact";
-import { cutoffForFlagRate } from "./cutoff";
+import { outOfSampleCutoff, type LawCutoff } from "./cutoff-law";
+import type { CutoffSample } from "./fit-cutoff-pass";
 import type { ModelSlot, ModelSlots } from "./fit-slots";
 import { decileReference, type DecileReference } from "./drift";
 import type { FitOptions } from "./fit-types";
@@ -30,8 +31,8 @@ export interface ArtifactInput {
   shapeReason: string;
   minSegmentRows: number;
   slots: ModelSlots;
-  /** d² of sampled training rows, each under its own model. */
-  scoreSample: Float64Array;
+  /** d² of sampled training rows, each under its own model, and the traffic per model. */
+  cutoffSample: CutoffSample;
   /** Drift reference of each model column (edges and training shares). */
   columnReference: DecileReference[];
   training: { rowsRead: number; rowsUsed: number; rowsExcludedAsFraud: number };
@@ -42,7 +43,7 @@ export interface SealedFit {
   artifact: ModelArtifact;
   fitted: ModelSlot[];
   diagnostics: Diagnostic[];
-  cut: { mahalanobisSq: number; tailProbability: number; flagRate: number };
+  cut: LawCutoff;
   logDensity: Record<string, number>;
 }
 
@@ -51,9 +52,10 @@ export interface SealedFit {
  * @throws Error (internal) when the sealed artifact does not verify: a defect in the fit
  */
 export async function sealFit(input: ArtifactInput): Promise<SealedFit> {
-  const { options, createdAt, columns, slots, scoreSample } = input;
+  const { options, createdAt, columns, slots, cutoffSample } = input;
+  const scoreSample = cutoffSample.inSample;
   const n = columns.length;
-  const cut = cutoffForFlagRate(scoreSample, options.cutoffRate, n);
+  const cut = outOfSampleCutoff({ ...cutoffSample, n, rate: options.cutoffRate });
   const fitted = slots.live();
   const logDensity: Record<string, number> = {};
   const segments: Record<string, ArtifactSegment> = {};

@@ -17,7 +17,7 @@ export interface ReportInput {
   fallbacks: Map<string, string>;
   segmentCounts: Map<string, number>;
   warnings: Diagnostic[];
-  cut: { mahalanobisSq: number; tailProbability: number; flagRate: number };
+  cut: { mahalanobisSq: number; tailProbability: number; flagRate: number; lawReason?: string };
   logDensity: Record<string, number>;
   n: number;
   minSegmentRows: number;
@@ -51,7 +51,7 @@ export function reportLines(r: ReportInput): string[] {
   }
   lines.push(
     `cutoff: flag when d² > ${num(r.cut.mahalanobisSq)} (tail probability P(χ²${r.n} > d²) < ${num(r.cut.tailProbability)}); ` +
-      `flags ${pct(r.cut.flagRate)} of training rows (asked ${pct(r.options.cutoffRate)})`,
+      `expected to flag ${pct(r.cut.flagRate)} of new payments (asked ${pct(r.options.cutoffRate)}); chosen by the ${r.cut.lawReason ?? "in-sample quantile"}`,
   );
   lines.push(
     `log-density cutoff per segment: ${Object.entries(r.logDensity)

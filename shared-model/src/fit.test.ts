@@ -131,7 +131,7 @@ describe("fitting a generated Gaussian", () => {
     expect(artifact.training).toEqual({ rowsRead: m, rowsUsed: m, rowsExcludedAsFraud: 0, source: null });
   });
 
-  it("flags close to the requested share of the training rows, by every form of the decision rule", async () => {
+  it("flags the requested share of deleted distances, a little less of the training rows themselves, by every form of the decision rule", async () => {
     const rows = data.slice(0, 5_000);
     const { artifact } = await fitModel(new ArraySource(asRows(rows)), options(plain("a", "b", "c"), { cutoffRate: 0.02 }));
     const scorer = new Scorer(compileModel(artifact));
@@ -144,9 +144,12 @@ describe("fitting a generated Gaussian", () => {
       if (result.tailProbability < artifact.cutoff.tailProbability) byTail++;
       if (result.logDensity < artifact.cutoff.logDensity["*"]) byDensity++;
     }
-    // With every row in the d² sample the realised rate is within one row of the request.
-    expect(Math.abs(flagged / rows.length - 0.02)).toBeLessThanOrEqual(1 / rows.length);
-    expect(artifact.cutoff.flagRate).toBeCloseTo(flagged / rows.length, 12);
+    // 100 rows in the tail: the cutoff is the quantile of the deleted distances (each row against
+    // the fit without it), so the expected rate for new payments is within one row of the request
+    // and the training rows themselves, measured against a fit they shaped, are flagged a bit less.
+    expect(Math.abs(artifact.cutoff.flagRate! - 0.02)).toBeLessThanOrEqual(1 / rows.length);
+    expect(flagged / rows.length).toBeLessThanOrEqual(0.02);
+    expect(flagged / rows.length).toBeGreaterThan(0.015);
     expect(byTail).toBe(flagged);
     expect(byDensity).toBe(flagged);
     expect(artifact.cutoff.basis).toBe("flag-rate");
@@ -275,7 +278,10 @@ describe("segments", () => {
     const { artifact } = await fitModel(new ArraySource(rows), options(plain("amount", "items"), { segmentBy: "channel", cutoffRate: 0.05 }));
     const scorer = new Scorer(compileModel(artifact));
     const flagged = rows.filter((r) => scorer.score(r.values, r.segment).flagged).length;
-    expect(Math.abs(flagged / rows.length - 0.05)).toBeLessThanOrEqual(1 / rows.length);
+    // In-sample distances are optimistic, so the training rows flag at or a little below the rate
+    // asked for new payments.
+    expect(flagged / rows.length).toBeLessThanOrEqual(0.05 + 1 / rows.length);
+    expect(flagged / rows.length).toBeGreaterThan(0.03);
   });
 
   it("honours --min-segment-rows and ignores the segment values when segmentBy is null", async () => {
@@ -508,7 +514,7 @@ describe("estimators and transforms end to end", () => {
     expect(text).toContain("covariance: diagonal (diagonal as requested");
     expect(text).toMatch(/estimator: shrinkage \(Ledoit–Wolf toward \(tr S\/n\)·I, divides by m\), pooled δ = /);
     expect(text).toContain("condition number of the pooled covariance:");
-    expect(text).toMatch(/cutoff: flag when d² > [\d.]+ \(tail probability P\(χ²3 > d²\) < [\d.e-]+\); flags 1\.00 % of training rows \(asked 1\.00 %\)/);
+    expect(text).toMatch(/cutoff: flag when d² > [\d.]+ \(tail probability P\(χ²3 > d²\) < [\d.e-]+\); expected to flag [\d.]+ % of new payments \(asked 1\.00 %\); chosen by the /);
     expect(report.shape).toBe("diagonal");
     expect(report.rowsUsed).toBe(200);
     expect(report.conditionNumber).toBeGreaterThan(1);

@@ -96,7 +96,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
   checkConstantColumns(slots, columns);
   if (options.estimator === "shrinkage") await fourthMomentsPass(pass);
   estimateSlots(slots, { estimator: options.estimator, shape, columns, seed, supportFraction: options.supportFraction });
-  const scoreSample = await cutoffPass(pass, seed);
+  const cutoffSample = await cutoffPass(pass, seed, options.estimator === "classical" && shape === "full");
 
   const training = { rowsUsed, ...trainingCounts(options, rowsUsed) };
   const sealed = await sealFit({
@@ -108,7 +108,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
     shapeReason,
     minSegmentRows,
     slots,
-    scoreSample,
+    cutoffSample,
     columnReference: columnDeciles(sample, sampleRows, decls.length, features, n),
     training,
   });
