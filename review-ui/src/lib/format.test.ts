@@ -29,8 +29,12 @@ describe("plain-words formatting", () => {
   it("gives tail probabilities as odds, with a superscript power for the very rare", () => {
     expect(formatTail(0.25)).toBe("25 %");
     expect(formatTail(0.00021)).toBe("1 in 4,800");
-    expect(formatTail(4.4e-17)).toBe("1 in 2.3 × 10¹⁶");
-    expect(formatTail(0)).toBe("below 1 in 10³⁰⁰");
+    expect(formatTail(2e-10)).toBe("1 in 5.0 × 10⁹");
+    // Capped: a Gaussian tail that far out invites more trust than the model deserves, and tails
+    // that underflow a double (0, subnormal) must not print as "1 in Infinity × 10NaN".
+    expect(formatTail(4.4e-17)).toBe("rarer than 1 in 10¹⁵");
+    expect(formatTail(0)).toBe("rarer than 1 in 10¹⁵");
+    expect(formatTail(1e-320)).toBe("rarer than 1 in 10¹⁵");
   });
 
   it("gives ages in the largest whole unit", () => {

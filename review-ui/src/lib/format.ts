@@ -33,12 +33,21 @@ export function formatCount(value: number): string {
 }
 
 /**
- * A tail probability P(χ²ₙ > d²) as "1 in N" for small values (easier to weigh than 1.2e-7).
- * @example formatTail(0.00021) // "1 in 4,800"; formatTail(4.4e-17) // "1 in 2.3 × 10¹⁶"
+ * Rarest tail the display spells out. Gaussian tails that far out say more about the model's
+ * shape than about the payment (real payments are heavier-tailed), so past it the text only says
+ * "rarer than"; it also keeps tails that underflow a double (0, subnormals) from printing as
+ * "1 in Infinity".
+ */
+export const RAREST_SHOWN_TAIL = 1e-15;
+
+/**
+ * A tail probability P(χ²ₙ > d²) as "1 in N" for small values (easier to weigh than 1.2e-7),
+ * capped at {@link RAREST_SHOWN_TAIL}.
+ * @example formatTail(0.00021) // "1 in 4,800"; formatTail(2e-10) // "1 in 5.0 × 10⁹"; formatTail(4.4e-17) // "rarer than 1 in 10¹⁵"
  */
 export function formatTail(p: number): string {
   if (!Number.isFinite(p) || p < 0) return "—";
-  if (p === 0) return `below 1 in ${power10(300)}`;
+  if (p < RAREST_SHOWN_TAIL) return `rarer than 1 in ${power10(15)}`;
   if (p >= 0.01) return `${(p * 100).toFixed(p >= 0.1 ? 0 : 1)} %`;
   const oneIn = 1 / p;
   if (oneIn >= 1e9) {
