@@ -53,15 +53,8 @@ export function formatForPeople(value: number, significant = 4): string {
   return String(Number(value.toPrecision(significant)));
 }
 
-/**
- * Formats a count with thousands separators (`12,000`), independent of the machine's locale.
- * @example formatCount(1234567) // "1,234,567"
- */
-export function formatCount(value: number): string {
-  const sign = value < 0 ? "-" : "";
-  const digits = String(Math.abs(Math.trunc(value)));
-  return sign + digits.replace(/\B(?=(\d{3})+(?!\d))/g, ",");
-}
+/** Counts with thousands separators, as the model core writes them (`12,000`). */
+export { formatCount } from "../shared-model/src/format-count";
 
 /**
  * Formats a fraction as a percentage with two decimals (`0.0123` → `1.23 %`).

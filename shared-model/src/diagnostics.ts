@@ -11,6 +11,7 @@ import { EigenvalueDecomposition, Matrix } from "ml-matrix";
 import type { CovarianceShape, Diagnostic } from "./types";
 import { EstimationInputError, type MomentAccumulator } from "./moments";
 import { FULL_COVARIANCE_ROWS_PER_COLUMN } from "./estimators";
+import { countOf, formatCount } from "./format-count";
 import { symmetrize } from "./linalg";
 
 /**
@@ -56,7 +57,7 @@ export function diagnoseRowCount(rows: number, n: number, shape: CovarianceShape
   if (!Number.isInteger(rows) || rows < 0) throw new EstimationInputError("rows", "must be an integer ≥ 0", "an integer ≥ 0", rows);
   if (!Number.isInteger(n) || n < 1) throw new EstimationInputError("n", "must be an integer ≥ 1 (the number of model columns)", "an integer ≥ 1", n);
   if (shape !== "full" && shape !== "diagonal") throw new EstimationInputError("shape", 'must be "full" or "diagonal"', '"full" or "diagonal"', shape);
-  const have = `${plural(rows, "row")} for ${plural(n, "column")}`;
+  const have = `${countOf(rows, "row")} for ${countOf(n, "column")}`;
   const advised = FULL_COVARIANCE_ROWS_PER_COLUMN * n;
   if (shape === "full") {
     if (rows < n + 1) {
@@ -64,8 +65,8 @@ export function diagnoseRowCount(rows: number, n: number, shape: CovarianceShape
         {
           code: "too-few-rows",
           severity: "error",
-          message: `${have}: a full covariance needs at least ${plural(n + 1, "row")} (n+1); use --covariance diagonal or more data`,
-          remedy: `use --covariance diagonal, or fit on more data (${groupThousands(advised)} rows for ${FULL_COVARIANCE_ROWS_PER_COLUMN} per column)`,
+          message: `${have}: a full covariance needs at least ${countOf(n + 1, "row")} (n+1); use --covariance diagonal or more data`,
+          remedy: `use --covariance diagonal, or fit on more data (${formatCount(advised)} rows for ${FULL_COVARIANCE_ROWS_PER_COLUMN} per column)`,
         },
       ];
     }
@@ -74,7 +75,7 @@ export function diagnoseRowCount(rows: number, n: number, shape: CovarianceShape
         {
           code: "few-rows",
           severity: "warning",
-          message: `${have}: below the ${groupThousands(advised)} rows (${FULL_COVARIANCE_ROWS_PER_COLUMN} per column) a full covariance is usually fitted on; its ${groupThousands((n * (n + 1)) / 2)} entries will be noisy`,
+          message: `${have}: below the ${formatCount(advised)} rows (${FULL_COVARIANCE_ROWS_PER_COLUMN} per column) a full covariance is usually fitted on; its ${formatCount((n * (n + 1)) / 2)} entries will be noisy`,
           remedy: "use --covariance diagonal or --estimator shrinkage, or fit on more data",
         },
       ];
@@ -125,7 +126,7 @@ export function diagnoseColumns(acc: MomentAccumulator, columns: readonly string
     out.push({
       code: "constant-column",
       severity: "error",
-      message: `column ${name} is constant (${formatNumber(mean)} in all ${groupThousands(m)} rows): its variance is zero, so it carries no evidence and the covariance cannot be inverted`,
+      message: `column ${name} is constant (${formatNumber(mean)} in all ${formatCount(m)} rows): its variance is zero, so it carries no evidence and the covariance cannot be inverted`,
       columns: [name],
       remedy: `drop the feature that produces ${name} from the feature list`,
     });
@@ -286,18 +287,18 @@ export function diagnoseCovariance(
       diagnostics.push({
         code: "singular-covariance",
         severity: "error",
-        message: `the covariance of ${plural(n, "column")} is singular whatever the data: with ${plural(rows ?? 0, "row")} its rank is at most ${Math.max(0, (rows ?? 0) - 1)}`,
+        message: `the covariance of ${countOf(n, "column")} is singular whatever the data: with ${countOf(rows ?? 0, "row")} its rank is at most ${Math.max(0, (rows ?? 0) - 1)}`,
         columns: named.length > 0 ? named : undefined,
         remedy: "use --covariance diagonal, --estimator shrinkage, or fit on more data",
       });
     } else {
       const parts: string[] = [];
-      if (equations.length > 0) parts.push(`${plural(equations.length, "linear dependency", "linear dependencies")} (${equations.join("; ")})`);
-      if (constantNames.length > 0) parts.push(`${plural(constantNames.length, "constant column")} (${constantNames.join(", ")})`);
+      if (equations.length > 0) parts.push(`${countOf(equations.length, "linear dependency", "linear dependencies")} (${equations.join("; ")})`);
+      if (constantNames.length > 0) parts.push(`${countOf(constantNames.length, "constant column")} (${constantNames.join(", ")})`);
       diagnostics.push({
         code: "singular-covariance",
         severity: "error",
-        message: `the covariance of ${plural(n, "column")} is singular: ${plural(nullDirections, "direction")} with no variance — ${parts.join(" and ")}`,
+        message: `the covariance of ${countOf(n, "column")} is singular: ${countOf(nullDirections, "direction")} with no variance — ${parts.join(" and ")}`,
         columns: named,
         remedy: `drop one of the named columns (${named.join(", ")}), or use --estimator shrinkage`,
       });
@@ -503,14 +504,7 @@ function listNames(names: readonly string[], conjunction = "and"): string {
   return `${names.slice(0, -1).join(", ")} ${conjunction} ${names[names.length - 1]}`;
 }
 
-function plural(count: number, singular: string, pluralForm = `${singular}s`): string {
-  return `${groupThousands(count)} ${count === 1 ? singular : pluralForm}`;
-}
 
-/** 48000 → "48,000" (fixed format, independent of the runtime's locale data). */
-function groupThousands(value: number): string {
-  return String(value).replace(/\B(?=(\d{3})+(?!\d))/g, ",");
-}
 
 /** Short human form of a number for messages: 4 significant digits, exponent outside [1e-3, 1e6). */
 function formatNumber(x: number): string {

@@ -17,6 +17,7 @@
  * ({@link FourthMomentAccumulator}).
  */
 import type { CovarianceShape, CovarianceShapeRequest, EstimatorDetails } from "./types";
+import { countOf, formatCount } from "./format-count";
 import { EstimationInputError, MomentAccumulator } from "./moments";
 
 /** A fitted location and scatter. Covariance n×n row-major; `rows` is the m behind it. */
@@ -271,23 +272,16 @@ export function chooseShape(request: CovarianceShapeRequest, rows: number, n: nu
   if (!Number.isInteger(rows) || rows < 0) throw new EstimationInputError("rows", "must be an integer ≥ 0", "an integer ≥ 0", rows);
   if (!Number.isInteger(n) || n < 1) throw new EstimationInputError("n", "must be an integer ≥ 1 (the number of model columns)", "an integer ≥ 1", n);
   const k = FULL_COVARIANCE_ROWS_PER_COLUMN;
-  const rowText = plural(rows, "row");
-  const colText = plural(n, "column");
+  const rowText = countOf(rows, "row");
+  const colText = countOf(n, "column");
   if (request === "auto") {
     if (rows >= k * n) return { shape: "full", reason: `auto chose full: ${rowText} ≥ ${k} × ${colText}` };
     return {
       shape: "diagonal",
-      reason: `auto chose diagonal: ${rowText} < ${k} × ${colText} (${groupThousands(k * n)} rows needed for full)`,
+      reason: `auto chose diagonal: ${rowText} < ${k} × ${colText} (${formatCount(k * n)} rows needed for full)`,
     };
   }
   return { shape: request, reason: `${request} as requested (--covariance ${request}): ${rowText} for ${colText}` };
 }
 
-function plural(count: number, noun: string): string {
-  return `${groupThousands(count)} ${noun}${count === 1 ? "" : "s"}`;
-}
 
-/** 48000 → "48,000" (fixed format, independent of the runtime's locale data). */
-function groupThousands(value: number): string {
-  return String(value).replace(/\B(?=(\d{3})+(?!\d))/g, ",");
-}

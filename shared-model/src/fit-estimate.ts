@@ -6,7 +6,7 @@
 import { buildSegment } from "./artifact";
 import { FitRefusal, diagnoseColumns, diagnoseCovariance } from "./diagnostics";
 import { classicalEstimate, shrinkageEstimate, toDiagonal, type CovarianceEstimate } from "./estimators";
-import { count } from "./fit-report";
+import { formatCount as count } from "./format-count";
 import type { ModelSlot, ModelSlots } from "./fit-slots";
 import { fromRows } from "./linalg";
 import { ExactFitError, robustEstimate } from "./mcd";

@@ -1,5 +1,6 @@
 /** The fit's report for people: what was read, how the model was shaped and estimated, the cutoff. */
 import type { FitOptions } from "./fit-types";
+import { formatCount as count } from "./format-count";
 import type { ModelSlot } from "./fit-slots";
 import type { CovarianceShape, Diagnostic, EstimatorName } from "./types";
 
@@ -82,10 +83,6 @@ function estimatorBrief(slot: ModelSlot): string {
   return "classical";
 }
 
-/** A whole count with thousands separators: `12,000`. */
-export function count(value: number): string {
-  return String(Math.trunc(value)).replace(/\B(?=(\d{3})+(?!\d))/g, ",");
-}
 
 function num(value: number): string {
   if (!Number.isFinite(value)) return String(value);

@@ -11,6 +11,7 @@ export * from "./diagnostics";
 export * from "./artifact";
 export * from "./quadratic-form";
 export * from "./field-path";
+export * from "./format-count";
 export * from "./log-density";
 export * from "./score";
 export * from "./reasons";
