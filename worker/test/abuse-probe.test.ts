@@ -1,8 +1,10 @@
 /**
  * The cases of an abuse probe run against the service as an attacker would, on the real worker
  * (workerd through Miniflare, real local KV, D1 and Queues): what did not hold before and must hold
- * now. Spreadsheet formulas in the CSV export, impossible calendar dates in the queue filters, text
- * that can mislead in notes, and JSON declared in another charset. Each case failed on the code
+ * now. Spreadsheet formulas in the CSV export, impossible calendar dates in the queue filters, an
+ * audit trail that grew without bound and was served whole, text that can mislead in notes, and JSON
+ * declared in another charset. (Durable idempotency and the credential limiter have their own suites:
+ * idempotency.test.ts, access-matrix.test.ts.) Each case failed on the code
  * before the fix. docs/reliability.md lists what the probe tried and what held.
  */
 import { mkdtemp, writeFile } from "node:fs/promises";
@@ -11,7 +13,8 @@ import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { parseCsvChunks } from "../../cli/csv";
 import { readLabels } from "../../cli/labels";
-import type { ItemDetail, QueuePage } from "../src/review/contract";
+import type { EventPage, ItemDetail, QueuePage } from "../src/review/contract";
+import { DECISION_CHANGE_LIMIT } from "../src/review/settings";
 import { fitShopModel, SHOP_FEATURES, UNUSUAL_PAYMENT } from "./fixtures";
 import { eventually, makeTokens, startWorker, type D1Like, type RunningWorker } from "./harness";
 
@@ -107,6 +110,75 @@ describe("impossible calendar dates in the queue filters", () => {
   it("still accepts real days, leap days included", async () => {
     expect((await get<QueuePage>("/v1/review/items?from=2024-02-29&to=2026-12-31")).status).toBe(200);
     expect((await get<QueuePage>("/v1/review/items?from=2026-02-28T23:59:59Z")).status).toBe(200);
+  });
+});
+
+describe("an item's audit trail", () => {
+  it("coalesces claim renewals: renewing a live claim ten times writes one audit row", async () => {
+    const id = await flag("tx-probe-renew");
+    for (let k = 0; k < 10; k++) expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+    const detail = (await get<ItemDetail>(`/v1/review/items/${id}`)).body;
+    expect(detail.events.map((e) => e.action)).toEqual(["claim"]);
+    expect(detail.eventCount).toBe(1);
+  });
+
+  it(`refuses decisions and undos past ${DECISION_CHANGE_LIMIT} by one analyst on one item within the hour with 429 and when to retry`, async () => {
+    const id = await flag("tx-probe-flip");
+    const note = "n".repeat(2000);
+    expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+    for (let k = 0; k < DECISION_CHANGE_LIMIT / 2; k++) {
+      expect((await post(`/v1/review/items/${id}/decision`, { outcome: k % 2 ? "fraud" : "legitimate", note })).status).toBe(200);
+      expect((await post(`/v1/review/items/${id}/undo`)).status).toBe(200);
+    }
+    const res = await worker.post(`/v1/review/items/${id}/decision`, { outcome: "fraud", note }, tokens.analyst);
+    expect(res.status).toBe(429);
+    const retryAfter = Number(res.headers.get("retry-after"));
+    expect(retryAfter).toBeGreaterThan(3500);
+    expect(retryAfter).toBeLessThanOrEqual(3600);
+    const refusal = (await res.json()) as Refusal;
+    expect(refusal.error).toBe("too-many-decision-changes");
+    expect(refusal.problems[0].field).toBe("id");
+    expect(refusal.problems[0].rule).toMatch(/^you have decided or undone on item \d+ 10 times in the last 60 minutes \(at most 10\); retry after \d+ s \(at \d{4}-/);
+    expect((await post(`/v1/review/items/${id}/undo`)).status).toBe(429);
+    const detail = (await get<ItemDetail>(`/v1/review/items/${id}`)).body;
+    expect(detail.eventCount).toBe(1 + DECISION_CHANGE_LIMIT);
+    // The payment view serves the newest 20 events, not the whole trail.
+    expect(JSON.stringify(detail).length).toBeLessThan(60_000);
+  });
+
+  it("serves the trail in pages, newest first, with the count, and every event exactly once", async () => {
+    const id = await flag("tx-probe-pages");
+    for (let k = 0; k < 26; k++) {
+      expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
+      expect((await post(`/v1/review/items/${id}/release`)).status).toBe(200);
+    }
+    const detail = (await get<ItemDetail>(`/v1/review/items/${id}`)).body;
+    expect(detail.eventCount).toBe(52);
+    expect(detail.events).toHaveLength(20);
+    expect(detail.events[0].action).toBe("release");
+    const seen = detail.events.map((e) => e.id);
+    let before = detail.eventsNextBefore;
+    while (before !== null) {
+      const page = await get<EventPage>(`/v1/review/items/${id}/events?before=${before}&limit=15`);
+      expect(page.status).toBe(200);
+      expect(page.body.count).toBe(52);
+      seen.push(...page.body.events.map((e) => e.id));
+      before = page.body.nextBefore;
+    }
+    expect(seen).toHaveLength(52);
+    expect(seen).toEqual([...seen].sort((a, b) => b - a));
+    expect(new Set(seen).size).toBe(52);
+    for (const [query, field] of [
+      ["limit=0", "limit"],
+      ["limit=101", "limit"],
+      ["before=abc", "before"],
+      ["page=2", "page"],
+    ] as const) {
+      const refused = await get<Refusal>(`/v1/review/items/${id}/events?${query}`);
+      expect(refused.status, query).toBe(400);
+      expect(refused.body.problems[0].field).toBe(field);
+    }
+    expect((await get<Refusal>("/v1/review/items/99999999/events")).status).toBe(404);
   });
 });
 

@@ -52,6 +52,7 @@ const MATRIX: Record<string, MatrixRow> = {
   "GET /v1/review/facets": { allowed: ["analyst", "admin"] },
   "GET /v1/review/summary": { allowed: ["analyst", "admin"] },
   "GET /v1/review/items/:id": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999" },
+  "GET /v1/review/items/:id/events": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/events" },
   "POST /v1/review/items/:id/claim": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/claim", body: {} },
   "POST /v1/review/items/:id/release": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/release", body: {} },
   "POST /v1/review/items/:id/undo": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/undo", body: {} },

@@ -73,7 +73,7 @@ describe("review decisions under faults", () => {
   };
   const eventsOf = async (id: number): Promise<AuditEvent[]> => {
     const response = await worker.fetch(`/v1/review/items/${id}`, { token: tokens.analyst });
-    return ((await response.json()) as ItemDetail).events;
+    return ((await response.json()) as ItemDetail).events.slice().reverse();
   };
 
   test("D1 failing during a decision answers a clear retryable 503 and writes neither the decision nor its audit row", async () => {

@@ -174,6 +174,14 @@ describe("fuzzing the review API and the public routes", { timeout: 600_000 }, (
     await fuzzEndpoint(worker, "GET /v1/review/items/{id}", idRequests("GET", "", worker.tokens.analyst));
   });
 
+  test("GET /v1/review/items/{id}/events refuses malformed and unknown ids and every broken page query", async () => {
+    const pages = queryRequests("/v1/review/items/1/events", ["before", "limit"], worker.tokens.analyst, fc.constantFrom<[string, string]>(["limit", "5"]));
+    const badBefore = fc
+      .oneof(fc.constantFrom("0", "-1", "01", "1.5", "1e3", "99999999999999999", ""), hostileString.filter((v) => !/^[1-9]\d{0,15}$/.test(v)))
+      .map((v): FuzzRequest => ({ method: "GET", path: `/v1/review/items/1/events${queryString([["before", v]])}`, headers: jsonHeaders(worker.tokens.analyst), broke: "before" }));
+    await fuzzEndpoint(worker, "GET /v1/review/items/{id}/events", fc.oneof(idRequests("GET", "/events", worker.tokens.analyst), pages, badBefore));
+  });
+
   for (const action of ["claim", "release", "undo"]) {
     test(`POST /v1/review/items/{id}/${action} refuses malformed and unknown ids`, async () => {
       await fuzzEndpoint(worker, `POST /v1/review/items/{id}/${action}`, idRequests("POST", `/${action}`, worker.tokens.analyst));

@@ -6,6 +6,7 @@
 import type {
   ActionResult,
   DaySummary,
+  EventPage,
   Facets,
   ItemDetail,
   Outcome,
@@ -137,6 +138,7 @@ export const countItems = (q: Omit<ListQuery, "state" | "sort" | "direction" | "
     to: q.to,
   });
 export const getItem = (id: number): Promise<ItemDetail> => send("GET", `/v1/review/items/${id}`);
+export const listEvents = (id: number, before: number, limit = 50): Promise<EventPage> => send("GET", `/v1/review/items/${id}/events`, undefined, { before, limit });
 export const claimItem = (id: number): Promise<ActionResult> => send("POST", `/v1/review/items/${id}/claim`, {});
 export const releaseItem = (id: number): Promise<ActionResult> => send("POST", `/v1/review/items/${id}/release`, {});
 export const decideItem = (id: number, outcome: Outcome, note?: string): Promise<ActionResult> =>

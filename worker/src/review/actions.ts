@@ -6,11 +6,17 @@
  * state change without its audit row and no audit row without its change. Two analysts racing for
  * one item are serialised by D1; the second finds the condition false and gets a 409 naming the
  * holder.
+ *
+ * Two bounds keep one item's trail from growing without limit: renewing a live claim of your own
+ * extends it without a new audit row (the row of the claim already says who holds the item), and
+ * one analyst may decide or undo on one item at most {@link DECISION_CHANGE_LIMIT} times within
+ * {@link DECISION_CHANGE_WINDOW_MS}; past that the change is refused with 429 and the time it may
+ * be retried (no state change, no audit row).
  */
 import type { Env, Problem } from "../env";
 import type { ClaimView, Outcome } from "./contract";
 import { STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
-import { CLAIM_TTL_MS, UNDO_WINDOW_MS } from "./settings";
+import { CLAIM_TTL_MS, DECISION_CHANGE_LIMIT, DECISION_CHANGE_WINDOW_MS, UNDO_WINDOW_MS } from "./settings";
 
 /** Who acts, and when. */
 export interface Actor {
@@ -21,7 +27,7 @@ export interface Actor {
 
 export type ActionResult =
   | { ok: true; row: StatusRow }
-  | { ok: false; status: 404 | 409; error: string; problems: Problem[]; claim?: ClaimView };
+  | { ok: false; status: 404 | 409 | 429; error: string; problems: Problem[]; claim?: ClaimView; retryAfterSeconds?: number };
 
 const EVENT_COLUMNS = "(item_id, at, actor, action, from_outcome, to_outcome, note, model_version)";
 const LIVE_CLAIM_BY_OTHER = (row: StatusRow, actor: Actor) =>
@@ -30,6 +36,7 @@ const LIVE_CLAIM_BY_OTHER = (row: StatusRow, actor: Actor) =>
 /**
  * Runs one change: `event` and `update` must both be guarded by the same `condition` (which uses
  * ?1 = item id, ?2 = now ms, ?3 = user); the remaining parameters are shared by both.
+ * `eventOnlyIf` narrows the audit row further (a change that needs no row of its own).
  */
 async function change(
   env: Pick<Env, "DB">,
@@ -39,9 +46,10 @@ async function change(
   event: string,
   update: string,
   extra: unknown[],
+  eventOnlyIf = "1",
 ): Promise<{ changed: boolean; row: StatusRow | null }> {
   const params = [id, actor.nowMs, actor.user, ...extra];
-  const insertSql = `INSERT INTO review_events ${EVENT_COLUMNS} ${event} FROM review_status WHERE ${condition}`;
+  const insertSql = `INSERT INTO review_events ${EVENT_COLUMNS} ${event} FROM review_status WHERE ${condition} AND ${eventOnlyIf}`;
   const updateSql = `UPDATE review_status SET ${update} WHERE ${condition}`;
   const [, updated, read] = await env.DB.batch([
     env.DB.prepare(insertSql).bind(...params.slice(0, highestParameter(insertSql))),
@@ -66,6 +74,8 @@ export async function claimItem(env: Pick<Env, "DB">, id: number, actor: Actor):
     "SELECT item_id, ?4, ?3, 'claim', NULL, NULL, NULL, model_version",
     "claimed_by = ?3, claim_expires_ms = ?5",
     [atIso, actor.nowMs + CLAIM_TTL_MS],
+    // A renewal of one's own live claim writes no row (the statement sees the line before the update).
+    "NOT coalesce(claimed_by = ?3 AND claim_expires_ms > ?2, 0)",
   );
   if (changed && row) return { ok: true, row };
   return refusal(id, row, actor, "claim");
@@ -92,6 +102,8 @@ export async function releaseItem(env: Pick<Env, "DB">, id: number, actor: Actor
  * any) is kept for UNDO_WINDOW_MS so its author can restore it; the audit row carries from → to.
  */
 export async function decideItem(env: Pick<Env, "DB">, id: number, actor: Actor, outcome: Outcome, note: string | null): Promise<ActionResult> {
+  const limited = await decisionChangeLimit(env, id, actor);
+  if (limited) return limited;
   const atIso = new Date(actor.nowMs).toISOString();
   const { changed, row } = await change(
     env,
@@ -114,6 +126,8 @@ export async function decideItem(env: Pick<Env, "DB">, id: number, actor: Actor,
  * decision. Refused when someone else has claimed it since.
  */
 export async function undoDecision(env: Pick<Env, "DB">, id: number, actor: Actor): Promise<ActionResult> {
+  const limited = await decisionChangeLimit(env, id, actor);
+  if (limited) return limited;
   const atIso = new Date(actor.nowMs).toISOString();
   const { changed, row } = await change(
     env,
@@ -129,6 +143,38 @@ export async function undoDecision(env: Pick<Env, "DB">, id: number, actor: Acto
   );
   if (changed && row) return { ok: true, row };
   return refusal(id, row, actor, "undo");
+}
+
+/**
+ * The 429 refusal when the actor has decided or undone on this item DECISION_CHANGE_LIMIT times
+ * within the window, else null. Read before the change: two changes of one analyst on one item
+ * cannot both pass the claim condition, so the bound holds without a lock.
+ */
+async function decisionChangeLimit(env: Pick<Env, "DB">, id: number, actor: Actor): Promise<ActionResult | null> {
+  const since = new Date(actor.nowMs - DECISION_CHANGE_WINDOW_MS).toISOString();
+  const row = await env.DB.prepare(
+    "SELECT COUNT(*) AS n, MIN(at) AS oldest FROM (SELECT at FROM review_events INDEXED BY review_events_by_actor " +
+      "WHERE item_id = ?1 AND actor = ?2 AND action IN ('decide', 'undo') AND at > ?3 ORDER BY at DESC LIMIT ?4)",
+  )
+    .bind(id, actor.user, since, DECISION_CHANGE_LIMIT)
+    .first<{ n: number; oldest: string | null }>();
+  if (!row || row.n < DECISION_CHANGE_LIMIT || row.oldest === null) return null;
+  const freeAtMs = Date.parse(row.oldest) + DECISION_CHANGE_WINDOW_MS;
+  const retryAfterSeconds = Math.max(1, Math.ceil((freeAtMs - actor.nowMs) / 1000));
+  return {
+    ok: false,
+    status: 429,
+    error: "too-many-decision-changes",
+    problems: [
+      {
+        field: "id",
+        rule:
+          `you have decided or undone on item ${id} ${row.n} times in the last ${DECISION_CHANGE_WINDOW_MS / 60_000} minutes (at most ${DECISION_CHANGE_LIMIT}); ` +
+          `retry after ${retryAfterSeconds} s (at ${new Date(freeAtMs).toISOString()}), or ask another analyst to review it`,
+      },
+    ],
+    retryAfterSeconds,
+  };
 }
 
 /** D1 refuses more bound values than the statement's highest `?N`; unused lower numbers are fine. */

@@ -155,11 +155,25 @@ export interface ItemDetail {
   /** Why `residuals` or `pair` is missing, in plain words; null when both are present. */
   evidenceGap: string | null;
   history: HistoryRow[];
+  /** The newest audit events (at most 20), newest first; older ones from GET /v1/review/items/:id/events. */
   events: AuditEvent[];
+  /** Every audit event of the item. */
+  eventCount: number;
+  /** `before` for the next, older page of events, or null when `events` holds them all. */
+  eventsNextBefore: number | null;
   /** Repeats of this transaction id with other content (newest first, at most 20). */
   conflicts: ConflictView[];
   /** Whether the caller may still undo their latest decision on this item. */
   undoableUntil: string | null;
+}
+
+/** GET /v1/review/items/:id/events: a page of the audit trail, newest first. */
+export interface EventPage {
+  events: AuditEvent[];
+  /** Every audit event of the item. */
+  count: number;
+  /** `before` for the next, older page, or null on the last page. */
+  nextBefore: number | null;
 }
 
 /** Result of claim, release, decision and undo: the item's new queue line. */

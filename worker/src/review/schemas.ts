@@ -4,7 +4,7 @@
  */
 import { z } from "zod";
 import { misleadingCharacter, NOTE_TEXT_RULE } from "./note-text";
-import { MAX_NOTE_LENGTH } from "./settings";
+import { EVENT_PAGE, MAX_EVENT_PAGE, MAX_NOTE_LENGTH } from "./settings";
 
 const DATE = /^\d{4}-\d{2}-\d{2}$/;
 const DATE_PREFIX = /^(\d{4})-(\d{2})-(\d{2})/;
@@ -65,6 +65,22 @@ export const exportQuerySchema = z.strictObject({
   modelVersion: shortText(128).optional(),
 });
 
+/** GET /v1/review/items/:id/events: `before` (an event id from the previous page) and `limit`. */
+export const eventsQuerySchema = z.strictObject({
+  before: z
+    .string()
+    .regex(/^[1-9]\d{0,15}$/, { error: "must be a positive whole number (nextBefore of the previous page)" })
+    .transform(Number)
+    .optional(),
+  limit: z
+    .string()
+    .regex(/^\d{1,3}$/, { error: `must be a whole number from 1 to ${MAX_EVENT_PAGE}` })
+    .transform(Number)
+    .refine((n) => n >= 1 && n <= MAX_EVENT_PAGE, { error: `must be a whole number from 1 to ${MAX_EVENT_PAGE}` })
+    .default(EVENT_PAGE),
+});
+
+export const EVENTS_QUERY_KEYS = Object.keys(eventsQuerySchema.shape);
 export const LIST_QUERY_KEYS = Object.keys(listQuerySchema.shape);
 export const COUNTS_QUERY_KEYS = Object.keys(countsQuerySchema.shape);
 export const EXPORT_QUERY_KEYS = Object.keys(exportQuerySchema.shape);

@@ -9,6 +9,13 @@ export const CLAIM_TTL_MS = 15 * 60 * 1000;
 export const UNDO_WINDOW_MS = 5 * 60 * 1000;
 /** Longest note on a decision, in UTF-16 code units (JavaScript string length). */
 export const MAX_NOTE_LENGTH = 2000;
+/** Decisions and undos one analyst may make on one item within DECISION_CHANGE_WINDOW_MS. */
+export const DECISION_CHANGE_LIMIT = 10;
+/** The sliding window of DECISION_CHANGE_LIMIT: one hour. */
+export const DECISION_CHANGE_WINDOW_MS = 60 * 60 * 1000;
+/** Audit events on the payment view's first page, and the most one page of the trail may hold. */
+export const EVENT_PAGE = 20;
+export const MAX_EVENT_PAGE = 100;
 /** Lines of account history on the payment view. */
 export const HISTORY_LIMIT = 10;
 

@@ -18,7 +18,7 @@ import {
   scoreRequestSchema,
   shadowRequestSchema,
 } from "./schemas";
-import { countsQuerySchema, decisionBodySchema, exportQuerySchema, listQuerySchema } from "../review/schemas";
+import { countsQuerySchema, decisionBodySchema, eventsQuerySchema, exportQuerySchema, listQuerySchema } from "../review/schemas";
 import { modelQuerySchema, operatingQuerySchema, publishCutoffSchema, shadowQuerySchema, windowQuerySchema } from "../insights/schemas";
 
 type Schema = z.ZodType;
@@ -204,20 +204,35 @@ export function openApiDocument() {
       "/v1/review/summary": READ_ONLY("Today's figures against the daily capacity", "Roles analyst, admin."),
       "/v1/review/items/{id}": {
         get: operation("One item with its evidence", {
-          description: "Roles analyst, admin. Reasons, the pair plot's marginal Gaussian, the account's recent flags and the audit trail.",
+          description:
+            "Roles analyst, admin. Reasons, the pair plot's marginal Gaussian, the account's recent flags, the newest 20 audit events (with the count and the cursor for older ones) and conflicting repeats of the transaction id.",
           parameters: [itemParameter],
           responses: { "200": { description: "The item and its evidence.", ...ANY_OBJECT }, ...AUTH_ERRORS, "404": error("No such item.") },
         }),
       },
+      "/v1/review/items/{id}/events": {
+        get: operation("A page of an item's audit trail", {
+          description: "Roles analyst, admin. Newest first, `limit` (1–100, default 20) events with an id below `before`; `{ events, count, nextBefore }`.",
+          parameters: [itemParameter, ...queryParameters(eventsQuerySchema)],
+          responses: { "200": { description: "The page.", ...ANY_OBJECT }, "400": error("A malformed id or query."), ...AUTH_ERRORS, "404": error("No such item.") },
+        }),
+      },
       "/v1/review/items/{id}/claim": ITEM_ACTION("Take an item", "Roles analyst, admin. A claim lasts 15 minutes; the loser of a race gets 409 naming the holder."),
       "/v1/review/items/{id}/release": ITEM_ACTION("Give a claimed item back", "Roles analyst, admin. Only the holder may release."),
-      "/v1/review/items/{id}/undo": ITEM_ACTION("Undo your last decision", "Roles analyst, admin. Within 5 minutes; audited."),
+      "/v1/review/items/{id}/undo": ITEM_ACTION("Undo your last decision", "Roles analyst, admin. Within 5 minutes; audited; 429 with Retry-After past ten decisions or undos of yours on the item within the hour."),
       "/v1/review/items/{id}/decision": {
         post: operation("Confirm as fraud or dismiss as legitimate", {
           description: "Roles analyst, admin. Needs your live claim; every change is appended to the audit trail.",
           parameters: [itemParameter],
           requestBody: { required: true, ...json("DecisionRequest") },
-          responses: { "200": { description: "The item after the decision.", ...ANY_OBJECT }, ...BODY_ERRORS, ...AUTH_ERRORS, "404": error("No such item."), "409": error("No live claim of yours on the item.") },
+          responses: {
+            "200": { description: "The item after the decision.", ...ANY_OBJECT },
+            ...BODY_ERRORS,
+            ...AUTH_ERRORS,
+            "404": error("No such item."),
+            "409": error("No live claim of yours on the item."),
+            "429": error("Ten decisions or undos of yours on this item within the hour; Retry-After says when."),
+          },
         }),
       },
       "/v1/review/export": {

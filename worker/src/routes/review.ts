@@ -5,10 +5,12 @@
  * - GET  /items                   a page of the queue (filters, order, keyset cursor) and counts per state
  * - GET  /counts                  counts per state under filters
  * - GET  /facets                  segments and model versions for the filter menus
- * - GET  /items/:id               the payment, its evidence, the account's recent flags, the audit trail
+ * - GET  /items/:id               the payment, its evidence, the account's recent flags, the newest audit events
+ * - GET  /items/:id/events        older audit events, a page at a time (newest first, with the count)
  * - POST /items/:id/claim         take the item for 15 minutes (409 names the holder)
  * - POST /items/:id/release       hand it back
  * - POST /items/:id/decision      { outcome: "fraud" | "legitimate", note? } under your live claim
+ *                                  (429 past 10 decisions or undos of yours on the item within an hour)
  * - POST /items/:id/undo          revert your last decision within 5 minutes
  * - GET  /summary                 today's figures against ANALYST_DAILY_CAPACITY
  * - GET  /export?format=csv|ndjson  the labelled set
@@ -26,13 +28,15 @@ import type { ActionResult, ItemDetail, QueuePage, SortDirection, SortKey, WhoAm
 import { decodeCursor } from "../review/cursor";
 import { evidenceFor } from "../review/evidence";
 import { ExportColumnClash, exportFeatureColumns, exportStream } from "../review/export";
-import { readItem } from "../review/item-store";
+import { readEvents, readItem } from "../review/item-store";
 import { countStates, daySummary, listFacets, listPage, toQueueRow, type StatusRow } from "../review/queue-store";
 import {
   COUNTS_QUERY_KEYS,
   countsQuerySchema,
   DECISION_BODY_KEYS,
   decisionBodySchema,
+  EVENTS_QUERY_KEYS,
+  eventsQuerySchema,
   EXPORT_QUERY_KEYS,
   exportQuerySchema,
   LIST_QUERY_KEYS,
@@ -127,11 +131,23 @@ reviewRoutes.get("/items/:id", async (c) => {
     pair: evidence.pair,
     evidenceGap: evidence.gap,
     history: stored.history,
-    events: stored.events,
+    events: stored.trail.events,
+    eventCount: stored.trail.count,
+    eventsNextBefore: stored.trail.nextBefore,
     conflicts: stored.conflicts,
     undoableUntil: undoableUntil(stored.status, c.get("principal").user, now),
   };
   return c.json(body);
+});
+
+reviewRoutes.get("/items/:id/events", async (c) => {
+  const id = itemId(c);
+  if (id instanceof Response) return id;
+  const query = parseQuery(c, eventsQuerySchema, EVENTS_QUERY_KEYS);
+  if (query instanceof Response) return query;
+  const page = await readEvents(c.env, id, query.before ?? null, query.limit);
+  if (!page) return problemResponse(c, 404, "not-found", [{ field: "id", rule: `no review item has id ${id}` }]);
+  return c.json(page);
 });
 
 reviewRoutes.post("/items/:id/claim", (c) => act(c, (env, id, actor) => claimItem(env, id, actor)));
@@ -190,6 +206,7 @@ async function act(c: ReviewContext, run: (env: AppEnv["Bindings"], id: number, 
   if (!result.ok) {
     const body: Record<string, unknown> = { error: result.error, problems: result.problems };
     if (result.claim) body.claim = result.claim;
+    if (result.retryAfterSeconds !== undefined) c.header("retry-after", String(result.retryAfterSeconds));
     return c.json(body, result.status);
   }
   const answer: ActionResult = { item: toQueueRow(result.row, actor.nowMs), undoableUntil: undoableUntil(result.row, user, actor.nowMs) };
