@@ -109,7 +109,9 @@ describe("the model page in Chromium", () => {
     await until(async () => (await text("expected-flags")) !== before.flags, "the expected flags to change");
     const lower = { flags: await text("expected-flags"), precision: await text("precision"), recall: await text("recall") };
     expect(Number(lower.flags.replace(/,/g, ""))).toBeGreaterThan(Number(before.flags.replace(/,/g, "")));
-    expect(lower.recall).not.toBe(before.recall);
+    // Recall can only rise when the cutoff is lowered (here every labelled fraud was already
+    // flagged, so it may stay where it was, interval included).
+    expect(Number.parseFloat(lower.recall)).toBeGreaterThanOrEqual(Number.parseFloat(before.recall));
     expect(lower.precision).not.toBe(before.precision);
     // The slider moves the same figures.
     await page.getByTestId("cutoff-slider").fill(String(Math.round(live * 0.8)));

@@ -71,7 +71,7 @@ describe("the weekly report's figures", () => {
     expect(reasons[0]).toBe("amount shifted (PSI 0.310 ≥ 0.25)");
     expect(reasons[1]).toContain("above the expected 25.00 %");
     expect(reasons[1]).toContain("95.00 % interval");
-    expect(reasons[1]).toContain("Bonferroni-corrected for 1 daily tests");
+    expect(reasons[1]).toContain("one day tested, no correction needed");
     expect(reasons[2]).toBe("the model is 35 days old (refit after 28)");
     expect(refitReasons([{ ...drift[0], psi: 0.05, level: "stable" }], dayFlagRates([{ day: "d", scored: 1000, flagged: 250 }], 0.25), 3, 28)).toEqual([]);
   });

@@ -62,12 +62,16 @@ export function refitReasons(drift: readonly DriftEntry[], rates: readonly DayFl
     if (check && check.verdict !== "as-expected") {
       reasons.push(
         `flag rate on ${day.day} is ${check.verdict} the expected ${pct(check.expectedRate)} (observed ${pct(check.observedRate)}, ` +
-          `${pct(check.confidence)} interval ${pct(check.low)}–${pct(check.high)}, Bonferroni-corrected for ${rates.filter((r) => r.check).length} daily tests)`,
+          `${pct(check.confidence)} interval ${pct(check.low)}–${pct(check.high)}, ${correctionText(rates.filter((r) => r.check).length)})`,
       );
     }
   }
   if (ageDays > refitAfterDays) reasons.push(`the model is ${Math.floor(ageDays)} days old (refit after ${refitAfterDays})`);
   return reasons;
+}
+
+function correctionText(tests: number): string {
+  return tests === 1 ? "one day tested, no correction needed" : `Bonferroni-corrected for ${tests} daily tests`;
 }
 
 function pct(share: number): string {
