@@ -18,7 +18,7 @@
  */
 import type { CovarianceShape, CovarianceShapeRequest, EstimatorDetails } from "./types";
 import { countOf, formatCount } from "./format-count";
-import { EstimationInputError, MomentAccumulator } from "./moments";
+import { checkRowBlock, EstimationInputError, MomentAccumulator } from "./moments";
 
 /** A fitted location and scatter. Covariance n×n row-major; `rows` is the m behind it. */
 export interface CovarianceEstimate {
@@ -104,10 +104,7 @@ export class FourthMomentAccumulator {
    * @throws {EstimationInputError} when the length is not m·n or a value is not finite
    */
   pushRows(rows: ArrayLike<number>, m: number): this {
-    if (!Number.isInteger(m) || m < 0) throw new EstimationInputError("m", "must be an integer ≥ 0 (the number of rows)", "an integer ≥ 0", m);
-    if (rows.length !== m * this.n) {
-      throw new EstimationInputError("rows", `must hold m × n = ${m} × ${this.n} values`, m * this.n, rows.length);
-    }
+    checkRowBlock(rows, m, this.n);
     for (let r = 0; r < m; r++) this.pushAt(rows, r * this.n, r);
     return this;
   }

@@ -60,6 +60,20 @@ export interface MomentSnapshot {
 export type CovarianceDenominator = "m" | "m-1";
 
 /**
+ * Checks a block of m rows stored row-major for an accumulator of n columns: m a whole number
+ * ≥ 0 and exactly m·n values.
+ *
+ * @throws {EstimationInputError} naming `m` or `rows` and what was expected.
+ * @example checkRowBlock(Float64Array.of(1, 2, 3, 4), 2, 2) // passes
+ */
+export function checkRowBlock(rows: ArrayLike<number>, m: number, n: number): void {
+  if (!Number.isInteger(m) || m < 0) throw new EstimationInputError("m", "must be an integer ≥ 0 (the number of rows)", "an integer ≥ 0", m);
+  if (rows.length !== m * n) {
+    throw new EstimationInputError("rows", `must hold m × n = ${m} × ${n} values`, m * n, rows.length);
+  }
+}
+
+/**
  * One-pass accumulator of count, mean and co-moment matrix (Welford 1962), mergeable across shards
  * (Chan, Golub & LeVeque 1979). `push` allocates nothing.
  *
@@ -143,10 +157,7 @@ export class MomentAccumulator {
    * @example acc.pushRows(Float64Array.of(1, 2, 3, 4), 2)
    */
   pushRows(rows: ArrayLike<number>, m: number): this {
-    if (!Number.isInteger(m) || m < 0) throw new EstimationInputError("m", "must be an integer ≥ 0 (the number of rows)", "an integer ≥ 0", m);
-    if (rows.length !== m * this.n) {
-      throw new EstimationInputError("rows", `must hold m × n = ${m} × ${this.n} values`, m * this.n, rows.length);
-    }
+    checkRowBlock(rows, m, this.n);
     for (let r = 0; r < m; r++) this.pushAt(rows, r * this.n, r);
     return this;
   }
