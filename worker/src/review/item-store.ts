@@ -4,7 +4,7 @@
  */
 import type { Reason } from "../../../shared-model/src";
 import type { Env } from "../env";
-import type { AuditAction, AuditEvent, ConflictView, EventPage, HistoryRow, Outcome } from "./contract";
+import type { AuditAction, ConflictView, EventPage, HistoryRow, Outcome } from "./contract";
 import { STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
 import { EVENT_PAGE, HISTORY_LIMIT } from "./settings";
 
