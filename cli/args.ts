@@ -4,22 +4,11 @@
  * by name; values are checked against the option's kind, choices and range, so a command receives
  * only well-formed input.
  */
+import { InputError } from "../shared-model/src/input-error";
 import { parseStrictNumber } from "./numbers";
 
 /** A usage mistake on the command line; the CLI prints it with a pointer to `--help` and exits 2. */
-export class UsageError extends Error {
-  /** The option or argument at fault, e.g. `--cutoff-rate` or `<ledger.csv>`. */
-  readonly field: string;
-  /** The rule that was broken. */
-  readonly rule: string;
-
-  constructor(field: string, rule: string, message?: string) {
-    super(message ?? `${field}: ${rule}`);
-    this.name = "UsageError";
-    this.field = field;
-    this.rule = rule;
-  }
-}
+export class UsageError extends InputError {}
 
 /** How an option's value is read. */
 export type OptionKind = "string" | "number" | "integer" | "switch";

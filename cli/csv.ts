@@ -7,32 +7,30 @@
  * quotes, and strips a leading UTF-8 byte-order mark. Entirely empty lines between records are
  * skipped. Every error names the file, the 1-based physical line and, where known, the column.
  */
+import { InputError } from "../shared-model/src/input-error";
 import { createReadStream } from "node:fs";
 import { quoteCsvCell } from "../shared-model/src/spreadsheet-cell";
 import { whyNotANumber } from "./numbers";
 
 /** A problem in a CSV file, located by file, physical line (1-based) and column name. */
-export class CsvError extends Error {
+export class CsvError extends InputError {
   /** File as the user named it. */
   readonly file: string;
   /** 1-based physical line of the problem, or `null` when it concerns the whole file. */
   readonly line: number | null;
   /** Column name (or `cell N` before the header is known), or `null`. */
   readonly column: string | null;
-  /** The rule that was broken, in plain words. */
-  readonly rule: string;
 
   /**
    * @param message full sentence shown to the user; when omitted it is built from the parts as
    *   "<file> line <line>, column '<column>': <rule>".
    */
   constructor(file: string, line: number | null, column: string | null, rule: string, message?: string) {
-    super(message ?? locate(file, line, column) + rule);
-    this.name = "CsvError";
+    // The field is the column when there is one, else the file.
+    super(column ?? file, rule, message ?? locate(file, line, column) + rule);
     this.file = file;
     this.line = line;
     this.column = column;
-    this.rule = rule;
   }
 }
 

@@ -6,10 +6,9 @@
 import { ArtifactError } from "../shared-model/src/artifact";
 import { FitRefusal } from "../shared-model/src/diagnostics";
 import { FeatureSpecError } from "../shared-model/src/features";
-import { FitInputError } from "../shared-model/src/fit";
+import { InputError } from "../shared-model/src/input-error";
 import type { Diagnostic } from "../shared-model/src/types";
 import { UsageError } from "./args";
-import { CsvError } from "./csv";
 import { writeLines, type CommandIO } from "./io";
 
 /** Exit code: the command did what was asked. */
@@ -22,40 +21,20 @@ export const EXIT_USAGE = 2;
 export const EXIT_INTERNAL = 3;
 
 /**
- * A problem with something the user supplied that is not a CSV cell: a file that is missing or is
- * not JSON, a spec that breaks a rule, an output path that cannot be written.
+ * A problem with something the user supplied (a file that is missing or is not JSON, a spec that
+ * breaks a rule, an output path that cannot be written): the shared base of every input error,
+ * re-exported here for the commands.
  */
-export class InputError extends Error {
-  /** The option or file at fault, e.g. `--spec` or `model.json`. */
-  readonly field: string;
-  readonly rule: string;
-  constructor(field: string, rule: string, message?: string) {
-    super(message ?? `${field}: ${rule}`);
-    this.name = "InputError";
-    this.field = field;
-    this.rule = rule;
-  }
-}
+export { InputError };
 
 /**
  * Prints `error` for people on stderr and returns the exit code.
  * @param command the command as typed, e.g. `isodense fit`, used as the message prefix
  */
 export function reportFailure(error: unknown, io: CommandIO, command: string): number {
-  if (error instanceof UsageError) {
-    writeLines(io.stderr, [`${command}: ${error.message}`, `run '${command} --help' for usage`]);
-    return EXIT_USAGE;
-  }
-  if (error instanceof CsvError || error instanceof InputError || error instanceof FitInputError) {
-    writeLines(io.stderr, [`${command}: ${error.message}`]);
-    return EXIT_USAGE;
-  }
-  if (error instanceof FeatureSpecError) {
-    writeLines(io.stderr, [`${command}: feature spec: ${error.message}`]);
-    return EXIT_USAGE;
-  }
-  if (error instanceof ArtifactError) {
-    writeLines(io.stderr, [`${command}: the model file was refused:`, ...error.problems.map((p) => `  ${p.path}: ${p.rule}`)]);
+  // Every input error (options, files, CSV cells, specs, artifacts, fit/score/tune inputs) is exit 2.
+  if (error instanceof InputError) {
+    writeLines(io.stderr, describeInputError(error, command));
     return EXIT_USAGE;
   }
   if (error instanceof FitRefusal) {
@@ -66,9 +45,17 @@ export function reportFailure(error: unknown, io: CommandIO, command: string): n
     ]);
     return EXIT_REFUSED;
   }
-  const detail = error instanceof Error ? (process.env.ISODENSE_DEBUG ? error.stack ?? error.message : error.message) : String(error);
+  const detail = error instanceof Error ? (process.env.ISODENSE_DEBUG ? (error.stack ?? error.message) : error.message) : String(error);
   writeLines(io.stderr, [`${command}: internal error: ${detail}`, "(set ISODENSE_DEBUG=1 for the stack trace)"]);
   return EXIT_INTERNAL;
+}
+
+/** An input error as lines for people: the message, and what helps with this kind of mistake. */
+function describeInputError(error: InputError, command: string): string[] {
+  if (error instanceof UsageError) return [`${command}: ${error.message}`, `run '${command} --help' for usage`];
+  if (error instanceof FeatureSpecError) return [`${command}: feature spec: ${error.message}`];
+  if (error instanceof ArtifactError) return [`${command}: the model file was refused:`, ...error.problems.map((p) => `  ${p.path}: ${p.rule}`)];
+  return [`${command}: ${error.message}`];
 }
 
 /** A diagnostic as indented lines: severity and message, then the equation and the remedy. */

@@ -140,6 +140,22 @@ describe("isodense refit", () => {
     expect(c.err()).toContain("has no id column to match the labels against; name it with --id-column (columns are: amount, items, channel)");
   });
 
+  it("refuses a labelled set without confirmed fraud before fitting, naming the file and the rule (exit 2)", async () => {
+    const normals = rows.filter((r) => r.kind === "normal").slice(0, 30);
+    await writeFile(
+      p("no-fraud.csv"),
+      ["transactionId,amount,items,channel,outcome,weight", ...normals.map((r) => `${r.id},${r.amount},${r.items},${r.channel},legitimate,1`)].join("\n") + "\n",
+    );
+    // A ledger whose first data row is malformed: had the fit started, its CsvError would be the answer.
+    await writeFile(p("bad-ledger.csv"), ["id,amount,items,channel,label", "ord-1,not-a-number,2,web,"].join("\n") + "\n");
+    const c = captureIO();
+    expect(await refitCommand([p("bad-ledger.csv"), "--labels", p("no-fraud.csv"), "--model", p("live.json"), "--out", p("c-none.json")], c.io)).toBe(2);
+    expect(c.err()).toContain(`${p("no-fraud.csv")}: the labelled set holds no payment confirmed as fraud (30 rows, all legitimate)`);
+    expect(c.err()).not.toContain("internal error");
+    expect(c.err()).not.toContain("bad-ledger.csv");
+    await expect(readFile(p("c-none.json"), "utf8")).rejects.toThrow(/ENOENT/);
+  });
+
   it("matches a tuned live cutoff by the share of training rows it flags, and asks for --cutoff-rate when there is none", async () => {
     // A cutoff set by hand records no flag rate: the candidate flags the share of its own training
     // rows (the 3,000 normal ones) that the live cutoff flags.

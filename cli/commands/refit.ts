@@ -153,6 +153,15 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
       duplicates: "merge-agreeing",
       records: recordsOfModel(live),
     });
+    // The backtest compares live and candidate on the labelled fraud: without any there is nothing
+    // to compare, so say so now rather than after the whole fit.
+    if (labels.fraudCount === 0) {
+      throw new InputError(
+        "--labels",
+        "must hold at least one payment confirmed as fraud",
+        `${labelsPath}: the labelled set holds no payment confirmed as fraud (${labels.rows} rows, all legitimate); the backtest needs at least one — export labels after fraud has been confirmed, or widen the export's time range`,
+      );
+    }
     const confirmedFraud = new Set<string>();
     const dismissed = new Set<string>();
     labels.ids.forEach((id, r) => (labels.fraud[r] === 1 ? confirmedFraud : dismissed).add(id));

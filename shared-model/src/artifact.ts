@@ -6,6 +6,7 @@
  *
  * Matrices are `number[][]` (rows) in JSON and row-major `Float64Array`s everywhere else.
  */
+import { InputError } from "./input-error";
 import { z } from "zod";
 import { chiSquareSurvival } from "./distributions";
 import { formatFieldPath, joinFieldPath } from "./field-path";
@@ -176,7 +177,7 @@ const MAX_PROBLEMS = 200;
  * Thrown by {@link parseArtifact}: lists every problem found, each with its path and rule; the
  * message joins them so a log line alone is enough to act on.
  */
-export class ArtifactError extends Error {
+export class ArtifactError extends InputError {
   readonly problems: ArtifactProblem[];
   constructor(problems: ArtifactProblem[]) {
     const listed =
@@ -186,8 +187,7 @@ export class ArtifactError extends Error {
             { path: "(artifact)", rule: `${problems.length - MAX_PROBLEMS} more problems not listed` },
           ]
         : problems;
-    super(`model artifact refused: ${listed.map((p) => `${p.path}: ${p.rule}`).join("; ")}`);
-    this.name = "ArtifactError";
+    super(listed[0]?.path ?? "(artifact)", listed[0]?.rule ?? "refused", `model artifact refused: ${listed.map((p) => `${p.path}: ${p.rule}`).join("; ")}`);
     this.problems = listed;
   }
 }

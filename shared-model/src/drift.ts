@@ -18,6 +18,7 @@
  * Pure functions over counts, so the worker can accumulate counts per day in D1 and the review app
  * can show the table.
  */
+import { InputError } from "./input-error";
 import { wilsonInterval } from "./intervals";
 import { quantiles } from "./reservoir";
 
@@ -36,16 +37,7 @@ export const PSI_SHIFTED = 0.25;
 export type DriftLevel = "stable" | "watch" | "shifted";
 
 /** A bad argument, naming the field and the rule it broke. */
-export class DriftInputError extends RangeError {
-  readonly field: string;
-  readonly rule: string;
-  constructor(field: string, rule: string) {
-    super(`${field}: ${rule}`);
-    this.name = "DriftInputError";
-    this.field = field;
-    this.rule = rule;
-  }
-}
+export class DriftInputError extends InputError {}
 
 /**
  * The bucket of a value: the number of edges strictly below it (0 … edges.length), i.e. bucket k

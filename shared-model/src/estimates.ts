@@ -27,6 +27,7 @@
  * labels were drawn from). For future traffic the rule's recall and precision are also binomial
  * shares: `future` widens each with the Wilson interval over the decided counts at both ends.
  */
+import { InputError } from "./input-error";
 import { garwoodInterval, wilsonInterval, type Bounds } from "./intervals";
 
 /**
@@ -40,16 +41,7 @@ import { garwoodInterval, wilsonInterval, type Bounds } from "./intervals";
 export const MIN_AUDIT_FRAUDS = 10;
 
 /** A bad argument, naming the field and the rule it broke. */
-export class EstimateInputError extends RangeError {
-  readonly field: string;
-  readonly rule: string;
-  constructor(field: string, rule: string) {
-    super(`${field}: ${rule}`);
-    this.name = "EstimateInputError";
-    this.field = field;
-    this.rule = rule;
-  }
-}
+export class EstimateInputError extends InputError {}
 
 /**
  * An estimated share with its standard error and confidence interval (all null when undefined).

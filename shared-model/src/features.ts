@@ -18,6 +18,7 @@
  * [2] Brent, R. P. (1973) Algorithms for Minimization without Derivatives, Prentice-Hall, ch. 5
  *     (minimisation by golden section and successive parabolic interpolation).
  */
+import { InputError } from "./input-error";
 import { z } from "zod";
 import { formatFieldPath } from "./field-path";
 import type { FeatureDeclaration, FittedFeature, TransformKind } from "./types";
@@ -55,18 +56,13 @@ export interface FeatureSpecProblem {
  * A feature spec that breaks a rule. `field` and `rule` describe the first problem; `problems`
  * lists every problem found, in document order.
  */
-export class FeatureSpecError extends Error {
-  field: string;
-  rule: string;
-  problems: FeatureSpecProblem[];
+export class FeatureSpecError extends InputError {
+  readonly problems: FeatureSpecProblem[];
 
   constructor(problems: FeatureSpecProblem[]) {
     const [first] = problems;
     const more = problems.length > 1 ? ` (and ${problems.length - 1} more: ${problems.slice(1).map((p) => `${p.field} ${p.rule}`).join("; ")})` : "";
-    super(`Invalid feature spec: ${first.field} ${first.rule}${more}`);
-    this.name = "FeatureSpecError";
-    this.field = first.field;
-    this.rule = first.rule;
+    super(first.field, first.rule, `Invalid feature spec: ${first.field} ${first.rule}${more}`);
     this.problems = problems;
   }
 }

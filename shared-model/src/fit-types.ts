@@ -2,6 +2,7 @@
  * The fit's public shapes: the rows it reads, its options, its report, its input error, and the
  * sizes of its samples. Kept apart from the passes so every pass module can import them.
  */
+import { InputError } from "./input-error";
 import type { RecordSpec } from "./records/spec";
 import type { CovarianceShape, CovarianceShapeRequest, Diagnostic, EstimatorName, FeatureDeclaration } from "./types";
 
@@ -84,15 +85,10 @@ export interface FitReport {
 }
 
 /** A bad option or a bad row, named by field and rule; `row` is the 1-based row of the source. */
-export class FitInputError extends Error {
-  readonly field: string;
-  readonly rule: string;
+export class FitInputError extends InputError {
   readonly row: number | null;
   constructor(field: string, rule: string, row: number | null = null) {
-    super(row === null ? `${field}: ${rule}` : `row ${row}, ${field}: ${rule}`);
-    this.name = "FitInputError";
-    this.field = field;
-    this.rule = rule;
+    super(field, rule, row === null ? `${field}: ${rule}` : `row ${row}, ${field}: ${rule}`);
     this.row = row;
   }
 }

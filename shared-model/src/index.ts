@@ -17,6 +17,7 @@ export * from "./score";
 export * from "./reasons";
 export * from "./cutoff";
 export * from "./fit";
+export * from "./input-error";
 export * from "./tuning";
 export * from "./estimates";
 export * from "./drift";

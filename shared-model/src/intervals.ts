@@ -2,19 +2,11 @@
  * Confidence intervals for counts and shares that keep their coverage where the normal
  * approximation fails: a handful of events, or none.
  */
+import { InputError } from "./input-error";
 import { gammaQuantile, normalQuantile } from "./distributions";
 
 /** A bad argument, naming the field and the rule it broke. */
-export class IntervalInputError extends RangeError {
-  readonly field: string;
-  readonly rule: string;
-  constructor(field: string, rule: string) {
-    super(`${field}: ${rule}`);
-    this.name = "IntervalInputError";
-    this.field = field;
-    this.rule = rule;
-  }
-}
+export class IntervalInputError extends InputError {}
 
 /** Lower and upper end of an interval. */
 export interface Bounds {

@@ -14,13 +14,10 @@
  * `covariance("m-1")` = C/(m−1) is the unbiased sample covariance.
  */
 
-/** A bad argument, named by `field` and the `rule` it broke (what was expected and what came). */
-export class EstimationInputError extends Error {
-  /** The argument or property at fault, e.g. `x[2]` or `snapshot.mean`. */
-  readonly field: string;
-  /** The rule it broke, e.g. "must be a finite number". */
-  readonly rule: string;
+import { InputError } from "./input-error";
 
+/** A bad argument, named by `field` and the `rule` it broke (what was expected and what came). */
+export class EstimationInputError extends InputError {
   /**
    * @param field  the argument or property at fault
    * @param rule   the rule it broke
@@ -29,10 +26,7 @@ export class EstimationInputError extends Error {
    */
   constructor(field: string, rule: string, expected?: unknown, actual?: unknown) {
     const detail = expected === undefined ? "" : ` Expected: ${String(expected)}. Actual: ${describe(actual)}.`;
-    super(`${field}: ${rule}.${detail}`);
-    this.name = "EstimationInputError";
-    this.field = field;
-    this.rule = rule;
+    super(field, rule, `${field}: ${rule}.${detail}`);
   }
 }
 

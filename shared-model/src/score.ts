@@ -4,6 +4,7 @@
  * P(χ²ₙ > d²) is the calibrated tail probability (Mahalanobis 1936; the χ² law of d² under the
  * Gaussian, e.g. Johnson & Wichern, Applied Multivariate Statistical Analysis, §4.4).
  */
+import { InputError } from "./input-error";
 import type { ModelArtifact } from "./artifact";
 import { chiSquareSurvival, log10ChiSquareSurvival } from "./distributions";
 import { checkRawValue, transformInto } from "./features";
@@ -33,16 +34,7 @@ export interface CompiledModel {
  * Input error while scoring one payment, naming the field (`features.amount`) and the rule;
  * the worker maps it to a 4xx answer.
  */
-export class ScoreInputError extends RangeError {
-  readonly field: string;
-  readonly rule: string;
-  constructor(field: string, rule: string) {
-    super(`${field}: ${rule}`);
-    this.name = "ScoreInputError";
-    this.field = field;
-    this.rule = rule;
-  }
-}
+export class ScoreInputError extends InputError {}
 
 /**
  * Compiles a verified artifact (from {@link parseArtifact}) for scoring: converts each segment's

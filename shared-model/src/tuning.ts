@@ -12,6 +12,7 @@
  * TP / (TP + FP), recall TP / (TP + FN), F1 = 2·TP / (2·TP + FP + FN) (the harmonic mean of
  * precision and recall; 0 when TP = 0), flag rate (TP + FP) / total weight.
  */
+import { InputError } from "./input-error";
 import { parseArtifact, sealArtifact, type ModelArtifact, type UnsealedArtifact } from "./artifact";
 import { chiSquareSurvival } from "./distributions";
 import { logDensityAt } from "./log-density";
@@ -19,16 +20,7 @@ import { contentVersion } from "./fit";
 
 
 /** A bad argument to a tuning function, naming the field and the rule it broke. */
-export class TuningInputError extends RangeError {
-  readonly field: string;
-  readonly rule: string;
-  constructor(field: string, rule: string) {
-    super(`${field}: ${rule}`);
-    this.name = "TuningInputError";
-    this.field = field;
-    this.rule = rule;
-  }
-}
+export class TuningInputError extends InputError {}
 
 /** The decision at one candidate cutoff, with weighted counts (sums of 1/π). */
 export interface OperatingPoint {

@@ -2,6 +2,7 @@
  * One payment record as the deriver sees it, built from string cells (a CSV row) or a JSON object
  * (the edge's `payment`), with errors that name the field and the rule.
  */
+import { InputError } from "../input-error";
 import { describeReceived } from "../features";
 import type { RecordMapping, RecordSpec } from "./spec";
 import { parseTimestamp } from "./time";
@@ -20,14 +21,9 @@ export interface PaymentRecord {
 }
 
 /** A record field that breaks a rule: which field, and the rule with what came. */
-export class RecordInputError extends Error {
-  readonly field: string;
-  readonly rule: string;
+export class RecordInputError extends InputError {
   constructor(field: string, rule: string) {
-    super(`${field} ${rule}`);
-    this.name = "RecordInputError";
-    this.field = field;
-    this.rule = rule;
+    super(field, rule, `${field} ${rule}`);
   }
 }
 
