@@ -96,6 +96,8 @@ describe("the model page in Chromium", () => {
     expect(drift).toContain("score (d²)");
     expect(drift).toMatch(/stable|watch|shifted/);
     expect(await text("precision")).toMatch(/%/);
+    // Items still waiting for a decision are named, not silently left out.
+    expect(await text("undecided")).toMatch(/^[\d,]+ items still undecided are not counted/);
     await page.getByTestId("shadow-panel").waitFor();
     expect(await text("shadow-agreement")).toMatch(/^\d+\.\d\d % of payments$/);
   });
