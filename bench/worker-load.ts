@@ -13,18 +13,26 @@
  * Each request carries a fresh transactionId, so no answer comes from the idempotency memory.
  * The two routes alternate in short rounds so that changes in the machine's load hit both alike.
  *
+ * A second phase publishes a model fitted from invented payment records (record spec carried in the
+ * artifact) and measures `/v1/score` with the `payment` form against `/v1/echo` given the same
+ * bodies: each request then also derives and records the payment at its account's Durable Object
+ * (2,000 accounts). Targets: payment throughput ≥ 0.8 × echo at 32 connections, median ≤ echo + 2 ms
+ * at 1 connection. It also reports the storage one account's history takes (the Durable Objects'
+ * SQLite files under the local state, and the history JSON itself).
+ *
  * Environment: BENCH_SECONDS (per case, default 10), PORT (default: a free port).
  * Writes bench/results/worker-load.json.
  */
 import { spawn, type ChildProcess } from "node:child_process";
 import { once } from "node:events";
-import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from "node:fs";
+import { mkdirSync, mkdtempSync, readdirSync, rmSync, statSync, writeFileSync } from "node:fs";
 import { cpus, tmpdir } from "node:os";
 import { join } from "node:path";
 import { randomBytes } from "node:crypto";
 import { publishCommand } from "../cli/commands/publish";
 import type { CommandIO } from "../cli/io";
-import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
+import { emptyHistory, fitModel, recordFromFields, recordPayment, type AccountHistory, type FeatureDeclaration, type FitRow } from "../shared-model/src";
+import { fitRecordModel, SHOP_RECORD_SPEC, shopLedger } from "../worker/test/record-fixtures";
 import { autocannon, correlatedGaussian, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
 const seconds = Number(process.env.BENCH_SECONDS ?? 10);
@@ -56,6 +64,8 @@ async function fitBenchModel() {
 
 interface CaseResult {
   route: string;
+  /** What the score requests carried: ready features, or a payment record. */
+  form: "features" | "payment";
   connections: number;
   seconds: number;
   requests: number;
@@ -79,8 +89,28 @@ function nextBody(): string {
   return JSON.stringify({ transactionId: `bench-${runId}-${counter}`, features, accountRef: `acct-${counter % 997}` });
 }
 
+/** Accounts the payment-form bodies spread over (one Durable Object each). */
+const PAYMENT_ACCOUNTS = 2000;
+const paymentAmounts = Array.from({ length: 4096 }, (_, i) => Number((20 + 80 * ((i * 0.618034) % 1)).toFixed(2)));
+/** Every payment-form body sent, for the offline size of the histories it builds. */
+const sentPayments: Record<string, string | number>[] = [];
+
+/** A payment-form body: a fresh payment of one of the accounts, at the present time. */
+function nextPaymentBody(): string {
+  counter++;
+  const payment = {
+    createdAt: new Date().toISOString(),
+    accountRef: `acct-b${counter % PAYMENT_ACCOUNTS}`,
+    channel: counter % 3 === 0 ? "app" : "web",
+    amount: paymentAmounts[counter % paymentAmounts.length],
+    accountCreatedAt: "2025-06-01T00:00:00Z",
+  };
+  sentPayments.push({ paymentId: `bench-${runId}-${counter}`, ...payment });
+  return JSON.stringify({ transactionId: `bench-${runId}-${counter}`, payment });
+}
+
 /** One autocannon run; returns the 2xx response times (ms) and the counts. */
-async function load(url: string, route: string, connections: number, duration: number, token: string) {
+async function load(url: string, route: string, connections: number, duration: number, token: string, body: () => string = nextBody) {
   const times: number[] = [];
   const instance = autocannon({
     url,
@@ -91,7 +121,7 @@ async function load(url: string, route: string, connections: number, duration: n
         method: "POST",
         path: route,
         headers: { "content-type": "application/json", authorization: `Bearer ${token}` },
-        setupRequest: (req) => ({ ...req, body: nextBody() }),
+        setupRequest: (req) => ({ ...req, body: body() }),
       },
     ],
   });
@@ -107,7 +137,15 @@ async function load(url: string, route: string, connections: number, duration: n
  * runs so that drift in the machine's load (other processes, the simulator's own housekeeping)
  * falls on both routes alike.
  */
-async function measurePair(url: string, connections: number, duration: number, rounds: number, token: string): Promise<CaseResult[]> {
+async function measurePair(
+  url: string,
+  connections: number,
+  duration: number,
+  rounds: number,
+  token: string,
+  form: CaseResult["form"] = "features",
+): Promise<CaseResult[]> {
+  const body = form === "payment" ? nextPaymentBody : nextBody;
   const routes = ["/v1/echo", "/v1/score"];
   const acc = routes.map(() => ({ times: [] as number[], requests: 0, non2xx: 0, errors: 0, seconds: 0 }));
   const slice = Math.max(1, duration / rounds);
@@ -115,7 +153,7 @@ async function measurePair(url: string, connections: number, duration: number, r
     // Alternate which route goes first, so neither always follows the other.
     const order = round % 2 === 0 ? [0, 1] : [1, 0];
     for (const r of order) {
-      const run = await load(url, routes[r], connections, slice, token);
+      const run = await load(url, routes[r], connections, slice, token, body);
       acc[r].times.push(...run.times);
       acc[r].requests += run.requests;
       acc[r].non2xx += run.non2xx;
@@ -128,6 +166,7 @@ async function measurePair(url: string, connections: number, duration: number, r
     const mean = acc[r].times.reduce((a, b) => a + b, 0) / Math.max(1, acc[r].times.length);
     return {
       route,
+      form,
       connections,
       seconds: acc[r].seconds,
       requests: acc[r].requests,
@@ -137,6 +176,40 @@ async function measurePair(url: string, connections: number, duration: number, r
       errors: acc[r].errors,
     };
   });
+}
+
+/**
+ * Storage of the account histories the payment phase built: the local simulator's SQLite file per
+ * Durable Object (page-granular: SQLite allocates 4 KiB pages), and the history JSON the objects
+ * store, rebuilt offline from the payments sent (only the score route records; echo bodies are
+ * counted too, so this is an upper bound on payments per account).
+ */
+function historyStorage(stateDir: string) {
+  const files: string[] = [];
+  const walk = (dir: string) => {
+    for (const entry of readdirSync(dir, { withFileTypes: true })) {
+      const path = join(dir, entry.name);
+      if (entry.isDirectory()) walk(path);
+      else if (dir.includes("AccountHistoryObject") && /\.sqlite(-wal|-shm)?$/.test(entry.name)) files.push(path);
+    }
+  };
+  walk(stateDir);
+  const objects = new Set(files.map((f) => f.replace(/-(wal|shm)$/, ""))).size;
+  const sqliteBytes = files.reduce((total, f) => total + statSync(f).size, 0);
+  const histories = new Map<string, AccountHistory>();
+  for (const fields of sentPayments) {
+    const record = recordFromFields(SHOP_RECORD_SPEC, fields);
+    let history = histories.get(record.account);
+    if (!history) histories.set(record.account, (history = emptyHistory()));
+    recordPayment(SHOP_RECORD_SPEC, history, record);
+  }
+  const jsonBytes = [...histories.values()].reduce((total, h) => total + Buffer.byteLength(JSON.stringify(h)), 0);
+  return {
+    accounts: objects,
+    sqliteBytesPerAccount: objects > 0 ? Math.round(sqliteBytes / objects) : 0,
+    historyJsonBytesPerAccount: Math.round(jsonBytes / Math.max(1, histories.size)),
+    paymentsPerAccount: Number((sentPayments.length / Math.max(1, histories.size)).toFixed(1)),
+  };
 }
 
 function round3(x: number): number {
@@ -192,33 +265,71 @@ try {
       );
     }
   }
-  const find = (route: string, connections: number) => cases.find((c) => c.route === route && c.connections === connections)!;
+  console.log("publishing a model fitted from invented payment records; measuring the payment form");
+  const recordModel = await fitRecordModel(shopLedger({ accounts: 400, payments: 8000, startMs: Date.UTC(2026, 0, 5), days: 30, seed: 23 }), "mbench-records");
+  const recordModelFile = join(state, "record-model.json");
+  writeFileSync(recordModelFile, JSON.stringify(recordModel));
+  if ((await publishCommand([recordModelFile, "--url", url, "--token", adminToken, "--activate"], quiet)) !== 0) throw new Error("publishing the record model failed");
+  await load(url, "/v1/echo", 32, 3, flowToken, nextPaymentBody);
+  await load(url, "/v1/score", 32, 3, flowToken, nextPaymentBody);
+  for (const connections of [32, 1]) {
+    for (const result of await measurePair(url, connections, seconds, ROUNDS, flowToken, "payment")) {
+      cases.push(result);
+      console.log(
+        `  ${`${result.route} (${result.form})`.padEnd(20)} ${String(connections).padStart(2)} conn: ${result.requestsPerSecond.toFixed(0).padStart(6)} req/s  ` +
+          `p50 ${result.latencyMs.p50.toFixed(2)} ms  p99 ${result.latencyMs.p99.toFixed(2)} ms  non-2xx ${result.non2xx}  errors ${result.errors}`,
+      );
+    }
+  }
+
+  const find = (route: string, connections: number, form: CaseResult["form"] = "features") =>
+    cases.find((c) => c.route === route && c.connections === connections && c.form === form)!;
   const throughputRatio = find("/v1/score", 32).requestsPerSecond / find("/v1/echo", 32).requestsPerSecond;
   const medianDeltaMs = find("/v1/score", 1).latencyMs.p50 - find("/v1/echo", 1).latencyMs.p50;
+  const paymentThroughputRatio = find("/v1/score", 32, "payment").requestsPerSecond / find("/v1/echo", 32, "payment").requestsPerSecond;
+  const paymentMedianDeltaMs = find("/v1/score", 1, "payment").latencyMs.p50 - find("/v1/echo", 1, "payment").latencyMs.p50;
+  const storage = historyStorage(state);
+  console.log(
+    `account history: ${storage.accounts} accounts, ${storage.sqliteBytesPerAccount} bytes of SQLite file each (local simulator), ` +
+      `history JSON ${storage.historyJsonBytesPerAccount} bytes on average for ${storage.paymentsPerAccount} payments each`,
+  );
   const summary = {
     measuredAt: new Date().toISOString(),
     machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version },
     setup: {
       server: "wrangler dev (local simulator) on 127.0.0.1, load generator autocannon in the same machine",
       model: { version: artifact.version, features: FEATURES, covarianceShape: artifact.covarianceShape, trainingRows: TRAINING_ROWS },
+      recordModel: { version: recordModel.version, features: recordModel.features.length, accounts: PAYMENT_ACCOUNTS },
       secondsPerCase: seconds,
       rounds: ROUNDS,
       requestsPerSecond: "2xx answers / seconds of load, summed over the rounds",
-      body: "32 features, fresh transactionId per request; echo and score get the same bodies",
+      body: "features form: 32 features, fresh transactionId per request; payment form: a payment record of one of 2,000 accounts at the present time; echo and score get the same bodies in each phase",
     },
     cases,
     ratios: {
       scoreOverEchoThroughputAt32: Number(throughputRatio.toFixed(3)),
       scoreMinusEchoMedianMsAt1: Number(medianDeltaMs.toFixed(3)),
+      paymentOverEchoThroughputAt32: Number(paymentThroughputRatio.toFixed(3)),
+      paymentMinusEchoMedianMsAt1: Number(paymentMedianDeltaMs.toFixed(3)),
     },
-    targets: { scoreOverEchoThroughputAt32: ">= 0.9", scoreMinusEchoMedianMsAt1: "<= 0.5" },
-    met: { throughput: throughputRatio >= 0.9, median: medianDeltaMs <= 0.5 },
+    targets: { scoreOverEchoThroughputAt32: ">= 0.9", scoreMinusEchoMedianMsAt1: "<= 0.5", paymentOverEchoThroughputAt32: ">= 0.8", paymentMinusEchoMedianMsAt1: "<= 2" },
+    met: {
+      throughput: throughputRatio >= 0.9,
+      median: medianDeltaMs <= 0.5,
+      paymentThroughput: paymentThroughputRatio >= 0.8,
+      paymentMedian: paymentMedianDeltaMs <= 2,
+    },
+    accountHistoryStorage: storage,
   };
   mkdirSync(join(root, "bench/results"), { recursive: true });
   writeFileSync(join(root, "bench/results/worker-load.json"), JSON.stringify(summary, null, 2) + "\n");
   console.log(
     `score/echo throughput at 32 connections: ${summary.ratios.scoreOverEchoThroughputAt32} (target ≥ 0.9, ${summary.met.throughput ? "met" : "NOT met"}); ` +
       `median difference at 1 connection: ${summary.ratios.scoreMinusEchoMedianMsAt1} ms (target ≤ 0.5, ${summary.met.median ? "met" : "NOT met"})`,
+  );
+  console.log(
+    `payment form: throughput ${summary.ratios.paymentOverEchoThroughputAt32} of echo at 32 connections (target ≥ 0.8, ${summary.met.paymentThroughput ? "met" : "NOT met"}); ` +
+      `median +${summary.ratios.paymentMinusEchoMedianMsAt1} ms at 1 connection (target ≤ 2, ${summary.met.paymentMedian ? "met" : "NOT met"})`,
   );
   console.log("written bench/results/worker-load.json");
 } finally {

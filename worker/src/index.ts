@@ -5,6 +5,7 @@ import type { Env } from "./env";
 import { runWeeklyReport } from "./insights/weekly-report";
 import { handleHandoffBatch } from "./storage/queue-consumer";
 
+export { AccountHistoryObject } from "./history/account-history-object";
 export type { Env } from "./env";
 // Durable Object classes must be exported by the main module (wrangler.toml binds them by name).
 export { IdempotencyObject } from "./idempotency/idempotency-object";

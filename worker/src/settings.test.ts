@@ -34,7 +34,16 @@ describe("readSettings", () => {
       REFIT_AFTER_DAYS: 28,
       ANALYST_DAILY_CAPACITY: 200,
       IDEMPOTENCY_WINDOW_SECONDS: 86_400,
+      PAYMENT_CLOCK_TOLERANCE_SECONDS: 300,
+      HISTORY_TIMEOUT_MS: 250,
     });
+  });
+
+  test("takes 0 as 'no clock check' for payment times, and refuses a history timeout of 0", () => {
+    expect(readSettings({ PAYMENT_CLOCK_TOLERANCE_SECONDS: "0" }, ["PAYMENT_CLOCK_TOLERANCE_SECONDS"])).toEqual({ PAYMENT_CLOCK_TOLERANCE_SECONDS: 0 });
+    expect(configError(() => readSettings({ HISTORY_TIMEOUT_MS: "0" }, ["HISTORY_TIMEOUT_MS"])).problems).toEqual([
+      { field: "HISTORY_TIMEOUT_MS", rule: 'must be a number of milliseconds from 1 to 30000 (received "0")' },
+    ]);
   });
 
   test("reads only the variables asked for, so a malformed one elsewhere does not get in the way", () => {

@@ -61,6 +61,10 @@ export const settingsSchema = z.object({
   DRIFT_FLUSH_SECONDS: numberSetting({ min: 0, max: 3600, unit: "seconds" }),
   /** A live model older than this is marked due for refit by the weekly report. */
   REFIT_AFTER_DAYS: numberSetting({ min: 1, max: 3650, whole: true, unit: "days" }),
+  /** Most distance between a `payment`'s own time and the server clock, either way (0 = no check). */
+  PAYMENT_CLOCK_TOLERANCE_SECONDS: numberSetting({ min: 0, max: 604_800, unit: "seconds" }),
+  /** Longest wait for an account's history (Durable Object) before answering 503 retryable. */
+  HISTORY_TIMEOUT_MS: numberSetting({ min: 1, max: 30_000, unit: "milliseconds" }),
   /** Reviews one analyst can do in a day (the day summary's capacity). */
   ANALYST_DAILY_CAPACITY: numberSetting({ min: 1, max: 100_000, whole: true, unit: "reviews" }),
 });

@@ -46,6 +46,7 @@ const MATRIX: Record<string, MatrixRow> = {
   "POST /v1/models/:version/activate": { allowed: ["admin"], path: "/v1/models/mmatrix-1/activate", body: {} },
   "POST /v1/models/rollback": { allowed: ["admin"], body: {} },
   "PUT /v1/models/shadow": { allowed: ["admin"], body: { version: null } },
+  "DELETE /v1/accounts/:accountRef/history": { allowed: ["admin"], path: "/v1/accounts/acct-matrix/history" },
   "GET /v1/review/me": { allowed: ["analyst", "admin"] },
   "GET /v1/review/items": { allowed: ["analyst", "admin"] },
   "GET /v1/review/counts": { allowed: ["analyst", "admin"] },

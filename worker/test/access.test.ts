@@ -97,7 +97,7 @@ describe("OpenAPI document", () => {
     }
     expect(doc.components.securitySchemes.bearer.scheme).toBe("bearer");
     const score = doc.components.schemas.ScoreRequest;
-    expect(Object.keys(score.properties ?? {})).toEqual(["transactionId", "features", "segment", "accountRef"]);
+    expect(Object.keys(score.properties ?? {})).toEqual(["transactionId", "features", "payment", "segment", "accountRef"]);
     expect(score.additionalProperties).toBe(false);
     expect(Object.keys(doc.components.schemas.ModelArtifact.properties ?? {})).toContain("checksum");
   });

@@ -11,6 +11,7 @@
  * | a claim that expires while the decision is on its way | here |
  * | concurrent decisions on one item: exactly one wins | here |
  * | worker restart mid-replay: no duplicate review items, none lost after the resend | here |
+ * | account history (Durable Object) failing or not answering: 503 retryable within HISTORY_TIMEOUT_MS; ready features unaffected | here |
  *
  * Simultaneous claims (exactly one wins) and a claim that has expired before the decision are in
  * review.test.ts › "claims".
@@ -21,6 +22,7 @@ import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import type { ActionResult, AuditEvent, ItemDetail } from "../src/review/contract";
 import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT } from "./fixtures";
+import { fitRecordModel, shopLedger } from "./record-fixtures";
 import { countRows, eventually, makeTokens, publishModel, startWorker, type D1Like, type RunningWorker } from "./harness";
 
 interface Refusal {
@@ -212,5 +214,79 @@ describe("worker restart mid-replay", () => {
       await second?.dispose();
       await rm(dir, { recursive: true, force: true });
     }
+  });
+});
+
+/**
+ * Stands in for the account-history Durable Object: throws for account "acct-failing" (a store
+ * that fails), and takes 30 s for any other (a store that does not answer in time).
+ */
+const FAULTY_HISTORY = `
+import { DurableObject } from "cloudflare:workers";
+export class AccountHistoryObject extends DurableObject {
+  async deriveAndRecord(specKey, spec, records) {
+    if (records[0].account === "acct-failing") throw new Error("history store failing (fault injection)");
+    await new Promise((resolve) => setTimeout(resolve, 30000));
+    return [];
+  }
+  async erase() {
+    await new Promise((resolve) => setTimeout(resolve, 30000));
+  }
+}
+export default { fetch: () => new Response("history stand-in") };
+`;
+
+describe("account history failing or not answering", () => {
+  let worker: RunningWorker;
+  const payment = (account: string) => ({ createdAt: "2026-04-01T10:00:00Z", accountRef: account, channel: "web", amount: 30, accountCreatedAt: "2026-01-01T00:00:00Z" });
+
+  beforeAll(async () => {
+    worker = await startWorker({
+      vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0", PAYMENT_CLOCK_TOLERANCE_SECONDS: "0", HISTORY_TIMEOUT_MS: "200" },
+      historyStandIn: FAULTY_HISTORY,
+    });
+    await publishModel(worker, await fitRecordModel(shopLedger({ accounts: 40, payments: 1200, startMs: Date.UTC(2026, 2, 1), days: 20, seed: 17 }), "mfault-history"));
+  });
+  afterAll(async () => {
+    await worker?.dispose();
+  });
+
+  test("a failing or silent history store answers 503 retryable within the timeout, naming the account's history", async () => {
+    for (const account of ["acct-failing", "acct-silent"]) {
+      const started = Date.now();
+      const response = await worker.post("/v1/score", { transactionId: `h-${account}`, payment: payment(account) }, worker.tokens.flow);
+      const elapsed = Date.now() - started;
+      expect(response.status).toBe(503);
+      expect(response.headers.get("retry-after")).toBe("1");
+      const body = (await response.json()) as Refusal;
+      expect(body.error).toBe("history-unavailable");
+      expect(body.retryable).toBe(true);
+      expect(body.problems[0].field).toBe("payment");
+      expect(body.problems[0].rule).toContain(`the history of account "${account}" could not be read in time (HISTORY_TIMEOUT_MS 200)`);
+      // Bounded: far below the stand-in's 30 s (the bound itself is HISTORY_TIMEOUT_MS).
+      expect(elapsed).toBeLessThan(10_000);
+    }
+    expect(worker.logs.some((l) => l.message.includes('"event":"history-unavailable"'))).toBe(true);
+  });
+
+  test("in a batch only the payment records are refused; ready features are scored as before", async () => {
+    const response = await worker.post(
+      "/v1/score/batch",
+      { payments: [{ transactionId: "hb-1", payment: payment("acct-failing") }, { transactionId: "hb-2", features: { amount: 30, paymentsLast24h: 0, hoursSincePrevious: 5, amountVsAccountAverage: 1, accountAgeDays: 90, hourOfDay: 10 }, segment: "web" }] },
+      worker.tokens.flow,
+    );
+    expect(response.status).toBe(200);
+    const body = (await response.json()) as { results: { outcome: string; status?: number; error?: string; retryable?: boolean }[] };
+    expect(body.results[0]).toMatchObject({ outcome: "refused", status: 503, error: "history-unavailable", retryable: true });
+    expect(body.results[1].outcome).toBe("scored");
+  });
+
+  test("an erasure the history store does not confirm answers 503 and is logged as failed", async () => {
+    const response = await worker.fetch("/v1/accounts/acct-silent/history", { method: "DELETE", token: worker.tokens.admin });
+    expect(response.status).toBe(503);
+    expect(((await response.json()) as Refusal).error).toBe("history-unavailable");
+    const row = await (await worker.db()).prepare("SELECT outcome, detail FROM erasure_events ORDER BY id DESC LIMIT 1").first<{ outcome: string; detail: string }>();
+    expect(row?.outcome).toBe("failed");
+    expect(JSON.parse(row!.detail)).toMatchObject({ failedScope: "account-history" });
   });
 });

@@ -13,6 +13,7 @@ import type { Readable } from "node:stream";
 import { fileURLToPath } from "node:url";
 import { Log, LogLevel, Miniflare } from "miniflare";
 import { inject } from "vitest";
+import type { HistoryFootprint, HistoryResult } from "../src/history/contract";
 import { prepareWorker, type PreparedMigration, type PreparedWorker } from "./worker-build";
 
 export const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
@@ -72,6 +73,8 @@ export interface RunningWorker {
   post(path: string, body: unknown, token: string | null): Promise<Response>;
   kv(): Promise<KVNamespaceLike>;
   db(): Promise<D1Like>;
+  /** The account-history Durable Object of one account, for looking at what it holds. */
+  history(account: string): Promise<AccountHistoryLike>;
   dispose(): Promise<void>;
 }
 
@@ -80,6 +83,13 @@ export interface KVNamespaceLike {
   get(key: string, type: "text"): Promise<string | null>;
   put(key: string, value: string): Promise<void>;
   delete(key: string): Promise<void>;
+}
+
+/** The account-history Durable Object's methods, as the tests call them over RPC. */
+export interface AccountHistoryLike {
+  footprint(): Promise<HistoryFootprint>;
+  deriveAndRecord(specKey: string, spec: unknown, records: unknown[]): Promise<HistoryResult[]>;
+  erase(): Promise<HistoryFootprint>;
 }
 
 /** The slice of the D1 binding the tests use. */
@@ -106,7 +116,15 @@ export interface StartOptions {
   tokens?: TestTokens;
   /** Skip applying migrations (when reusing persisted state). */
   skipMigrations?: boolean;
+  /**
+   * Fault injection: a worker script (ES module) whose exported `AccountHistoryObject` takes the
+   * place of the real account-history Durable Object (one that throws, or never answers).
+   */
+  historyStandIn?: string;
 }
+
+/** Name of the worker that hosts a {@link StartOptions.historyStandIn}. */
+const HISTORY_STAND_IN = "history-stand-in";
 
 /**
  * Starts the bundled worker with wrangler.toml's bindings and applies the D1 migrations.
@@ -130,12 +148,22 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
   const persist = options.persistDir
     ? { kvPersist: join(options.persistDir, "kv"), d1Persist: join(options.persistDir, "d1"), durableObjectsPersist: join(options.persistDir, "do") }
     : { kvPersist: false, d1Persist: false, durableObjectsPersist: false };
-  const mf = new Miniflare({
+  const isodense = {
     ...(workerOptions as object),
     name: "isodense",
     modules: true,
     scriptPath,
     bindings: { ...((workerOptions.bindings as Record<string, string> | undefined) ?? {}), ...(options.vars ?? {}), ...secrets },
+    ...(options.historyStandIn
+      ? {
+          durableObjects: {
+            ...((workerOptions.durableObjects as Record<string, unknown> | undefined) ?? {}),
+            ACCOUNT_HISTORY: { className: "AccountHistoryObject", scriptName: HISTORY_STAND_IN, useSQLite: true },
+          },
+        }
+      : {}),
+  };
+  const shared = {
     cf: false,
     log: new CapturingLog(logs),
     handleRuntimeStdio(stdout: Readable, stderr: Readable) {
@@ -143,7 +171,13 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
       stderr.on("data", (chunk: Buffer) => logs.push({ level: "stderr", message: chunk.toString() }));
     },
     ...persist,
-  } as ConstructorParameters<typeof Miniflare>[0]);
+  };
+  const standIn = options.historyStandIn
+    ? [{ name: HISTORY_STAND_IN, modules: true, script: options.historyStandIn, compatibilityDate: (workerOptions as { compatibilityDate?: string }).compatibilityDate }]
+    : [];
+  const mf = new Miniflare(
+    (standIn.length > 0 ? { ...shared, workers: [isodense, ...standIn] } : { ...isodense, ...shared }) as ConstructorParameters<typeof Miniflare>[0],
+  );
   await mf.ready;
   const worker: RunningWorker = {
     mf,
@@ -168,6 +202,13 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
     },
     async db() {
       return (await mf.getD1Database("DB")) as unknown as D1Like;
+    },
+    async history(account) {
+      const namespace = (await mf.getDurableObjectNamespace("ACCOUNT_HISTORY", "isodense")) as unknown as {
+        idFromName(name: string): unknown;
+        get(id: unknown): AccountHistoryLike;
+      };
+      return namespace.get(namespace.idFromName(account));
     },
     dispose: () => mf.dispose(),
   };

@@ -101,7 +101,7 @@ describe("features", () => {
     await expectRefused(inside, 400, "invalid-request", [{ field: "features.__proto__", rule: /^is not a feature of model mshop-v/ }]);
     const top = `{"transactionId":"v-proto-2","__proto__":{"x":1},"features":${JSON.stringify(UNUSUAL_PAYMENT)}}`;
     rejectedIds.add("v-proto-2");
-    await expectRefused(top, 400, "invalid-request", [{ field: "__proto__", rule: "is not an accepted field; accepted: transactionId, features, segment, accountRef" }]);
+    await expectRefused(top, 400, "invalid-request", [{ field: "__proto__", rule: "is not an accepted field; accepted: transactionId, features, payment, segment, accountRef" }]);
   });
 
   test("features that are not an object are refused", async () => {
@@ -115,7 +115,7 @@ describe("envelope", () => {
   test("a missing transactionId, an unknown top-level key and an over-long segment are each named", async () => {
     await expectRefused({ features: UNUSUAL_PAYMENT, channel: "web", segment: "x".repeat(65) }, 400, "invalid-request", [
       { field: "transactionId", rule: "is required: expected a string" },
-      { field: "channel", rule: "is not an accepted field; accepted: transactionId, features, segment, accountRef" },
+      { field: "channel", rule: "is not an accepted field; accepted: transactionId, features, payment, segment, accountRef" },
       { field: "segment", rule: /^must be 1 to 64 characters\. Actual: string/ },
     ]);
   });

@@ -115,14 +115,15 @@ export async function rememberAnswers(env: IdempotencyEnv, requests: readonly Re
 }
 
 /**
- * SHA-256 (hex) of what determines a payment's answer besides its id: the features (keys sorted,
+ * SHA-256 (hex) of what determines a payment's answer besides its id: the features or the payment
+ * record's fields (keys sorted,
  * so key order does not matter), the segment and the account reference.
  *
  * @example
  * await contentHash({ amount: 1, items: 2 }, "web", null) === await contentHash({ items: 2, amount: 1 }, "web", null) // → true
  */
 export async function contentHash(
-  features: Readonly<Record<string, number>>,
+  features: Readonly<Record<string, unknown>>,
   segment: string | null,
   accountRef: string | null,
 ): Promise<string> {

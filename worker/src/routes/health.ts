@@ -4,6 +4,7 @@
  * breaker can act on the status alone. Holds no secrets: versions, times, counts, failure codes.
  */
 import { Hono } from "hono";
+import { recordColumns } from "../../../shared-model/src";
 import type { AppEnv } from "../app-env";
 import { counters } from "../scoring/counters";
 import { modelCache } from "../scoring/model-cache";
@@ -24,6 +25,7 @@ healthRoutes.get("/health", async (c) => {
           loadedAt: snapshot.live.loadedAt,
           features: snapshot.live.compiled.features.map((f) => f.name),
           segmentBy: snapshot.live.compiled.segmentBy,
+          paymentFields: snapshot.live.recordSpec ? recordColumns(snapshot.live.recordSpec) : null,
         }
       : null,
     shadow: status.shadow,

@@ -17,6 +17,7 @@ import {
   scoreAnswerSchema,
   scoreRequestSchema,
   shadowRequestSchema,
+  erasureAnswerSchema,
 } from "./schemas";
 import { countsQuerySchema, decisionBodySchema, eventsQuerySchema, exportQuerySchema, listQuerySchema } from "../review/schemas";
 import { modelQuerySchema, operatingQuerySchema, publishCutoffSchema, shadowQuerySchema, windowQuerySchema } from "../insights/schemas";
@@ -36,6 +37,7 @@ const components: Record<string, Schema> = {
   ShadowRequest: shadowRequestSchema,
   DecisionRequest: decisionBodySchema,
   PublishCutoffRequest: publishCutoffSchema,
+  ErasureAnswer: erasureAnswerSchema,
 };
 
 const ref = (name: string) => ({ $ref: `#/components/schemas/${name}` });
@@ -106,20 +108,24 @@ export function openApiDocument() {
     paths: {
       "/v1/score": {
         post: operation("Score one payment", {
-          description: "Role flow. Body limit 16 KiB. The answer is the same for the same (model version, body); a repeat with other content under the same transactionId answers 409.",
+          description:
+            "Role flow. Body limit 16 KiB. Send ready `features`, or a `payment` record whose features the model's record spec derives at the edge from the account's earlier payments (the payment is then recorded in the account's history; a repeated transactionId is not counted twice; the answer adds `derived`). The payment's time must lie within PAYMENT_CLOCK_TOLERANCE_SECONDS of the server clock (0: no check). The answer is the same for the same (model version, body); a repeat with other content under the same transactionId answers 409.",
           requestBody: { required: true, ...json("ScoreRequest") },
           responses: {
             "200": { description: "Score, decision and reasons.", ...json("ScoreAnswer") },
             ...BODY_ERRORS,
             ...AUTH_ERRORS,
             "409": error("transactionId already scored under this model with other content."),
-            "503": error("No model loaded (`no-model`) or the review hand-off failed (`handoff-failed`); `retryable: true`, see Retry-After."),
+            "503": error(
+              "No model loaded (`no-model`), the review hand-off failed (`handoff-failed`), or the account's history did not answer within HISTORY_TIMEOUT_MS (`history-unavailable`); `retryable: true`, see Retry-After.",
+            ),
           },
         }),
       },
       "/v1/score/batch": {
         post: operation("Score up to MAX_BATCH payments", {
-          description: "Role flow. Body limit 1 MiB. Each payment is scored or refused on its own; the envelope alone decides a 400.",
+          description:
+            "Role flow. Body limit 1 MiB. Each payment (ready features or a payment record, as for /v1/score) is scored or refused on its own; the envelope alone decides a 400. Payment records of one account are derived in the order sent.",
           requestBody: { required: true, ...json("BatchRequest") },
           responses: {
             "200": { description: "One result per payment, in order.", ...json("BatchAnswer") },
@@ -194,6 +200,19 @@ export function openApiDocument() {
             "404": error("Not stored."),
             "409": error("No live model, or the shadow equals the live version."),
             "422": error("The stored artifact does not verify."),
+          },
+        }),
+      },
+      "/v1/accounts/{accountRef}/history": {
+        delete: operation("Erase one account's payment history", {
+          description:
+            "Role admin. Deletes what the account-history store holds for the account (its payments and expiry alarm). Audited in erasure_events without the data: actor, time, SHA-256 of the account reference, stores and counts.",
+          parameters: [{ name: "accountRef", in: "path", required: true, schema: { type: "string", minLength: 1, maxLength: 128 } }],
+          responses: {
+            "200": { description: "Erased; counts per store.", ...json("ErasureAnswer") },
+            "400": error("accountRef breaks its rule."),
+            ...AUTH_ERRORS,
+            "503": error("The erasure could not be logged (nothing erased: `erasure-log-unavailable`) or the history store did not confirm it (`history-unavailable`, logged as failed); `retryable: true`."),
           },
         }),
       },

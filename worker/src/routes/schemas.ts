@@ -13,6 +13,12 @@ const plainObject = z.custom<Record<string, unknown>>(
   { error: "must be an object keyed by feature name" },
 );
 
+/** A plain JSON object holding a payment record's fields. */
+const plainPaymentObject = z.custom<Record<string, unknown>>(
+  (value) => typeof value === "object" && value !== null && !Array.isArray(value),
+  { error: "must be an object keyed by ledger column name" },
+);
+
 /** Body of `POST /v1/score` and one item of a batch. Unknown keys are refused. */
 export const scoreRequestSchema = z
   .strictObject({
@@ -22,9 +28,16 @@ export const scoreRequestSchema = z
       .max(128, { error: "must be 1 to 128 characters" })
       .regex(PRINTABLE, { error: "must be printable ASCII without spaces (0x21–0x7E)" })
       .describe("The payment flow's id of the payment; the idempotency key together with the model version."),
-    features: plainObject.describe(
-      "Raw feature values keyed by feature name, numbers only; the names are those of the active model (GET /v1/health, GET /v1/models/{version}).",
-    ),
+    features: plainObject
+      .optional()
+      .describe(
+        "Raw feature values keyed by feature name, numbers only; the names are those of the active model (GET /v1/health, GET /v1/models/{version}). Send either features or payment.",
+      ),
+    payment: plainPaymentObject
+      .optional()
+      .describe(
+        "A payment record instead of ready features: the ledger columns the live model's record spec reads (GET /v1/health lists them as paymentFields), keyed by column name. The account's history features are derived at the edge and the payment is recorded in it; the answer carries them as `derived`. The id column may be left out (it is the transactionId); segment and accountRef come from the record.",
+      ),
     segment: z
       .string()
       .min(1, { error: "must be 1 to 64 characters" })
@@ -43,7 +56,7 @@ export const scoreRequestSchema = z
   .describe("One card-not-present payment to score.");
 
 /** Top-level keys a score request accepts (for unknown-key errors). */
-export const SCORE_REQUEST_KEYS = ["transactionId", "features", "segment", "accountRef"] as const;
+export const SCORE_REQUEST_KEYS = ["transactionId", "features", "payment", "segment", "accountRef"] as const;
 
 const reasonSchema = z.object({
   feature: z.string(),
@@ -72,6 +85,10 @@ export const scoreAnswerSchema = z
     segment: z.string().describe("Segment key that scored the payment (`*` = pooled model)."),
     reasons: z.array(reasonSchema).describe("Features whose conditional residuals are least likely, rarest first (by the tail probability of the residual, so one- and two-column features rank on one scale)."),
     auditSample: z.boolean().describe("True when a passing payment was also sent to review as part of the audit sample."),
+    derived: z
+      .record(z.string(), z.number())
+      .optional()
+      .describe("Payment form only: each feature's raw value as derived from the payment and the account's earlier payments, by feature name."),
   })
   .describe("Score of one payment.");
 
@@ -175,6 +192,10 @@ export const healthSchema = z.object({
       loadedAt: z.string(),
       features: z.array(z.string()).describe("Feature names a score request must carry."),
       segmentBy: z.string().nullable(),
+      paymentFields: z
+        .array(z.string())
+        .nullable()
+        .describe("Ledger columns a `payment` record may carry (id, time, account, segment, then the columns derivations read); null when the model reads ready features only."),
     })
     .nullable(),
   shadow: z.object({ version: z.string(), loadedAt: z.string() }).nullable(),
@@ -188,3 +209,21 @@ export const healthSchema = z.object({
     .object({ shadowSkipped: z.number().int(), shadowSendFailures: z.number().int(), handoffSendFailures: z.number().int() })
     .describe("Per-isolate counts of degradations that did not fail a request."),
 });
+
+/** An account reference in a path: printable ASCII without spaces, 1 to 128 characters. */
+export const accountRefParamSchema = z
+  .string()
+  .min(1, { error: "must be 1 to 128 characters" })
+  .max(128, { error: "must be 1 to 128 characters" })
+  .regex(PRINTABLE, { error: "must be printable ASCII without spaces (0x21–0x7E)" });
+
+/** Answer of `DELETE /v1/accounts/{accountRef}/history`. */
+export const erasureAnswerSchema = z
+  .object({
+    eventId: z.number().int().describe("Row of the erasure log (erasure_events), which keeps only a SHA-256 digest of the account reference."),
+    at: z.string(),
+    erased: z
+      .record(z.string(), z.record(z.string(), z.number()))
+      .describe("Per store erased (`account-history`), counts of what went; never the data."),
+  })
+  .describe("An account's data erased on request.");

@@ -11,8 +11,8 @@
  *   verify, the last good model keeps serving; the failure is counted and logged once per cause.
  *   With nothing ever loaded, {@link ModelCache.snapshot} returns null and the route answers 503.
  */
-import { compileModel, parseArtifact, Scorer, ArtifactError } from "../../../shared-model/src";
-import type { CompiledModel, ModelArtifact } from "../../../shared-model/src";
+import { compileModel, parseArtifact, recordSpecFromArtifact, Scorer, ArtifactError } from "../../../shared-model/src";
+import type { CompiledModel, ModelArtifact, RecordSpec } from "../../../shared-model/src";
 import type { Env } from "../env";
 import { PointerFormatError, readArtifactText, readPointer, writePointer, type ModelPointer } from "../storage/model-store";
 
@@ -25,6 +25,8 @@ export interface LoadedModel {
   scorer: Scorer;
   /** ISO-8601 time this isolate compiled it. */
   loadedAt: string;
+  /** How features derive from payment records (the `payment` form); null when the model reads ready features only. */
+  recordSpec: RecordSpec | null;
 }
 
 /** Why a model could not be loaded. */
@@ -80,7 +82,15 @@ export async function loadModel(env: Pick<Env, "MODELS">, version: string): Prom
     ]);
   }
   const compiled = compileModel(artifact);
-  return { version, artifact, compiled, scorer: new Scorer(compiled), loadedAt: new Date().toISOString() };
+  const recordSpec = recordSpecFromArtifact(artifact);
+  return {
+    version,
+    artifact,
+    compiled,
+    scorer: new Scorer(compiled),
+    loadedAt: new Date().toISOString(),
+    recordSpec: recordSpec?.record ? recordSpec : null,
+  };
 }
 
 /** What scores a request: the live model and, when set and loadable, the shadow. */

@@ -21,10 +21,20 @@ import { auditPosition } from "./audit-sample";
 import { counters } from "./counters";
 import { sendConflicts, sendReviewItems, sendShadowComparisons } from "./handoff";
 import type { ModelSnapshot } from "./model-cache";
-import { scorePayment, validatePayment, type ScoredPayment, type ValidPayment } from "./score-payment";
+import { deriveAtAccounts } from "../history/history-client";
+import type { PendingPayment } from "../history/payment-form";
+import { fieldPath } from "../problems";
+import { completePayment, isPending, scorePayment, validatePayment, type ScoredPayment, type ValidPayment } from "./score-payment";
 
 /** The `[vars]` the scoring path reads (the loop's own variables never fail a payment). */
-export const SCORING_SETTINGS = ["AUDIT_SAMPLE_RATE", "MODEL_REFRESH_SECONDS", "MAX_BATCH", "IDEMPOTENCY_WINDOW_SECONDS"] as const;
+export const SCORING_SETTINGS = [
+  "AUDIT_SAMPLE_RATE",
+  "MODEL_REFRESH_SECONDS",
+  "MAX_BATCH",
+  "IDEMPOTENCY_WINDOW_SECONDS",
+  "PAYMENT_CLOCK_TOLERANCE_SECONDS",
+  "HISTORY_TIMEOUT_MS",
+] as const;
 
 /** How one payment ended: its answer, or the refusal it would have had alone. */
 export type Outcome =
@@ -62,10 +72,12 @@ type Entry =
   | { index: number; state: "refused"; refusal: Refusal }
   /** Answered before: the stored answer, and its review item, sent again (the review store keeps one row). */
   | { index: number; state: "remembered"; answer: ScoreAnswer; review: ReviewMessage | null }
-  | { index: number; state: "valid"; payment: ValidPayment; bodyHash: string; claim?: Claim; scored?: ScoredPayment }
+  /** Checked; a payment record (`PendingPayment`) until its account's history has derived its features. */
+  | { index: number; state: "valid"; payment: ValidPayment | PendingPayment; bodyHash: string; claim?: Claim; scored?: ScoredPayment }
   | { index: number; state: "same-as"; of: number };
 
 type ValidEntry = Extract<Entry, { state: "valid" }>;
+type ReadyEntry = ValidEntry & { payment: ValidPayment };
 
 /**
  * Scores payments as one unit of work; one outcome per payment, in order.
@@ -85,13 +97,13 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
   const firstInCall = new Map<string, { index: number; bodyHash: string }>();
   for (let index = 0; index < payments.length; index++) {
     const prefix = prefixOf(index);
-    const checked = validatePayment(payments[index], snapshot.live, prefix);
+    const checked = validatePayment(payments[index], snapshot.live, prefix, { nowMs, toleranceMs: settings.PAYMENT_CLOCK_TOLERANCE_SECONDS * 1000 });
     if (!checked.ok) {
       entries.push({ index, state: "refused", refusal: refusal(index, 400, "invalid-request", checked.problems) });
       continue;
     }
     const payment = checked.value;
-    const bodyHash = await contentHash(payment.features, payment.segment, payment.accountRef);
+    const bodyHash = await contentHash(isPending(payment) ? payment.fields : payment.features, payment.segment, payment.accountRef);
     const earlier = firstInCall.get(payment.transactionId);
     if (earlier) {
       if (earlier.bodyHash === bodyHash) entries.push({ index, state: "same-as", of: earlier.index });
@@ -125,8 +137,12 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
     }
   });
 
+  // Payment records not answered from the idempotency store: their accounts' histories derive the
+  // features and record them (one call per account).
+  await deriveFromHistory(call, entries, prefixOf);
+
   const scoredAt = new Date().toISOString();
-  const valid = claimed.filter((e) => entries[e.index] === e);
+  const valid = claimed.filter((e): e is ReadyEntry => entries[e.index] === e && !isPending(e.payment));
   const positions = await Promise.all(valid.map((e) => auditPosition(e.payment.transactionId)));
   valid.forEach((entry, i) => {
     const scored = scorePayment(snapshot, entry.payment, positions[i], settings.AUDIT_SAMPLE_RATE, scoredAt, prefixOf(entry.index));
@@ -178,6 +194,45 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
   });
 }
 
+/**
+ * Payment-form entries still open: derives their features at their accounts' histories (one call
+ * per account, bounded by HISTORY_TIMEOUT_MS) and completes them, or refuses them: 400 for a
+ * record the derivation refuses, 503 `history-unavailable` (retryable) when the history store
+ * failed or did not answer in time.
+ */
+async function deriveFromHistory(call: ScoringCall, entries: Entry[], prefixOf: (index: number) => string): Promise<void> {
+  const pending = entries.filter((e): e is ValidEntry & { payment: PendingPayment } => e.state === "valid" && isPending(e.payment));
+  if (pending.length === 0) return;
+  const model = call.snapshot.live;
+  if (model.recordSpec === null) throw new Error(`payment records were accepted for model ${model.version}, which has no record spec`);
+  const outcomes = await deriveAtAccounts(
+    call.env.ACCOUNT_HISTORY,
+    model.version,
+    model.recordSpec,
+    pending.map((e) => e.payment.record),
+    call.settings.HISTORY_TIMEOUT_MS,
+  );
+  pending.forEach((entry, i) => {
+    const outcome = outcomes[i];
+    const prefix = prefixOf(entry.index);
+    const refuse = (r: Refusal) => {
+      entries[entry.index] = { index: entry.index, state: "refused", refusal: r };
+    };
+    if (!outcome.ok) {
+      if ("unavailable" in outcome) {
+        const rule =
+          `the history of account ${JSON.stringify(entry.payment.accountRef)} could not be read in time (HISTORY_TIMEOUT_MS ${call.settings.HISTORY_TIMEOUT_MS}); ` +
+          "send the same request again (a payment already recorded is not counted twice)";
+        refuse(refusal(entry.index, 503, "history-unavailable", [{ field: `${prefix}payment`, rule }], true));
+      } else refuse(refusal(entry.index, 400, "invalid-request", [{ field: fieldPath(prefix, ["payment", outcome.field]), rule: outcome.rule }]));
+      return;
+    }
+    const completed = completePayment(entry.payment, model, outcome.raw, prefix);
+    if (completed.ok) (entry as ValidEntry).payment = completed.value;
+    else refuse(refusal(entry.index, 400, "invalid-request", completed.problems));
+  });
+}
+
 function refusal(index: number, status: Refusal["status"], error: string, problems: Problem[], retryable?: boolean): Refusal {
   return { index, outcome: "refused", status, error, problems, ...(retryable !== undefined ? { retryable } : {}) };
 }
@@ -193,7 +248,7 @@ function conflictRefusal(index: number, prefix: string, transactionId: string, f
   ]);
 }
 
-function conflictMessage(payment: ValidPayment, contentHash: string, firstContentHash: string, firstSeenMs: number, nowMs: number, modelVersion: string): ConflictMessage {
+function conflictMessage(payment: ValidPayment | PendingPayment, contentHash: string, firstContentHash: string, firstSeenMs: number, nowMs: number, modelVersion: string): ConflictMessage {
   return {
     kind: "conflict",
     transactionId: payment.transactionId,
@@ -204,6 +259,7 @@ function conflictMessage(payment: ValidPayment, contentHash: string, firstConten
     modelVersion,
     segment: payment.segment,
     accountRef: payment.accountRef,
-    features: payment.features,
+    // A payment record's features are not derived for a refused repeat: its fields are not stored.
+    features: isPending(payment) ? {} : payment.features,
   };
 }

@@ -10,18 +10,21 @@ import { SCORE_REQUEST_KEYS, scoreRequestSchema, type ScoreAnswer } from "../rou
 import type { ReviewMessage, ShadowMessage } from "../storage/messages";
 import { isAudited } from "./audit-sample";
 import { counters } from "./counters";
+import { checkPaymentForm, derivedVector, type PaymentClock, type PaymentRequest, type PendingPayment } from "../history/payment-form";
 import type { LoadedModel, ModelSnapshot } from "./model-cache";
 import { toWireReasons } from "./wire-reasons";
 
 /** A request that passed every check, with its raw vector in the live model's feature order. */
 export interface ValidPayment {
   transactionId: string;
-  /** The features object as received (numbers keyed by feature name). */
+  /** The features object as received, or as derived in the payment form (numbers keyed by feature name). */
   features: Record<string, number>;
   segment: string | null;
   accountRef: string | null;
   /** Raw values in the live model's feature order. */
   raw: Float64Array;
+  /** True when the features were derived from a payment record (the answer then carries `derived`). */
+  derived: boolean;
 }
 
 /** Outcome of a check: the valid payment, or every problem found. */
@@ -31,18 +34,30 @@ export type Checked<T> = { ok: true; value: T } | { ok: false; problems: Problem
 export const REASONS_PER_ANSWER = 3;
 
 /**
- * Checks a request body against the schema and the live model's features, reporting every
- * problem at once (unknown keys, missing or non-numeric features, values outside a transform's
- * domain), each with its field path under `prefix` (`""` or `payments[3].`).
+ * Checks a request body against the schema and the live model, reporting every problem at once,
+ * each with its field path under `prefix` (`""` or `payments[3].`). The features form is checked
+ * completely (unknown keys, missing or non-numeric features, values outside a transform's domain);
+ * the payment form up to what needs no history ({@link checkPaymentForm}): its features are
+ * derived later, at the account's history.
  *
  * @example
- * validatePayment({ transactionId: "pay-1", features: { amount: "12" } }, model, "")
+ * validatePayment({ transactionId: "pay-1", features: { amount: "12" } }, model, "", clock)
  * // → { ok: false, problems: [{ field: "features.amount", rule: 'must be a number. Actual: string "12"' }, …] }
  */
-export function validatePayment(input: unknown, model: LoadedModel, prefix: string): Checked<ValidPayment> {
+export function validatePayment(input: unknown, model: LoadedModel, prefix: string, clock: PaymentClock): Checked<ValidPayment | PendingPayment> {
   const parsed = scoreRequestSchema.safeParse(input);
   const problems: Problem[] = parsed.success ? [] : problemsFromZod(parsed.error, input, prefix, SCORE_REQUEST_KEYS);
-  const features = isRecord(input) && Object.hasOwn(input, "features") ? input.features : undefined;
+  const sent = (key: string) => isRecord(input) && Object.hasOwn(input, key);
+  if (sent("features") && sent("payment")) {
+    problems.push({ field: fieldPath(prefix, ["payment"]), rule: "cannot be sent together with features: send ready features or a payment record, not both" });
+  } else if (!sent("features") && !sent("payment") && isRecord(input)) {
+    problems.push({ field: fieldPath(prefix, ["features"]), rule: "is required: send features (ready values) or payment (a payment record the model derives them from)" });
+  }
+  if (sent("payment")) {
+    if (!parsed.success || problems.length > 0) return { ok: false, problems };
+    return checkPaymentForm(parsed.data as PaymentRequest, model, prefix, clock);
+  }
+  const features = sent("features") ? (input as Record<string, unknown>).features : undefined;
   let raw: Float64Array | null = null;
   if (isRecord(features)) {
     // The object as received, not zod's copy: rawVectorFromRecord reads own keys only, so
@@ -61,8 +76,26 @@ export function validatePayment(input: unknown, model: LoadedModel, prefix: stri
       segment: body.segment ?? null,
       accountRef: body.accountRef ?? null,
       raw,
+      derived: false,
     },
   };
+}
+
+/**
+ * Completes a payment-form request with the features its account's history gave.
+ *
+ * @param raw derived raw values in the live model's feature order.
+ */
+export function completePayment(pending: PendingPayment, model: LoadedModel, raw: readonly number[], prefix: string): Checked<ValidPayment> {
+  const vector = derivedVector(model, raw, prefix);
+  if (!vector.ok) return vector;
+  const { transactionId, segment, accountRef } = pending;
+  return { ok: true, value: { transactionId, features: vector.features, segment, accountRef, raw: vector.values, derived: true } };
+}
+
+/** Whether a checked request still waits for its history. */
+export function isPending(payment: ValidPayment | PendingPayment): payment is PendingPayment {
+  return "record" in payment;
 }
 
 /** A scored payment: the answer for the flow, and what goes to the queue. */
@@ -122,6 +155,7 @@ export function scorePayment(
     segment: result.segment,
     reasons,
     auditSample: audited,
+    ...(payment.derived ? { derived: payment.features } : {}),
   };
   const review: ReviewMessage | null =
     result.flagged || audited
