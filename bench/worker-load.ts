@@ -199,8 +199,8 @@ function historyStorage(stateDir: string) {
   const histories = new Map<string, AccountHistory>();
   for (const fields of sentPayments) {
     const record = recordFromFields(SHOP_RECORD_SPEC, fields);
-    let history = histories.get(record.account);
-    if (!history) histories.set(record.account, (history = emptyHistory()));
+    const history = histories.get(record.account) ?? emptyHistory();
+    histories.set(record.account, history);
     recordPayment(SHOP_RECORD_SPEC, history, record);
   }
   const jsonBytes = [...histories.values()].reduce((total, h) => total + Buffer.byteLength(JSON.stringify(h)), 0);

@@ -139,7 +139,11 @@ describe("scoring payment records (replays: clock check off)", () => {
     const cases: [unknown, string, RegExp][] = [
       [{ transactionId: "v1", payment: good, features: { amount: 1 } }, "payment", /not both/],
       [{ transactionId: "v2" }, "features", /features .* or payment/],
-      [{ transactionId: "v3", payment: { ...good, cardNumber: "4000" } }, "payment.cardNumber", /is not a field model mrec-2 reads; accepted: paymentId, createdAt, accountRef, channel, amount, accountCreatedAt/],
+      [
+        { transactionId: "v3", payment: { ...good, cardNumber: "4000" } },
+        "payment.cardNumber",
+        /is not a field model mrec-2 reads; accepted: paymentId, createdAt, accountRef, channel, amount, accountCreatedAt/,
+      ],
       [{ transactionId: "v4", payment: good, accountRef: "acct-v" }, "accountRef", /comes from the payment's "accountRef" field/],
       [{ transactionId: "v5", payment: good, segment: "web" }, "segment", /comes from the payment's "channel" field/],
       [{ transactionId: "v6", payment: { ...good, amount: "ten" } }, "payment.amount", /must be a finite number/],
@@ -187,7 +191,14 @@ describe("scoring payment records (replays: clock check off)", () => {
     expect(row).toMatchObject({ actor: "ops-ana", subject_sha256: digest, scopes: '["account-history"]', outcome: "done" });
     expect(JSON.stringify(row)).not.toContain("acct-single");
     // The next payment of the account starts afresh.
-    const fresh = await score("single-3", { paymentId: "x", createdAt: "2026-04-01T11:00:00Z", accountRef: "acct-single", channel: "app", amount: 40, accountCreatedAt: "2026-01-01T00:00:00Z" });
+    const fresh = await score("single-3", {
+      paymentId: "x",
+      createdAt: "2026-04-01T11:00:00Z",
+      accountRef: "acct-single",
+      channel: "app",
+      amount: 40,
+      accountCreatedAt: "2026-01-01T00:00:00Z",
+    });
     expect(fresh.body.derived).toMatchObject({ paymentsLast24h: 0, hoursSincePrevious: 720 });
   });
 });

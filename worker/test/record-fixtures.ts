@@ -72,8 +72,8 @@ export function deriveOffline(spec: RecordSpec, rows: readonly LedgerRow[]): Flo
   const histories = new Map<string, AccountHistory>();
   return rows.map((row) => {
     const record = recordFromFields(spec, row);
-    let history = histories.get(record.account);
-    if (!history) histories.set(record.account, (history = emptyHistory()));
+    const history = histories.get(record.account) ?? emptyHistory();
+    histories.set(record.account, history);
     const out = new Float64Array(spec.features.length);
     deriveInto(spec, history, record, out);
     recordPayment(spec, history, record);

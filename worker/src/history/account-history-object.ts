@@ -15,16 +15,7 @@
  * the longest window plus the accepted lateness; older ones are folded into running totals).
  */
 import { DurableObject } from "cloudflare:workers";
-import {
-  deriveInto,
-  emptyHistory,
-  historyHorizonMs,
-  recordPayment,
-  RecordInputError,
-  type AccountHistory,
-  type PaymentRecord,
-  type RecordSpec,
-} from "../../../shared-model/src";
+import { deriveInto, emptyHistory, historyHorizonMs, recordPayment, RecordInputError, type AccountHistory, type PaymentRecord, type RecordSpec } from "../../../shared-model/src";
 import type { HistoryFootprint, HistoryResult } from "./contract";
 
 /** Row layout: one row per object (the account), the history as JSON. */

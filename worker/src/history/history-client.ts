@@ -38,7 +38,14 @@ export async function deriveAtAccounts(
     [...byAccount].map(async ([account, indexes]) => {
       const stub = namespace.get(namespace.idFromName(account));
       try {
-        const results = await withinTime(stub.deriveAndRecord(specKey, spec, indexes.map((i) => records[i])), timeoutMs);
+        const results = await withinTime(
+          stub.deriveAndRecord(
+            specKey,
+            spec,
+            indexes.map((i) => records[i]),
+          ),
+          timeoutMs,
+        );
         indexes.forEach((recordIndex, k) => (outcomes[recordIndex] = results[k]));
       } catch (error) {
         console.error(JSON.stringify({ event: "history-unavailable", payments: indexes.length, error: String(error) }));

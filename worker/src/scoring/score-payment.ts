@@ -3,7 +3,7 @@
  * apart from the clock: the answer depends only on the model version and the request, which is
  * what makes a repeated request safe to answer from memory.
  */
-import { rawVectorFromRecord, ScoreInputError } from "../../../shared-model/src";
+import { rawVectorFromRecord, ScoreInputError, type ScoreResult } from "../../../shared-model/src";
 import type { Problem } from "../env";
 import { fieldPath, problemsFromZod } from "../problems";
 import { SCORE_REQUEST_KEYS, scoreRequestSchema, type ScoreAnswer } from "../routes/schemas";
@@ -125,8 +125,8 @@ export function scorePayment(
   prefix = "",
 ): Checked<ScoredPayment> {
   const { live } = snapshot;
-  let result;
-  let reasons;
+  let result: ScoreResult;
+  let reasons: ReturnType<typeof toWireReasons>;
   try {
     result = live.scorer.score(payment.raw, payment.segment);
     reasons = toWireReasons(live.scorer.explain(payment.raw, payment.segment, REASONS_PER_ANSWER));
@@ -203,7 +203,7 @@ function shadowComparison(
     counters.shadowSkipped++;
     return null;
   }
-  let result;
+  let result: ScoreResult;
   try {
     result = shadow.scorer.score(vector.values, payment.segment);
   } catch {
