@@ -5,9 +5,9 @@ import type { Env } from "./env";
 import { runWeeklyReport } from "./insights/weekly-report";
 import { handleHandoffBatch } from "./storage/queue-consumer";
 
-export { AccountHistoryObject } from "./history/account-history-object";
 export type { Env } from "./env";
 // Durable Object classes must be exported by the main module (wrangler.toml binds them by name).
+export { AccountHistoryObject } from "./history/account-history-object";
 export { IdempotencyObject } from "./idempotency/idempotency-object";
 export type { HandoffMessage, ReviewMessage, ShadowMessage } from "./storage/messages";
 export type { ScoreAnswer } from "./routes/schemas";
