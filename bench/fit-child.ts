@@ -6,42 +6,17 @@
  */
 import { fitModel, type FitRow, type RowSource } from "../shared-model/src/fit";
 import type { FeatureDeclaration } from "../shared-model/src/types";
-import { xorshift32 } from "./xorshift";
+import { correlatedGaussian } from "./gaussian-rows";
 
 const rows = Number(process.argv[2] ?? 100_000);
 const n = Number(process.argv[3] ?? 32);
 
-/** Uniforms strictly inside (0, 1), as Box–Muller's logarithm needs. */
-function makeUniform(seed: number): () => number {
-  const next = xorshift32(seed);
-  return () => (next() + 0.5) / 4294967296;
-}
-
-// A fixed lower-triangular mixing matrix gives the columns a dense correlation structure.
-const mixing = new Float64Array(n * n);
-{
-  const next = makeUniform(7);
-  for (let i = 0; i < n; i++) for (let j = 0; j <= i; j++) mixing[i * n + j] = i === j ? 1 : 0.4 * (next() - 0.5);
-}
-
 const source: RowSource = {
   async *pass(): AsyncIterable<FitRow> {
-    const next = makeUniform(11);
-    const z = new Float64Array(n);
+    const next = correlatedGaussian(n, 7, 11);
     for (let r = 0; r < rows; r++) {
-      for (let i = 0; i < n; i += 2) {
-        // Box–Muller: two standard normals per pair of uniforms.
-        const radius = Math.sqrt(-2 * Math.log(next()));
-        const angle = 2 * Math.PI * next();
-        z[i] = radius * Math.cos(angle);
-        if (i + 1 < n) z[i + 1] = radius * Math.sin(angle);
-      }
       const values = new Float64Array(n);
-      for (let i = 0; i < n; i++) {
-        let s = 10;
-        for (let j = 0; j <= i; j++) s += mixing[i * n + j] * z[j];
-        values[i] = s;
-      }
+      next(values);
       yield { values, segment: null };
     }
   },

@@ -41,6 +41,8 @@ export interface PositionalSpec {
   /** Placeholder, e.g. `ledger.csv`. */
   name: string;
   description: string;
+  /** May be left out (only the last positionals); the command says when it is needed. */
+  optional?: boolean;
 }
 
 /** Everything needed to parse and explain one command. */
@@ -120,9 +122,10 @@ export function parseArgs(argv: readonly string[], spec: CommandSpec): ParsedArg
     options.set(name, readValue(option, raw));
   }
   const expected = spec.positionals.length;
-  if (positionals.length !== expected) {
-    const names = spec.positionals.map((p) => `<${p.name}>`).join(" ");
-    if (positionals.length < expected) {
+  const required = spec.positionals.filter((p) => !p.optional).length;
+  if (positionals.length < required || positionals.length > expected) {
+    const names = spec.positionals.map((p) => (p.optional ? `[<${p.name}>]` : `<${p.name}>`)).join(" ");
+    if (positionals.length < required) {
       const missing = spec.positionals[positionals.length];
       throw new UsageError(
         `<${missing.name}>`,
@@ -188,7 +191,7 @@ function optionList(spec: CommandSpec): string {
  * @example formatHelp(fitSpec).startsWith("usage: isodense fit")
  */
 export function formatHelp(spec: CommandSpec): string {
-  const usage = [spec.command, ...spec.positionals.map((p) => `<${p.name}>`), "[options]"].join(" ");
+  const usage = [spec.command, ...spec.positionals.map((p) => (p.optional ? `[<${p.name}>]` : `<${p.name}>`)), "[options]"].join(" ");
   const lines = [`usage: ${usage}`, "", spec.summary, ""];
   if (spec.positionals.length > 0) {
     lines.push("arguments:");

@@ -63,6 +63,11 @@ export const COMMANDS: readonly CommandEntry[] = [
     load: async () => (await import("./commands/drift")).driftCommand,
   },
   {
+    name: "sql",
+    summary: "print the SQL that computes a fit's moments or sample on your own engine (PostgreSQL, DuckDB, ANSI)",
+    load: async () => (await import("./commands/sql")).sqlCommand,
+  },
+  {
     name: "publish",
     summary: "publish a model file to the scoring service",
     load: () => loadOptional("./commands/publish.ts", "publishCommand"),

@@ -130,7 +130,12 @@ function summary(acc: MomentAccumulator): MomentSummary {
   return { count: acc.count, mean: Float64Array.from(acc.mean), covariance: acc.covariance("m-1") };
 }
 
-function relativeErrors(reference: MomentSummary, other: MomentSummary): { meanRelativeError: number; covarianceRelativeError: number } {
+/**
+ * Worst relative differences of mean and covariance, each entry against its natural scale: |μᵢ| or
+ * the column's standard deviation for the mean, √(Σᵢᵢ Σⱼⱼ) for covariances (off-diagonal entries
+ * may be near zero).
+ */
+export function relativeErrors(reference: MomentSummary, other: MomentSummary): { meanRelativeError: number; covarianceRelativeError: number } {
   const n = reference.mean.length;
   let meanRelativeError = 0;
   let covarianceRelativeError = 0;

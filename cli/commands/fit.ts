@@ -7,23 +7,31 @@ import { readFile } from "node:fs/promises";
 import { basename, resolve } from "node:path";
 import { FeatureSpecError, parseFeatureSpec } from "../../shared-model/src/features";
 import { derivesFromRecords, parseRecordSpec, type RecordSpec } from "../../shared-model/src/records/spec";
-import { fitModel, type FitOptions } from "../../shared-model/src/fit";
+import type { ModelArtifact } from "../../shared-model/src/artifact";
+import { fitModel, type FitOptions, type FitReport } from "../../shared-model/src/fit";
 import type { CovarianceShapeRequest, EstimatorName, FeatureDeclaration } from "../../shared-model/src/types";
 import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
 import { EXIT_OK, InputError, reportFailure } from "../errors";
 import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
-import { LedgerRowSource } from "../ledger";
+import { LedgerRowSource, type LedgerRequest } from "../ledger";
+import { fitSource } from "../sources/fit-source";
+import { fitFromMomentsFiles } from "../sources/moments-files";
+import { resolveSource, type DataSource } from "../sources/source";
 import { createProgress } from "../progress";
 
 /** Command line of `isodense fit`. */
 export const fitSpec: CommandSpec = {
   command: "isodense fit",
   summary:
-    "Fits mean and covariance of the normal payments in a ledger (CSV with a header row) and writes a sealed model file. " +
+    "Fits mean and covariance of the normal payments in a ledger (CSV or Parquet file, or a table or query of a DuckDB database) and writes a sealed model file. " +
     "Rows labelled fraud (label fraud or 1) are left out; unlabelled rows are kept.",
-  positionals: [{ name: "ledger.csv", description: "payments, one per row, with a header row" }],
+  positionals: [{ name: "ledger", description: "payments, one per row: .csv (header row), .parquet, or a .duckdb database with --table or --from-sql", optional: true }],
   options: [
+    { name: "table", kind: "string", valueName: "name", description: "database ledgers: the table or view to read" },
+    { name: "from-sql", kind: "string", valueName: "query", description: 'database ledgers: a query to read, e.g. "SELECT * FROM payments WHERE day >= DATE \'2026-11-01\'"' },
+    { name: "moments", kind: "string", valueName: "result.csv", description: "finish a fit from the result of 'isodense sql moments' run on your own engine (instead of <ledger>)" },
+    { name: "sample", kind: "string", valueName: "sample.csv", description: "with --moments: the result of 'isodense sql sample' (cutoff, drift edges, robust estimator)" },
     { name: "out", kind: "string", valueName: "model.json", description: "where to write the model (required)" },
     { name: "features", kind: "string", valueName: "a,b,…", description: "numeric columns used as they are (no transform)" },
     { name: "spec", kind: "string", valueName: "spec.json", description: 'feature spec with transforms: {"features":[{"name":"amount","transform":"log"}]}; with "record", features derived from payment records (docs/features.md)' },
@@ -38,8 +46,9 @@ export const fitSpec: CommandSpec = {
     { name: "min-segment-rows", kind: "integer", valueName: "N", min: 1, description: "rows a segment value needs for its own model", defaultText: "max(10 × columns, 200)" },
   ],
   notes: [
-    "Give exactly one of --features and --spec.",
+    "Give exactly one of --features and --spec, and either <ledger> or --moments with --sample.",
     "With a spec that has \"record\", a ledger of payment records (in time order) is derived on the way; a ledger that already has every feature column is read as it is.",
+    "DuckDB reads a ledger of feature columns (memory limit 256 MB) in one pass; with a Yeo–Johnson feature it draws the sample for λ first.",
     "Exit codes: 0 written; 1 refused by diagnostics (each printed with its remedy; nothing written); 2 usage or input error.",
   ],
 };
@@ -58,26 +67,32 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
       return EXIT_OK;
     }
     const [ledgerPath] = args.positionals;
+    const momentsPath = stringOption(args, "moments");
+    const samplePath = stringOption(args, "sample");
+    if ((ledgerPath === undefined) === (momentsPath === undefined)) {
+      throw new UsageError("<ledger>", "ledger or --moments", "give the ledger to fit, or --moments result.csv with --sample sample.csv to finish a fit computed on your own SQL engine; one of them");
+    }
+    if ((momentsPath === undefined) !== (samplePath === undefined)) {
+      throw new UsageError("--sample", "with --moments", "--moments and --sample go together: the moments of every row and a sample of rows");
+    }
     const out = stringOption(args, "out");
     if (out === undefined) throw new UsageError("--out", "required", "option --out is required (where to write the model file)");
-    if (resolve(out) === resolve(ledgerPath)) {
-      throw new UsageError("--out", "same as the ledger", `option --out names the ledger itself (${out}); choose another file`);
+    for (const input of [ledgerPath, momentsPath, samplePath]) {
+      if (input !== undefined && resolve(out) === resolve(input)) {
+        throw new UsageError("--out", "same as an input", `option --out names an input file (${out}); choose another file`);
+      }
     }
     const spec = await readSpec(stringOption(args, "features"), stringOption(args, "spec"));
     const features = spec.features;
     await checkOutputPath(out, "--out");
     const segmentBy = stringOption(args, "segment-by") ?? null;
-
-    const source = new LedgerRowSource(ledgerPath, {
+    const request = {
       features,
       idColumn: stringOption(args, "id-column"),
       labelColumn: stringOption(args, "label-column"),
       segmentColumn: segmentBy,
       records: derivesFromRecords(spec) ? spec : undefined,
-    });
-    // Header and columns are checked before the first pass, so a typo fails at once.
-    await source.layout();
-
+    };
     const options: FitOptions = {
       features,
       shape: (stringOption(args, "covariance") ?? "auto") as CovarianceShapeRequest,
@@ -87,18 +102,13 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
       cutoffRate: numberOption(args, "cutoff-rate") ?? 0.01,
       seed: numberOption(args, "seed"),
       supportFraction: numberOption(args, "support-fraction"),
-      source: basename(ledgerPath),
       recordSpec: spec,
-      // Counted by the source while it streams; fitModel reads them after its last pass.
-      get rowsRead() {
-        return source.counts.rowsRead;
-      },
-      get rowsExcludedAsFraud() {
-        return source.counts.rowsExcludedAsFraud;
-      },
       onProgress: (pass, rows) => progress.update(pass, rows),
     };
-    const { artifact, report } = await fitModel(source, options);
+    const { artifact, report } =
+      momentsPath !== undefined
+        ? await fitFromMomentsFiles(momentsPath, samplePath!, request, { ...options, source: basename(momentsPath) })
+        : await fitLedger(resolveSource(ledgerPath!, { table: stringOption(args, "table"), fromSql: stringOption(args, "from-sql") }), request, options);
     progress.done();
     await writeFileAtomic(out, JSON.stringify(artifact, null, 2) + "\n");
     writeLines(io.stdout, [...report.lines, `wrote model ${artifact.version} to ${out}`]);
@@ -107,6 +117,32 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
     progress.done();
     return reportFailure(error, io, fitSpec.command);
   }
+}
+
+/**
+ * Fits a ledger: through DuckDB when it has the feature columns; a CSV ledger of payment records
+ * streams through the record deriver (features depend on each account's earlier rows, in order).
+ */
+async function fitLedger(source: DataSource, request: LedgerRequest, options: FitOptions): Promise<{ artifact: ModelArtifact; report: FitReport }> {
+  if (request.records === undefined) return fitSource(source, request, options);
+  if (source.kind !== "csv") {
+    throw new InputError("<ledger>", "records from CSV", `${source.label}: features derived from payment records are read from a CSV ledger; run 'isodense derive' on a CSV export, or give the feature columns`);
+  }
+  const rows = new LedgerRowSource(source.path, request);
+  // Header and columns are checked before the first pass, so a typo fails at once.
+  const layout = await rows.layout();
+  if (layout.records === null) return fitSource(source, request, options);
+  return fitModel(rows, {
+    ...options,
+    source: source.label,
+    // Counted by the source while it streams; fitModel reads them after its last pass.
+    get rowsRead() {
+      return rows.counts.rowsRead;
+    },
+    get rowsExcludedAsFraud() {
+      return rows.counts.rowsExcludedAsFraud;
+    },
+  });
 }
 
 /**

@@ -1,7 +1,8 @@
 /** The fit's report for people: what was read, how the model was shaped and estimated, the cutoff. */
-import type { FitOptions } from "./fit-types";
+import type { SealedFit } from "./fit-artifact";
+import type { FitOptions, FitReport } from "./fit-types";
 import { formatCount as count } from "./format-count";
-import type { ModelSlot } from "./fit-slots";
+import type { ModelSlot, ModelSlots } from "./fit-slots";
 import type { CovarianceShape, Diagnostic, EstimatorName } from "./types";
 
 /** Everything the report speaks of. */
@@ -23,6 +24,39 @@ export interface ReportInput {
   n: number;
   minSegmentRows: number;
   seed: number;
+}
+
+/** What a finished fit reports besides the sealed artifact. */
+export interface FitSummary {
+  options: FitOptions;
+  sealed: SealedFit;
+  slots: ModelSlots;
+  training: { rowsRead: number; rowsUsed: number; rowsExcludedAsFraud: number };
+  shape: CovarianceShape;
+  shapeReason: string;
+  segmentCounts: Map<string, number>;
+  n: number;
+  minSegmentRows: number;
+  seed: number;
+  robustNote?: string;
+}
+
+/** The report of a finished fit: its lines for people and the figures behind them. */
+export function fitReport(r: FitSummary): FitReport {
+  const { sealed, slots, segmentCounts } = r;
+  const { fitted, diagnostics, cut, logDensity } = sealed;
+  return {
+    lines: reportLines({ ...r, ...r.training, fitted, fallbacks: slots.fallbacks, warnings: diagnostics, cut, logDensity }),
+    diagnostics,
+    shape: r.shape,
+    shapeReason: r.shapeReason,
+    rowsUsed: r.training.rowsUsed,
+    segments: [
+      ...fitted.map((s) => ({ key: s.key, rows: s.rows })),
+      ...[...slots.fallbacks.keys()].sort().map((key) => ({ key, rows: segmentCounts.get(key) ?? 0, fallback: slots.fallbacks.get(key)! })),
+    ],
+    conditionNumber: slots.pooled.conditionNumber,
+  };
 }
 
 /** The report's lines for people: rows, shape, estimator, segments, conditioning, warnings, cutoff. */

@@ -48,7 +48,7 @@ export interface SlotPlan {
    * Rows the robust estimator holds per model; default the model's own rows. Smaller when the
    * robust fit runs on a sample (moments computed elsewhere).
    */
-  robustRows?: (rows: number) => number;
+  robustRows?: (key: string, rows: number) => number;
 }
 
 /**
@@ -143,7 +143,7 @@ export class ModelSlots {
 
   private newSlot(key: string, rows: number): ModelSlot {
     const { n, estimator } = this.plan;
-    const held = this.plan.robustRows?.(rows) ?? rows;
+    const held = this.plan.robustRows?.(key, rows) ?? rows;
     return {
       key,
       rows,

@@ -59,7 +59,8 @@ export function columnDeciles(sample: Float64Array, rows: number, k: number, fea
  * with a thin tail, say). The fit still works, but the transformed column is poorly Gaussian, so
  * its contribution to d² and its expected ranges in the explanations deserve less trust.
  */
-function powerAtBound(features: readonly FittedFeature[]): Diagnostic[] {
+/** `power-at-bound` warnings: Yeo–Johnson powers that ended on their search range. */
+export function powerAtBound(features: readonly FittedFeature[]): Diagnostic[] {
   const [low, high] = YEO_JOHNSON_LAMBDA_RANGE;
   return features
     // Brent's search may stop a hair inside the end; 1e-6 is far below any power that matters.

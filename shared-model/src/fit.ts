@@ -24,7 +24,7 @@ import { cutoffPass } from "./fit-cutoff-pass";
 import { checkConstantColumns, estimateSlots, hasError } from "./fit-estimate";
 import { fourthMomentsPass, momentsPass, type PassInput } from "./fit-moment-passes";
 import { readPass } from "./fit-read-pass";
-import { reportLines } from "./fit-report";
+import { fitReport } from "./fit-report";
 import { ModelSlots } from "./fit-slots";
 import { columnDeciles, fitTransforms } from "./fit-transforms";
 import { DEFAULT_FIT_SEED, defaultMinSegmentRows, type FitOptions, type FitReport, type RowSource } from "./fit-types";
@@ -112,18 +112,6 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
     columnReference: columnDeciles(sample, sampleRows, decls.length, features, n),
     training,
   });
-  const { artifact, fitted, diagnostics, cut, logDensity } = sealed;
-  const report: FitReport = {
-    lines: reportLines({ options, ...training, shape, shapeReason, fitted, fallbacks: slots.fallbacks, segmentCounts, warnings: diagnostics, cut, logDensity, n, minSegmentRows, seed }),
-    diagnostics,
-    shape,
-    shapeReason,
-    rowsUsed,
-    segments: [
-      ...fitted.map((s) => ({ key: s.key, rows: s.rows })),
-      ...[...slots.fallbacks.keys()].sort().map((key) => ({ key, rows: segmentCounts.get(key) ?? 0, fallback: slots.fallbacks.get(key)! })),
-    ],
-    conditionNumber: slots.pooled.conditionNumber,
-  };
-  return { artifact, report };
+  const report = fitReport({ options, sealed, slots, training, shape, shapeReason, segmentCounts, n, minSegmentRows, seed });
+  return { artifact: sealed.artifact, report };
 }

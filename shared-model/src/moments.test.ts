@@ -201,3 +201,19 @@ describe("MomentAccumulator", () => {
     expect(() => MomentAccumulator.fromJSON(null as never)).toThrowError(/snapshot: must be an object/);
   });
 });
+
+describe("pushColumns", () => {
+  it("adds a block given column by column exactly as pushing its rows one by one (to 1e-12)", () => {
+    const n = 3;
+    const m = 257;
+    const rows = new Float64Array(m * n);
+    for (let k = 0; k < rows.length; k++) rows[k] = Math.sin(k * 1.7) * 100 + (k % n) * 1e4;
+    const columns = Array.from({ length: n }, (_, i) => Float64Array.from({ length: m }, (_, r) => rows[r * n + i]));
+    const byRows = new MomentAccumulator(n).pushRows(rows.subarray(0, 10 * n), 10).pushRows(rows.subarray(10 * n), m - 10);
+    const byColumns = new MomentAccumulator(n).pushRows(rows.subarray(0, 10 * n), 10).pushColumns(columns.map((c) => c.subarray(10)), m - 10);
+    expect(byColumns.count).toBe(m);
+    for (let i = 0; i < n; i++) expect(Math.abs(byColumns.mean[i] - byRows.mean[i]) / Math.abs(byRows.mean[i])).toBeLessThan(1e-12);
+    for (let k = 0; k < n * n; k++) expect(Math.abs(byColumns.comoment[k] - byRows.comoment[k]) / byRows.comoment[0]).toBeLessThan(1e-12);
+  });
+});
+

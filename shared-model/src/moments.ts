@@ -157,6 +157,45 @@ export class MomentAccumulator {
   }
 
   /**
+   * Adds m rows given column by column (`columns[i][r]` is column i of row r; each array holds at
+   * least m values): the block's mean and its co-moment around that mean in two passes over the
+   * columns (dot products over contiguous memory, much faster than m rank-one updates), then
+   * merged exactly (Chan, Golub & LeVeque 1979). Values must be finite (not checked: the caller
+   * validates rows as it reads them). `scratch` (length ≥ m·n) avoids an allocation per block.
+   * @throws {EstimationInputError} when the number of columns differs from n
+   * @example acc.pushColumns([Float64Array.of(1, 3), Float64Array.of(2, 4)], 2) // rows (1, 2), (3, 4)
+   */
+  pushColumns(columns: readonly Float64Array[], m: number, scratch?: Float64Array): this {
+    const n = this.n;
+    if (columns.length !== n) throw new EstimationInputError("columns", "must hold one array per column", n, columns.length);
+    if (m === 0) return this;
+    const block = new MomentAccumulator(n);
+    const centred = scratch !== undefined && scratch.length >= m * n ? scratch : new Float64Array(m * n);
+    for (let i = 0; i < n; i++) {
+      const column = columns[i];
+      let sum = 0;
+      for (let r = 0; r < m; r++) sum += column[r];
+      const mean = sum / m;
+      block.mean[i] = mean;
+      const base = i * m;
+      for (let r = 0; r < m; r++) centred[base + r] = column[r] - mean;
+    }
+    const c = block.comoment;
+    for (let i = 0; i < n; i++) {
+      const bi = i * m;
+      for (let j = 0; j <= i; j++) {
+        const bj = j * m;
+        let dot = 0;
+        for (let r = 0; r < m; r++) dot += centred[bi + r] * centred[bj + r];
+        c[i * n + j] = dot;
+        c[j * n + i] = dot;
+      }
+    }
+    block.count = m;
+    return this.merge(block);
+  }
+
+  /**
    * Folds another accumulator over the same columns into this one, exactly
    * (Chan, Golub & LeVeque 1979). `other` is left unchanged.
    * @throws {EstimationInputError} when the column counts differ

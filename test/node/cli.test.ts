@@ -346,8 +346,8 @@ describe("usage", () => {
   it("shows each command's options with --help", async () => {
     const run = await isodense(["fit", "--help"]);
     expect(run.code).toBe(0);
-    expect(run.stdout).toContain("usage: isodense fit <ledger.csv> [options]");
-    for (const flag of ["--out", "--features", "--spec", "--covariance", "--estimator", "--id-column", "--label-column", "--segment-by", "--cutoff-rate", "--seed", "--min-segment-rows"]) {
+    expect(run.stdout).toContain("usage: isodense fit [<ledger>] [options]");
+    for (const flag of ["--out", "--features", "--spec", "--covariance", "--estimator", "--id-column", "--label-column", "--segment-by", "--cutoff-rate", "--seed", "--min-segment-rows", "--table", "--from-sql", "--moments", "--sample"]) {
       expect(run.stdout).toContain(flag);
     }
     const score = await isodense(["help", "score"]);
@@ -358,7 +358,7 @@ describe("usage", () => {
   it("rejects an unknown command with exit 2 and lists the commands", async () => {
     const run = await isodense(["train", "ledger.csv"]);
     expect(run.code).toBe(2);
-    expect(run.stderr).toContain("unknown command 'train'; commands are: derive, fit, score, tune, refit, drift, publish, demo-ledger");
+    expect(run.stderr).toContain("unknown command 'train'; commands are: derive, fit, score, tune, refit, drift, sql, publish, demo-ledger");
   });
 
   it("rejects an unknown option by name with exit 2", async () => {

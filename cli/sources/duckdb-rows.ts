@@ -1,0 +1,169 @@
+/**
+ * Reading a source through DuckDB into validated column blocks: raw feature values as doubles,
+ * labels, segments and ids as text. The same column rules as the CSV reader (`resolveLedgerLayout`:
+ * missing columns, features reusing the id, label or segment column) and the same value rules
+ * (`checkRawValue`, `parseLabel`). A CSV file is parsed by DuckDB; when it holds a bad cell, the
+ * project's own CSV reader reads it again to name the file, line and column exactly as before.
+ */
+import type { DuckDBValue } from "@duckdb/node-api";
+import { checkRawValue } from "../../shared-model/src/features";
+import { quoteIdentifier } from "../../shared-model/src/sql-moments";
+import { CsvError, openCsvTable } from "../csv";
+import { InputError } from "../errors";
+import { openLedger, parseLabel, resolveLedgerLayout, type Label, type LedgerLayout, type LedgerRequest } from "../ledger";
+import { DuckEngine, sqlString } from "./duckdb-engine";
+import type { DataSource } from "./source";
+
+/** One block of validated rows, column by column. */
+export interface RowBlock {
+  /** Rows in the block. */
+  size: number;
+  /** Raw value of feature j in row r: `values[j][r]`. */
+  values: Float64Array[];
+  labels: Label[];
+  /** Segment text, `null` when absent or empty. */
+  segments: (string | null)[];
+  /** Id text (the 1-based row number when the source has no id column). */
+  ids: string[];
+  /** 1-based number of the block's first row in the source. */
+  firstRow: number;
+}
+
+/** A source opened in DuckDB: its layout and the SQL relation that selects its columns. */
+export interface OpenedSource {
+  layout: LedgerLayout;
+  /** A parenthesised SELECT of `v_0…v_{k−1}` (doubles), `label_text`, `seg`, `row_id`. */
+  selection: string;
+}
+
+/**
+ * Makes the source readable in `engine`: attaches a database file read-only, or describes a file
+ * reader; checks the requested columns against the source's own.
+ * @throws CsvError naming a missing column (as the CSV reader does); InputError when DuckDB
+ *   cannot open the file
+ */
+export async function openSource(engine: DuckEngine, source: DataSource, request: LedgerRequest): Promise<OpenedSource> {
+  let relation: string;
+  let header: string[];
+  try {
+    if (source.kind === "csv") {
+      // The header through the project's reader: the same errors for a missing or broken header.
+      const table = await openCsvTable(source.path);
+      header = table.header;
+      await table.rows.return();
+      const featureNames = new Set(request.features.map((f) => f.name));
+      const columns = header.map((name) => `${sqlString(name)}: '${featureNames.has(name) ? "DOUBLE" : "VARCHAR"}'`);
+      relation = `read_csv(${sqlString(source.path)}, header = true, auto_detect = false, delim = ',', quote = '"', escape = '"', columns = {${columns.join(", ")}})`;
+    } else if (source.kind === "parquet") {
+      relation = `read_parquet(${sqlString(source.path)})`;
+      header = await describe(engine, relation);
+    } else if (source.kind === "duckdb") {
+      await engine.execute(`ATTACH ${sqlString(source.path)} AS ledger_db (READ_ONLY)`);
+      await engine.execute("USE ledger_db");
+      relation = source.table !== undefined ? quoteQualified(source.table) : `(${source.query})`;
+      header = await describe(engine, relation);
+    } else {
+      throw new InputError("<ledger>", "SQLite through DuckDB", `${source.path}: SQLite databases are read by the SQLite reader, not DuckDB`);
+    }
+  } catch (error) {
+    if (error instanceof CsvError || error instanceof InputError) throw error;
+    throw new InputError(source.label, "cannot be read", `${source.label}: ${(error as Error).message}`);
+  }
+  const layout = resolveLedgerLayout(header, source.label, request);
+  const select = request.features.map((f, j) => `CAST(${quoteIdentifier(f.name)} AS DOUBLE) AS v_${j}`);
+  select.push(layout.labelColumn === null ? "NULL::VARCHAR AS label_text" : `CAST(${quoteIdentifier(layout.labelColumn)} AS VARCHAR) AS label_text`);
+  select.push(layout.segmentColumn === null ? "NULL::VARCHAR AS seg" : `CAST(${quoteIdentifier(layout.segmentColumn)} AS VARCHAR) AS seg`);
+  select.push(layout.idColumn === null ? "NULL::VARCHAR AS row_id" : `CAST(${quoteIdentifier(layout.idColumn)} AS VARCHAR) AS row_id`);
+  return { layout, selection: `(SELECT ${select.join(", ")} FROM ${relation})` };
+}
+
+async function describe(engine: DuckEngine, relation: string): Promise<string[]> {
+  const rows = await engine.rows(`DESCRIBE SELECT * FROM ${relation}`);
+  return rows.map((r) => String(r.column_name));
+}
+
+/** A table name, possibly schema-qualified (`main.payments`), each part quoted. */
+function quoteQualified(name: string): string {
+  return name.split(".").map((part) => quoteIdentifier(part)).join(".");
+}
+
+/**
+ * Streams the validated rows of an opened source in blocks.
+ * @param query a SELECT over `opened.selection` returning the same columns (default: all rows in order)
+ * @throws CsvError naming the file, line (CSV) or row (other sources) and column of the first bad value
+ */
+export async function* readBlocks(
+  engine: DuckEngine,
+  source: DataSource,
+  opened: OpenedSource,
+  request: LedgerRequest,
+  query = `SELECT * FROM ${opened.selection} AS ledger`,
+): AsyncGenerator<RowBlock, void, undefined> {
+  const k = request.features.length;
+  let rowNumber = 0;
+  try {
+    for await (const chunk of engine.stream(query)) {
+      const size = chunk.rowCount;
+      const block: RowBlock = {
+        size,
+        values: Array.from({ length: k }, () => new Float64Array(size)),
+        labels: new Array(size),
+        segments: new Array(size),
+        ids: new Array(size),
+        firstRow: rowNumber + 1,
+      };
+      for (let j = 0; j < k; j++) {
+        const vector = chunk.getColumnVector(j);
+        const out = block.values[j];
+        const feature = request.features[j];
+        for (let r = 0; r < size; r++) {
+          const value = vector.getItem(r);
+          const problem = typeof value === "number" ? checkRawValue(feature, value) : "the cell is empty; a number is required";
+          if (problem !== null) await badValue(source, request, rowNumber + r + 1, opened.layout.header[opened.layout.featureIndex[j]], problem);
+          out[r] = value as number;
+        }
+      }
+      const labels = chunk.getColumnValues(k);
+      const segments = chunk.getColumnValues(k + 1);
+      const ids = chunk.getColumnValues(k + 2);
+      for (let r = 0; r < size; r++) {
+        rowNumber++;
+        const labelText = text(labels[r]);
+        const label = labelText === null ? null : parseLabel(labelText);
+        if (label === undefined) {
+          await badValue(source, request, rowNumber, opened.layout.labelColumn!, `'${labelText}' is not a label; expected fraud, legitimate, 1, 0 or an empty cell`);
+        }
+        block.labels[r] = label ?? null;
+        const segment = text(segments[r]);
+        block.segments[r] = segment === "" ? null : segment;
+        block.ids[r] = text(ids[r]) ?? String(rowNumber);
+      }
+      yield block;
+    }
+  } catch (error) {
+    if (error instanceof CsvError || error instanceof InputError) throw error;
+    // DuckDB refused a cell (text in a number column, a broken quote): name it as the CSV reader does.
+    if (source.kind === "csv") await locateInCsv(source, request);
+    throw new InputError(source.label, "cannot be read", `${source.label}: ${(error as Error).message}`);
+  }
+}
+
+function text(value: DuckDBValue): string | null {
+  return value === null || value === undefined ? null : String(value);
+}
+
+/** Throws the error for a bad value: the CSV reader's own for CSV files, by row for the others. */
+async function badValue(source: DataSource, request: LedgerRequest, row: number, column: string, rule: string): Promise<never> {
+  if (source.kind === "csv") await locateInCsv(source, request);
+  throw new CsvError(source.label, null, column, rule, `${source.label} row ${row}, column '${column}': ${rule}`);
+}
+
+/** Reads a CSV file with the project's reader until it throws the error that names the bad cell. */
+async function locateInCsv(source: DataSource, request: LedgerRequest): Promise<void> {
+  const ledger = await openLedger(source.path, request);
+  try {
+    for await (const row of ledger.rows) void row;
+  } finally {
+    await ledger.rows.return();
+  }
+}
