@@ -200,7 +200,7 @@ export function formatHelp(spec: CommandSpec): string {
   }
   lines.push("options:");
   for (const o of spec.options) {
-    const left = o.kind === "switch" ? `--${o.name}` : `--${o.name} <${o.choices ? o.choices.join("|") : o.valueName ?? "value"}>`;
+    const left = o.kind === "switch" ? `--${o.name}` : `--${o.name} <${o.choices ? o.choices.join("|") : (o.valueName ?? "value")}>`;
     const def = o.defaultText ? ` (default: ${o.defaultText})` : "";
     lines.push(`  ${pad(left, 28)}${o.description}${def}`);
   }

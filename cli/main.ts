@@ -133,10 +133,7 @@ export async function main(argv: string[], io: CommandIO = processIO()): Promise
   }
   const entry = COMMANDS.find((c) => c.name === name);
   if (entry === undefined) {
-    writeLines(io.stderr, [
-      `isodense: unknown command '${name}'; commands are: ${COMMANDS.map((c) => c.name).join(", ")}`,
-      "run 'isodense --help' for usage",
-    ]);
+    writeLines(io.stderr, [`isodense: unknown command '${name}'; commands are: ${COMMANDS.map((c) => c.name).join(", ")}`, "run 'isodense --help' for usage"]);
     return 2;
   }
   let runner: CommandRunner;

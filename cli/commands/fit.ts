@@ -8,14 +8,14 @@ import { basename, resolve } from "node:path";
 import { FeatureSpecError, parseFeatureSpec } from "../../shared-model/src/features";
 import { derivesFromRecords, parseRecordSpec, type RecordSpec } from "../../shared-model/src/records/spec";
 import type { ModelArtifact } from "../../shared-model/src/artifact";
-import { fitModel, type FitOptions, type FitReport } from "../../shared-model/src/fit";
+import type { FitOptions, FitReport } from "../../shared-model/src/fit";
 import type { CovarianceShapeRequest, EstimatorName, FeatureDeclaration } from "../../shared-model/src/types";
 import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
 import { EXIT_OK, InputError, reportFailure } from "../errors";
 import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { LedgerRowSource, type LedgerRequest } from "../ledger";
-import { fitSource } from "../sources/fit-source";
+import { fitRowSource, fitSource } from "../sources/fit-source";
 import { fitFromMomentsFiles } from "../sources/moments-files";
 import { resolveSource, type DataSource } from "../sources/source";
 import { createProgress } from "../progress";
@@ -29,12 +29,22 @@ export const fitSpec: CommandSpec = {
   positionals: [{ name: "ledger", description: "payments, one per row: .csv (header row), .parquet, or a .duckdb database with --table or --from-sql", optional: true }],
   options: [
     { name: "table", kind: "string", valueName: "name", description: "database ledgers: the table or view to read" },
-    { name: "from-sql", kind: "string", valueName: "query", description: 'database ledgers: a query to read, e.g. "SELECT * FROM payments WHERE day >= DATE \'2026-11-01\'"' },
-    { name: "moments", kind: "string", valueName: "result.csv", description: "finish a fit from the result of 'isodense sql moments' run on your own engine (instead of <ledger>)" },
+    { name: "from-sql", kind: "string", valueName: "query", description: "database ledgers: a query to read, e.g. \"SELECT * FROM payments WHERE day >= DATE '2026-11-01'\"" },
+    {
+      name: "moments",
+      kind: "string",
+      valueName: "result.csv",
+      description: "finish a fit from the result of 'isodense sql moments' run on your own engine (instead of <ledger>)",
+    },
     { name: "sample", kind: "string", valueName: "sample.csv", description: "with --moments: the result of 'isodense sql sample' (cutoff, drift edges, robust estimator)" },
     { name: "out", kind: "string", valueName: "model.json", description: "where to write the model (required)" },
     { name: "features", kind: "string", valueName: "a,b,…", description: "numeric columns used as they are (no transform)" },
-    { name: "spec", kind: "string", valueName: "spec.json", description: 'feature spec with transforms: {"features":[{"name":"amount","transform":"log"}]}; with "record", features derived from payment records (docs/features.md)' },
+    {
+      name: "spec",
+      kind: "string",
+      valueName: "spec.json",
+      description: 'feature spec with transforms: {"features":[{"name":"amount","transform":"log"}]}; with "record", features derived from payment records (docs/features.md)',
+    },
     { name: "covariance", kind: "string", choices: ["full", "diagonal", "auto"], description: "covariance shape; auto is full when rows ≥ 10 × columns", defaultText: "auto" },
     { name: "estimator", kind: "string", choices: ["classical", "shrinkage", "robust"], description: "covariance estimator", defaultText: "classical" },
     { name: "id-column", kind: "string", valueName: "column", description: "id column (kept out of the features)", defaultText: "id if present" },
@@ -47,7 +57,7 @@ export const fitSpec: CommandSpec = {
   ],
   notes: [
     "Give exactly one of --features and --spec, and either <ledger> or --moments with --sample.",
-    "With a spec that has \"record\", a ledger of payment records (in time order) is derived on the way; a ledger that already has every feature column is read as it is.",
+    'With a spec that has "record", a ledger of payment records (in time order) is derived on the way; a ledger that already has every feature column is read as it is.',
     "DuckDB reads a ledger of feature columns (memory limit 256 MB) in one pass; with a Yeo–Johnson feature it draws the sample for λ first.",
     "Exit codes: 0 written; 1 refused by diagnostics (each printed with its remedy; nothing written); 2 usage or input error.",
   ],
@@ -70,7 +80,11 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
     const momentsPath = stringOption(args, "moments");
     const samplePath = stringOption(args, "sample");
     if ((ledgerPath === undefined) === (momentsPath === undefined)) {
-      throw new UsageError("<ledger>", "ledger or --moments", "give the ledger to fit, or --moments result.csv with --sample sample.csv to finish a fit computed on your own SQL engine; one of them");
+      throw new UsageError(
+        "<ledger>",
+        "ledger or --moments",
+        "give the ledger to fit, or --moments result.csv with --sample sample.csv to finish a fit computed on your own SQL engine; one of them",
+      );
     }
     if ((momentsPath === undefined) !== (samplePath === undefined)) {
       throw new UsageError("--sample", "with --moments", "--moments and --sample go together: the moments of every row and a sample of rows");
@@ -126,23 +140,17 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
 async function fitLedger(source: DataSource, request: LedgerRequest, options: FitOptions): Promise<{ artifact: ModelArtifact; report: FitReport }> {
   if (request.records === undefined) return fitSource(source, request, options);
   if (source.kind !== "csv") {
-    throw new InputError("<ledger>", "records from CSV", `${source.label}: features derived from payment records are read from a CSV ledger; run 'isodense derive' on a CSV export, or give the feature columns`);
+    throw new InputError(
+      "<ledger>",
+      "records from CSV",
+      `${source.label}: features derived from payment records are read from a CSV ledger; run 'isodense derive' on a CSV export, or give the feature columns`,
+    );
   }
   const rows = new LedgerRowSource(source.path, request);
   // Header and columns are checked before the first pass, so a typo fails at once.
   const layout = await rows.layout();
   if (layout.records === null) return fitSource(source, request, options);
-  return fitModel(rows, {
-    ...options,
-    source: source.label,
-    // Counted by the source while it streams; fitModel reads them after its last pass.
-    get rowsRead() {
-      return rows.counts.rowsRead;
-    },
-    get rowsExcludedAsFraud() {
-      return rows.counts.rowsExcludedAsFraud;
-    },
-  });
+  return fitRowSource(rows, () => rows.counts, { ...options, source: source.label });
 }
 
 /**
@@ -176,7 +184,11 @@ export async function readSpec(list: string | undefined, specPath: string | unde
       return parseRecordSpec({ features: declared });
     } catch (error) {
       if (error instanceof FeatureSpecError) {
-        throw new UsageError("--features", error.rule, `option --features: ${error.problems.map((p) => `${p.field.replace(/^features\[(\d+)\]\.name$/, (_, k) => `name ${Number(k) + 1}`)} ${p.rule}`).join("; ")}`);
+        throw new UsageError(
+          "--features",
+          error.rule,
+          `option --features: ${error.problems.map((p) => `${p.field.replace(/^features\[(\d+)\]\.name$/, (_, k) => `name ${Number(k) + 1}`)} ${p.rule}`).join("; ")}`,
+        );
       }
       throw error;
     }

@@ -93,7 +93,11 @@ async function fittedForSql(decls: FeatureDeclaration[], samplePath: string | un
   if (!needsFittedParameters(decls)) return fitFeatures(decls, () => new Float64Array(0));
   if (samplePath === undefined) {
     const names = decls.filter((d) => d.transform === "yeo-johnson").map((d) => d.name);
-    throw new InputError("--sample", "needed for yeo-johnson", `${names.join(", ")} ${names.length === 1 ? "has" : "have"} a Yeo–Johnson power to fit: run 'isodense sql sample' first, export its result as CSV and pass it with --sample`);
+    throw new InputError(
+      "--sample",
+      "needed for yeo-johnson",
+      `${names.join(", ")} ${names.length === 1 ? "has" : "have"} a Yeo–Johnson power to fit: run 'isodense sql sample' first, export its result as CSV and pass it with --sample`,
+    );
   }
   const ledger = await openLedger(samplePath, { features: decls, segmentColumn: segmentBy });
   const rows: FitRow[] = [];

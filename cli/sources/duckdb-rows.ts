@@ -11,7 +11,7 @@ import { quoteIdentifier } from "../../shared-model/src/sql-moments";
 import { CsvError, openCsvTable } from "../csv";
 import { InputError } from "../errors";
 import { openLedger, parseLabel, resolveLedgerLayout, type Label, type LedgerLayout, type LedgerRequest } from "../ledger";
-import { DuckEngine, sqlString } from "./duckdb-engine";
+import { type DuckEngine, sqlString } from "./duckdb-engine";
 import type { DataSource } from "./source";
 
 /** One block of validated rows, column by column. */
@@ -84,7 +84,10 @@ async function describe(engine: DuckEngine, relation: string): Promise<string[]>
 
 /** A table name, possibly schema-qualified (`main.payments`), each part quoted. */
 function quoteQualified(name: string): string {
-  return name.split(".").map((part) => quoteIdentifier(part)).join(".");
+  return name
+    .split(".")
+    .map((part) => quoteIdentifier(part))
+    .join(".");
 }
 
 /**

@@ -4,7 +4,7 @@
  */
 import type { ModelArtifact } from "../../shared-model/src/artifact";
 import type { FitOptions, FitReport, FitRow } from "../../shared-model/src/fit";
-import { fitFromMoments } from "../../shared-model/src/fit-from-moments";
+import { fitFromMoments, type MomentsResult } from "../../shared-model/src/fit-from-moments";
 import { MomentsTableError, readMomentsTable, type MomentCell } from "../../shared-model/src/moments-table";
 import { openCsvTable } from "../csv";
 import { InputError } from "../errors";
@@ -26,7 +26,7 @@ export async function fitFromMomentsFiles(
   for await (const record of table.rows) {
     records.push(Object.fromEntries(table.header.map((name, i) => [name, record.cells[i]])));
   }
-  let result;
+  let result: MomentsResult;
   try {
     result = readMomentsTable(records, request.features);
   } catch (error) {

@@ -56,12 +56,20 @@ export function resolveSource(path: string, options: { table?: string; fromSql?:
   const name = basename(path);
   if (kind === "csv" || kind === "parquet") {
     if (table !== undefined || fromSql !== undefined) {
-      throw new UsageError(table !== undefined ? "--table" : "--from-sql", "only for databases", `${table !== undefined ? "--table" : "--from-sql"} reads a DuckDB or SQLite database; ${path} is a ${kind} file`);
+      throw new UsageError(
+        table !== undefined ? "--table" : "--from-sql",
+        "only for databases",
+        `${table !== undefined ? "--table" : "--from-sql"} reads a DuckDB or SQLite database; ${path} is a ${kind} file`,
+      );
     }
     return { kind, path, label: name };
   }
   if ((table === undefined) === (fromSql === undefined)) {
-    throw new UsageError("--table", "one of --table and --from-sql", `${path} is a database: give the table to read (--table NAME) or a query (--from-sql "SELECT …"), one of them`);
+    throw new UsageError(
+      "--table",
+      "one of --table and --from-sql",
+      `${path} is a database: give the table to read (--table NAME) or a query (--from-sql "SELECT …"), one of them`,
+    );
   }
   if (fromSql !== undefined) {
     const query = fromSql.trim().replace(/;\s*$/, "");

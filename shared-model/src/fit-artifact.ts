@@ -2,16 +2,7 @@
  * The end of a fit: the cutoff from the sampled d², the log-density cutoff per model, the drift
  * reference, the content-derived version, the seal, and a verification that the artifact loads.
  */
-import {
-  ArtifactError,
-  canonicalJson,
-  parseArtifact,
-  sealArtifact,
-  sha256Hex,
-  type ArtifactSegment,
-  type ModelArtifact,
-  type UnsealedArtifact,
-} from "./artifact";
+import { ArtifactError, canonicalJson, parseArtifact, sealArtifact, sha256Hex, type ArtifactSegment, type ModelArtifact, type UnsealedArtifact } from "./artifact";
 import { outOfSampleCutoff, type LawCutoff } from "./cutoff-law";
 import type { CutoffSample } from "./fit-cutoff-pass";
 import type { ModelSlot, ModelSlots } from "./fit-slots";
@@ -126,4 +117,3 @@ export async function contentVersion(content: Omit<UnsealedArtifact, "version">,
   const day = new Date(createdAt).toISOString().slice(0, 10).replace(/-/g, "");
   return `m${day}-${hash.slice(0, 8)}`;
 }
-

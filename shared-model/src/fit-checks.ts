@@ -87,10 +87,7 @@ export function trainingCounts(options: FitOptions, rowsUsed: number): { rowsRea
     throw new FitInputError("rowsExcludedAsFraud", `must be a whole number ≥ 0; got ${String(rowsExcludedAsFraud)}`);
   }
   if (!(Number.isSafeInteger(rowsRead) && rowsRead >= rowsUsed + rowsExcludedAsFraud)) {
-    throw new FitInputError(
-      "rowsRead",
-      `must be a whole number ≥ rows used + rows excluded as fraud (${rowsUsed + rowsExcludedAsFraud}); got ${String(rowsRead)}`,
-    );
+    throw new FitInputError("rowsRead", `must be a whole number ≥ rows used + rows excluded as fraud (${rowsUsed + rowsExcludedAsFraud}); got ${String(rowsRead)}`);
   }
   return { rowsRead, rowsExcludedAsFraud };
 }

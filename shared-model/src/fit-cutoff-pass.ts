@@ -9,6 +9,7 @@ import { CUTOFF_SAMPLE_ROWS } from "./fit-types";
 import { createRandom } from "./random";
 import { Reservoir } from "./reservoir";
 import { mahalanobisSq } from "./score";
+import type { ModelSlot } from "./fit-slots";
 
 /** The d² sample of pass 4 and the traffic each scoring model saw. */
 export interface CutoffSample {
@@ -22,6 +23,62 @@ export interface CutoffSample {
 }
 
 /**
+ * Keeps, for rows offered with the model that scores them, a bounded seeded reservoir of their d²
+ * (and deleted distances) and counts the rows each model scored: the input of the cutoff law.
+ */
+export class CutoffSampler {
+  private readonly sample: Reservoir;
+  private readonly diff: Float64Array;
+  private readonly triple = new Float64Array(3);
+  private readonly traffic: ScoringModelTraffic[] = [];
+  private readonly indexOf = new Map<string, number>();
+
+  /**
+   * @param seed the fit's seed (the d² sample draws from seed + 1)
+   * @param withDeleted also keep each row's deleted distance (classical full-covariance fits)
+   */
+  constructor(
+    private readonly n: number,
+    seed: number,
+    private readonly withDeleted: boolean,
+  ) {
+    this.sample = new Reservoir(3, CUTOFF_SAMPLE_ROWS, createRandom(seed + 1));
+    this.diff = new Float64Array(n);
+  }
+
+  /** Scores one transformed row under `model` (its `precision` and `mean` set) and offers it. */
+  offer(model: ModelSlot, x: Float64Array): void {
+    let index = this.indexOf.get(model.key);
+    if (index === undefined) {
+      index = this.traffic.length;
+      this.indexOf.set(model.key, index);
+      this.traffic.push({ key: model.key, rows: model.rows, scored: 0 });
+    }
+    this.traffic[index].scored++;
+    const triple = this.triple;
+    triple[0] = mahalanobisSq(model.precision!, model.mean!, x, this.n, this.diff);
+    triple[1] = this.withDeleted ? deletedDistance(triple[0], model.rows) : 0;
+    triple[2] = index;
+    this.sample.offer(triple);
+  }
+
+  /** The sampled d² values, the model of each, and the rows each scoring model scored. */
+  result(): CutoffSample {
+    const rows = this.sample.rows();
+    const m = rows.length / 3;
+    const inSample = new Float64Array(m);
+    const deleted = this.withDeleted ? new Float64Array(m) : null;
+    const model = new Uint16Array(m);
+    for (let i = 0; i < m; i++) {
+      inSample[i] = rows[3 * i];
+      if (deleted) deleted[i] = rows[3 * i + 1];
+      model[i] = rows[3 * i + 2];
+    }
+    return { inSample, deleted, model, traffic: this.traffic };
+  }
+}
+
+/**
  * Runs pass 4; every live slot must have its `precision` and `mean` set.
  * @param seed the fit's seed (the d² sample draws from seed + 1)
  * @param withDeleted also keep each row's deleted distance (classical full-covariance fits)
@@ -30,34 +87,7 @@ export interface CutoffSample {
  */
 export async function cutoffPass(pass: PassInput, seed: number, withDeleted: boolean): Promise<CutoffSample> {
   const { slots, n } = pass;
-  const sample = new Reservoir(3, CUTOFF_SAMPLE_ROWS, createRandom(seed + 1));
-  const diff = new Float64Array(n);
-  const triple = new Float64Array(3);
-  const traffic: ScoringModelTraffic[] = [];
-  const indexOf = new Map<string, number>();
-  await transformedPass(pass, "cutoff", (row, x) => {
-    const model = slots.scoring(row);
-    let index = indexOf.get(model.key);
-    if (index === undefined) {
-      index = traffic.length;
-      indexOf.set(model.key, index);
-      traffic.push({ key: model.key, rows: model.rows, scored: 0 });
-    }
-    traffic[index].scored++;
-    triple[0] = mahalanobisSq(model.precision!, model.mean!, x, n, diff);
-    triple[1] = withDeleted ? deletedDistance(triple[0], model.rows) : 0;
-    triple[2] = index;
-    sample.offer(triple);
-  });
-  const rows = sample.rows();
-  const m = rows.length / 3;
-  const inSample = new Float64Array(m);
-  const deleted = withDeleted ? new Float64Array(m) : null;
-  const model = new Uint16Array(m);
-  for (let i = 0; i < m; i++) {
-    inSample[i] = rows[3 * i];
-    if (deleted) deleted[i] = rows[3 * i + 1];
-    model[i] = rows[3 * i + 2];
-  }
-  return { inSample, deleted, model, traffic };
+  const sampler = new CutoffSampler(n, seed, withDeleted);
+  await transformedPass(pass, "cutoff", (row, x) => sampler.offer(slots.scoring(row), x));
+  return sampler.result();
 }

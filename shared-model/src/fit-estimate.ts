@@ -80,12 +80,13 @@ export function estimateSlots(slots: ModelSlots, input: EstimationInput): void {
       if (error instanceof FitRefusal) throw error;
       if (error instanceof ExactFitError) {
         problems.push(exactFitDiagnostic(error, slot, columns, mcdSubsetSize(robustRows(slot), n, supportFraction)));
-      } else problems.push({
-        code: "estimate-failed",
-        severity: "error",
-        message: `the ${estimator} covariance of ${slot.key === "*" ? "the pooled model" : `segment '${slot.key}'`} cannot be used: ${(error as Error).message}`,
-        remedy: "drop one of the columns named, or fit with the shrinkage estimator (--estimator shrinkage), which is always well conditioned",
-      });
+      } else
+        problems.push({
+          code: "estimate-failed",
+          severity: "error",
+          message: `the ${estimator} covariance of ${slot.key === "*" ? "the pooled model" : `segment '${slot.key}'`} cannot be used: ${(error as Error).message}`,
+          remedy: "drop one of the columns named, or fit with the shrinkage estimator (--estimator shrinkage), which is always well conditioned",
+        });
     }
     if (slot.key === "*") {
       if (hasError(problems)) throw new FitRefusal([...slots.warnings, ...problems]);
@@ -170,4 +171,3 @@ function diagonalConditionNumber(covariance: Float64Array, n: number): number {
   }
   return lo > 0 ? hi / lo : Infinity;
 }
-

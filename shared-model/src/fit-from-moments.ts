@@ -16,6 +16,7 @@ import { chooseShape, FourthMomentAccumulator } from "./estimators";
 import { columnsOf, modelColumns, transformInto } from "./features";
 import { sealFit } from "./fit-artifact";
 import { checkOptions, checkRow } from "./fit-checks";
+import { CutoffSampler } from "./fit-cutoff-pass";
 import { checkConstantColumns, estimateSlots, hasError } from "./fit-estimate";
 import { countSegment } from "./fit-read-pass";
 import { fitReport } from "./fit-report";
@@ -23,8 +24,7 @@ import { formatCount as count } from "./format-count";
 import { ModelSlots, segmentKey } from "./fit-slots";
 import { columnDeciles, powerAtBound } from "./fit-transforms";
 import { DEFAULT_FIT_SEED, FitInputError, defaultMinSegmentRows, type FitOptions, type FitReport, type FitRow } from "./fit-types";
-import { MomentAccumulator } from "./moments";
-import { mahalanobisSq } from "./score";
+import type { MomentAccumulator } from "./moments";
 import { POOLED_SEGMENT } from "./sql-moments";
 import type { FittedFeature } from "./types";
 
@@ -54,12 +54,7 @@ export interface RowSample {
  * @throws FitInputError when the result or the sample do not fit the options (columns, segments, λ)
  * @example const { artifact } = await fitFromMoments(result, { rows: sampleRows }, options);
  */
-export async function fitFromMoments(
-  result: MomentsResult,
-  sample: RowSample,
-  options: FitOptions,
-  origin = "from SQL",
-): Promise<{ artifact: ModelArtifact; report: FitReport }> {
+export async function fitFromMoments(result: MomentsResult, sample: RowSample, options: FitOptions, origin = "from SQL"): Promise<{ artifact: ModelArtifact; report: FitReport }> {
   checkOptions(options);
   const decls = options.features;
   const columns = modelColumns(decls);
@@ -135,12 +130,10 @@ export async function fitFromMoments(
   }
   estimateSlots(slots, { estimator: options.estimator, shape, columns, seed, supportFraction: options.supportFraction });
 
-  const scoreSample = new Float64Array(sample.rows.length);
-  const diff = new Float64Array(n);
-  sample.rows.forEach((row, r) => {
-    const model = slots.scoring(row);
-    scoreSample[r] = mahalanobisSq(model.precision!, model.mean!, transformed.subarray(r * n, r * n + n), n, diff);
-  });
+  // Deleted distances as the streaming fit keeps them: classical full-covariance fits only.
+  const sampler = new CutoffSampler(n, seed, options.estimator === "classical" && shape === "full");
+  sample.rows.forEach((row, r) => sampler.offer(slots.scoring(row), transformed.subarray(r * n, r * n + n)));
+  const cutoffSample = sampler.result();
 
   const raw = new Float64Array(sample.rows.length * decls.length);
   sample.rows.forEach((row, r) => raw.set(row.values, r * decls.length));
@@ -156,18 +149,24 @@ export async function fitFromMoments(
     shapeReason,
     minSegmentRows,
     slots,
-    scoreSample,
+    cutoffSample,
     columnReference: columnDeciles(raw, sample.rows.length, decls.length, features, n),
     training,
   });
   const exact = sample.rows.length === rowsUsed;
-  const robustNote =
-    exact ? undefined
-    : options.estimator === "robust" ? `robust estimate from a sample: FAST-MCD ran on ${count(sample.rows.length)} sampled rows (moments from all ${count(rowsUsed)}); past one machine the robust estimator works on a sampled query`
-    : options.estimator === "shrinkage" ? `shrinkage intensity from a sample: fourth moments of ${count(sample.rows.length)} sampled rows, scaled to all ${count(rowsUsed)}`
-    : undefined;
+  const robustNote = exact
+    ? undefined
+    : options.estimator === "robust"
+      ? `robust estimate from a sample: FAST-MCD ran on ${count(sample.rows.length)} sampled rows (moments from all ${count(rowsUsed)}); past one machine the robust estimator works on a sampled query`
+      : options.estimator === "shrinkage"
+        ? `shrinkage intensity from a sample: fourth moments of ${count(sample.rows.length)} sampled rows, scaled to all ${count(rowsUsed)}`
+        : undefined;
   const report = fitReport({ options, sealed, slots, training, shape, shapeReason, segmentCounts, n, minSegmentRows, seed, robustNote });
-  report.lines.splice(1, 0, `moments of all ${count(rowsUsed)} rows ${origin}; cutoff and drift edges from ${exact ? "every row" : `a sample of ${count(sample.rows.length)} rows`}`);
+  report.lines.splice(
+    1,
+    0,
+    `moments of all ${count(rowsUsed)} rows ${origin}; cutoff and drift edges from ${exact ? "every row" : `a sample of ${count(sample.rows.length)} rows`}`,
+  );
   return { artifact: sealed.artifact, report };
 }
 

@@ -32,11 +32,7 @@ export function countSegment(counts: Map<string, number>, key: string, segmentBy
   if (key === "*") throw new FitInputError("segment", `'*' is reserved for the pooled model and cannot be a ${segmentBy} value`, rowNumber);
   const before = counts.get(key);
   if (before === undefined && counts.size >= MAX_SEGMENTS - 1) {
-    throw new FitInputError(
-      "segmentBy",
-      `'${segmentBy}' has more than ${MAX_SEGMENTS - 1} distinct values; segment by a categorical column with few values`,
-      rowNumber,
-    );
+    throw new FitInputError("segmentBy", `'${segmentBy}' has more than ${MAX_SEGMENTS - 1} distinct values; segment by a categorical column with few values`, rowNumber);
   }
   counts.set(key, (before ?? 0) + 1);
 }

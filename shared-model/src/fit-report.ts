@@ -63,9 +63,7 @@ export function fitReport(r: FitSummary): FitReport {
 export function reportLines(r: ReportInput): string[] {
   const lines: string[] = [];
   const source = r.options.source ? ` from ${r.options.source}` : "";
-  lines.push(
-    `rows: ${count(r.rowsRead)} read${source}, ${count(r.rowsUsed)} used, ${count(r.rowsExcludedAsFraud)} excluded as labelled fraud`,
-  );
+  lines.push(`rows: ${count(r.rowsRead)} read${source}, ${count(r.rowsUsed)} used, ${count(r.rowsExcludedAsFraud)} excluded as labelled fraud`);
   lines.push(`covariance: ${r.shape} (${r.shapeReason})`);
   lines.push(`estimator: ${estimatorLine(r.options.estimator, r.fitted[0], r.seed)}`);
   if (r.robustNote !== undefined) lines.push(r.robustNote);
@@ -103,8 +101,7 @@ function estimatorLine(estimator: EstimatorName, pooled: ModelSlot, seed: number
   }
   if (details?.estimator === "robust") {
     return (
-      `robust (FAST-MCD, seed ${details.seed ?? seed}): h = ${count(details.h)} of ${count(pooled.rows)} rows, ` +
-      `${count(details.reweightedRows)} rows kept after reweighting`
+      `robust (FAST-MCD, seed ${details.seed ?? seed}): h = ${count(details.h)} of ${count(pooled.rows)} rows, ` + `${count(details.reweightedRows)} rows kept after reweighting`
     );
   }
   return `${estimator} (maximum likelihood, divides by m)`;

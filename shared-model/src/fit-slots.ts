@@ -122,10 +122,7 @@ export class ModelSlots {
    */
   feeding(row: FitRow, rowNumber: number): ModelSlot[] {
     if (rowNumber > this.plan.rowsUsed) {
-      throw new FitInputError(
-        "source",
-        `a later pass yielded more rows than the first pass (${this.plan.rowsUsed}); every pass must yield the same rows`,
-      );
+      throw new FitInputError("source", `a later pass yielded more rows than the first pass (${this.plan.rowsUsed}); every pass must yield the same rows`);
     }
     const key = segmentKey(row, this.plan.segmentBy);
     const pooled = this.pooled;

@@ -62,16 +62,18 @@ export function columnDeciles(sample: Float64Array, rows: number, k: number, fea
 /** `power-at-bound` warnings: Yeo–Johnson powers that ended on their search range. */
 export function powerAtBound(features: readonly FittedFeature[]): Diagnostic[] {
   const [low, high] = YEO_JOHNSON_LAMBDA_RANGE;
-  return features
-    // Brent's search may stop a hair inside the end; 1e-6 is far below any power that matters.
-    .filter((f) => f.transform === "yeo-johnson" && f.lambda !== undefined && (f.lambda <= low + 1e-6 || f.lambda >= high - 1e-6))
-    .map((f) => ({
-      code: "power-at-bound",
-      severity: "warning" as const,
-      message:
-        `the Yeo–Johnson power of ${f.name} reached the end of its range (λ = ${f.lambda}, range ${low} to ${high}): ` +
-        `no power transform makes it look Gaussian, so its part of the score and its expected ranges are less reliable`,
-      columns: [...f.columns],
-      remedy: `declare another transform for ${f.name} in the spec (none or log1p), or split it into an indicator and an amount`,
-    }));
+  return (
+    features
+      // Brent's search may stop a hair inside the end; 1e-6 is far below any power that matters.
+      .filter((f) => f.transform === "yeo-johnson" && f.lambda !== undefined && (f.lambda <= low + 1e-6 || f.lambda >= high - 1e-6))
+      .map((f) => ({
+        code: "power-at-bound",
+        severity: "warning" as const,
+        message:
+          `the Yeo–Johnson power of ${f.name} reached the end of its range (λ = ${f.lambda}, range ${low} to ${high}): ` +
+          `no power transform makes it look Gaussian, so its part of the score and its expected ranges are less reliable`,
+        columns: [...f.columns],
+        remedy: `declare another transform for ${f.name} in the spec (none or log1p), or split it into an indicator and an amount`,
+      }))
+  );
 }

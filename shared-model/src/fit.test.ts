@@ -2,16 +2,7 @@ import { describe, expect, it } from "vitest";
 import { canonicalJson, parseArtifact, sha256Hex, type ModelArtifact } from "./artifact";
 import { FitRefusal } from "./diagnostics";
 import { chiSquareQuantile, chiSquareSurvival, normalQuantile } from "./distributions";
-import {
-  CUTOFF_SAMPLE_ROWS,
-  FIT_SAMPLE_ROWS,
-  FitInputError,
-  defaultMinSegmentRows,
-  fitModel,
-  type FitOptions,
-  type FitRow,
-  type RowSource,
-} from "./fit";
+import { CUTOFF_SAMPLE_ROWS, FIT_SAMPLE_ROWS, FitInputError, defaultMinSegmentRows, fitModel, type FitOptions, type FitRow, type RowSource } from "./fit";
 import { cholesky } from "./linalg";
 import { MomentAccumulator } from "./moments";
 import { createRandom } from "./random";
@@ -69,8 +60,7 @@ function gaussianRows(m: number, mean: number[], covariance: number[], seed: num
   return rows;
 }
 
-const asRows = (values: number[][], segment: (i: number) => string | null = () => null): FitRow[] =>
-  values.map((v, i) => ({ values: Float64Array.from(v), segment: segment(i) }));
+const asRows = (values: number[][], segment: (i: number) => string | null = () => null): FitRow[] => values.map((v, i) => ({ values: Float64Array.from(v), segment: segment(i) }));
 
 async function refusal(run: Promise<unknown>): Promise<FitRefusal> {
   try {
@@ -295,10 +285,7 @@ describe("segments", () => {
   it("sends a segment whose own fit fails a diagnostic to the pooled model, with a warning", async () => {
     // In segment 'flat' every payment has 2 items: a constant column inside that segment only.
     const flat = gaussianRows(300, [30, 2], [16, 0, 0, 1], 25).map((r) => [r[0], 2]);
-    const { artifact, report } = await fitModel(
-      new ArraySource([...rows, ...asRows(flat, () => "flat")]),
-      options(plain("amount", "items"), { segmentBy: "channel" }),
-    );
+    const { artifact, report } = await fitModel(new ArraySource([...rows, ...asRows(flat, () => "flat")]), options(plain("amount", "items"), { segmentBy: "channel" }));
     expect(artifact.segments.flat).toBeUndefined();
     expect(artifact.segmentFallbacks.flat).toContain("items");
     expect(artifact.diagnostics.some((d) => d.code === "segment-fallback" && d.message.includes("'flat'"))).toBe(true);
@@ -306,7 +293,20 @@ describe("segments", () => {
   });
 
   it("refuses '*' as a segment value, naming the row", async () => {
-    const error = await inputError(fitModel(new ArraySource(asRows([[1, 2], [2, 3]], () => "*")), options(plain("a", "b"), { segmentBy: "channel" })));
+    const error = await inputError(
+      fitModel(
+        new ArraySource(
+          asRows(
+            [
+              [1, 2],
+              [2, 3],
+            ],
+            () => "*",
+          ),
+        ),
+        options(plain("a", "b"), { segmentBy: "channel" }),
+      ),
+    );
     expect(error.row).toBe(1);
     expect(error.message).toContain("'*' is reserved for the pooled model");
   });
@@ -315,7 +315,16 @@ describe("segments", () => {
 describe("refusals", () => {
   it("refuses a full covariance with too few rows and says how many are needed", async () => {
     const error = await refusal(
-      fitModel(new ArraySource(asRows([[1, 2, 3, 4], [2, 1, 4, 3], [3, 5, 1, 2]])), options(plain("a", "b", "c", "d"), { shape: "full" })),
+      fitModel(
+        new ArraySource(
+          asRows([
+            [1, 2, 3, 4],
+            [2, 1, 4, 3],
+            [3, 5, 1, 2],
+          ]),
+        ),
+        options(plain("a", "b", "c", "d"), { shape: "full" }),
+      ),
     );
     const tooFew = error.diagnostics.find((d) => d.code === "too-few-rows");
     expect(tooFew?.severity).toBe("error");
@@ -353,7 +362,9 @@ describe("refusals", () => {
     expect(exact?.severity).toBe("error");
     expect(exact?.equation).toBe("payments_24h = 0");
     expect(exact?.columns).toEqual(["payments_24h"]);
-    expect(exact?.message).toBe("800 of 1,000 rows satisfy payments_24h = 0 exactly (in model units), more than the 502 rows the robust fit keeps, so its covariance would be singular");
+    expect(exact?.message).toBe(
+      "800 of 1,000 rows satisfy payments_24h = 0 exactly (in model units), more than the 502 rows the robust fit keeps, so its covariance would be singular",
+    );
     expect(exact?.remedy).toContain("--estimator shrinkage");
     expect(exact?.remedy).toContain("raise --support-fraction above 0.80");
   });
@@ -390,7 +401,15 @@ describe("bad input", () => {
 
   it("names the feature, the rule and the row of a value outside its transform's domain", async () => {
     const bad = [...rows.slice(0, 9), { values: Float64Array.of(-3, 1), segment: null }, ...rows.slice(9)];
-    const error = await inputError(fitModel(new ArraySource(bad), options([{ name: "amount", transform: "log" }, { name: "items", transform: "none" }])));
+    const error = await inputError(
+      fitModel(
+        new ArraySource(bad),
+        options([
+          { name: "amount", transform: "log" },
+          { name: "items", transform: "none" },
+        ]),
+      ),
+    );
     expect(error.field).toBe("amount");
     expect(error.row).toBe(10);
     expect(error.message).toBe("row 10, amount: must be > 0 for the log transform; got -3");
@@ -441,7 +460,10 @@ describe("estimators and transforms end to end", () => {
     const data = gaussianRows(3_000, [3, 0], [0.5, 0, 0, 1], 61).map(([a, b]) => [Math.exp(a), b]);
     const { artifact } = await fitModel(
       new ArraySource(asRows(data)),
-      options([{ name: "amount", transform: "yeo-johnson" }, { name: "z", transform: "none" }]),
+      options([
+        { name: "amount", transform: "yeo-johnson" },
+        { name: "z", transform: "none" },
+      ]),
     );
     const lambda = artifact.features[0].lambda;
     expect(lambda).toBeDefined();
@@ -456,7 +478,10 @@ describe("estimators and transforms end to end", () => {
     const data = gaussianRows(3_000, [3, 0], [0.5, 0, 0, 1], 62).map(([a, b], i) => [Math.exp(a), i % 10 === 0 ? 0.05 + 0.02 * Math.abs(b) : 0]);
     const { artifact } = await fitModel(
       new ArraySource(asRows(data)),
-      options([{ name: "amount", transform: "yeo-johnson" }, { name: "share", transform: "yeo-johnson" }]),
+      options([
+        { name: "amount", transform: "yeo-johnson" },
+        { name: "share", transform: "yeo-johnson" },
+      ]),
     );
     expect(artifact.features[1].lambda).toBe(-5);
     const warnings = artifact.diagnostics.filter((d) => d.code === "power-at-bound");
@@ -601,7 +626,13 @@ describe("outside references", () => {
 describe("moments stay flat in memory", () => {
   it("accumulates the same moments as one MomentAccumulator over the transformed rows", async () => {
     const data = gaussianRows(1_000, [2, 1], [1, 0.5, 0.5, 2], 91).map(([a, b]) => [Math.exp(a), b]);
-    const { artifact } = await fitModel(new ArraySource(asRows(data)), options([{ name: "amount", transform: "log" }, { name: "b", transform: "none" }]));
+    const { artifact } = await fitModel(
+      new ArraySource(asRows(data)),
+      options([
+        { name: "amount", transform: "log" },
+        { name: "b", transform: "none" },
+      ]),
+    );
     const acc = new MomentAccumulator(2);
     for (const [a, b] of data) acc.push([Math.log(a), b]);
     const cov = acc.covariance("m");

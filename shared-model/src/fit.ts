@@ -81,10 +81,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
   const { shape, reason: shapeReason } = chooseShape(options.shape, rowsUsed, n);
   const pooledRowDiagnostics = diagnoseRowCount(rowsUsed, n, shape);
   if (hasError(pooledRowDiagnostics)) throw new FitRefusal(pooledRowDiagnostics);
-  const slots = new ModelSlots(
-    { rowsUsed, segmentCounts, n, shape, estimator: options.estimator, minSegmentRows, segmentBy },
-    pooledRowDiagnostics,
-  );
+  const slots = new ModelSlots({ rowsUsed, segmentCounts, n, shape, estimator: options.estimator, minSegmentRows, segmentBy }, pooledRowDiagnostics);
 
   const sample = read.sample.rows();
   const sampleRows = read.sample.size;

@@ -12,7 +12,6 @@ function irisRows(): number[][] {
   return lines.map((line) => line.split(",").slice(1, 5).map(Number));
 }
 
-
 function accumulate(rows: readonly (readonly number[])[], n: number): MomentAccumulator {
   const acc = new MomentAccumulator(n);
   for (const row of rows) acc.push(row);
@@ -42,7 +41,14 @@ describe("MomentAccumulator", () => {
   it("divides the co-moment by m for the default covariance and by m−1 on request (2×2 worked by hand)", () => {
     // Rows (1,2), (3,4), (5,9): mean (3,5); deviations (−2,−3), (0,−1), (2,4);
     // co-moment [[8, 14], [14, 26]] → ÷3 = [[8/3, 14/3], [14/3, 26/3]], ÷2 = [[4, 7], [7, 13]].
-    const acc = accumulate([[1, 2], [3, 4], [5, 9]], 2);
+    const acc = accumulate(
+      [
+        [1, 2],
+        [3, 4],
+        [5, 9],
+      ],
+      2,
+    );
     expect(acc.count).toBe(3);
     expect(Array.from(acc.mean)).toEqual([3, 5]);
     expect(Array.from(acc.comoment)).toEqual([8, 14, 14, 26]);
@@ -71,7 +77,9 @@ describe("MomentAccumulator", () => {
 
   it("gives the same moments when the three species are accumulated as shards and merged", () => {
     const rows = irisRows();
-    const merged = accumulate(rows.slice(0, 50), 4).merge(accumulate(rows.slice(50, 100), 4)).merge(accumulate(rows.slice(100), 4));
+    const merged = accumulate(rows.slice(0, 50), 4)
+      .merge(accumulate(rows.slice(50, 100), 4))
+      .merge(accumulate(rows.slice(100), 4));
     expectRelativelyClose(merged.mean, expected.iris_all_150.mean, 1e-12, "merged mean");
     expectRelativelyClose(merged.covariance("m"), expected.iris_all_150.cov_mle.flat(), 1e-12, "merged cov_mle");
   });
@@ -140,7 +148,14 @@ describe("MomentAccumulator", () => {
   });
 
   it("merging an accumulator with itself doubles the count and keeps the covariance", () => {
-    const acc = accumulate([[1, 2], [3, 4], [5, 9]], 2);
+    const acc = accumulate(
+      [
+        [1, 2],
+        [3, 4],
+        [5, 9],
+      ],
+      2,
+    );
     acc.merge(acc);
     expect(acc.count).toBe(6);
     expect(Array.from(acc.mean)).toEqual([3, 5]);
@@ -164,7 +179,13 @@ describe("MomentAccumulator", () => {
   });
 
   it("refuses a non-finite value without changing the accumulator", () => {
-    const acc = accumulate([[1, 2], [3, 4]], 2);
+    const acc = accumulate(
+      [
+        [1, 2],
+        [3, 4],
+      ],
+      2,
+    );
     const before = acc.toJSON();
     expect(() => acc.push([5, Number.NaN])).toThrowError(/x\[1\]: must be a finite number/);
     expect(() => acc.pushRows(Float64Array.of(1, 2, Number.POSITIVE_INFINITY, 4), 2)).toThrowError(/rows\[2\] \(row 1, column 0\): must be a finite number/);
@@ -191,7 +212,14 @@ describe("MomentAccumulator", () => {
   });
 
   it("refuses snapshots with a bad field, naming the field and the rule", () => {
-    const good = accumulate([[1, 2], [3, 4], [5, 9]], 2).toJSON();
+    const good = accumulate(
+      [
+        [1, 2],
+        [3, 4],
+        [5, 9],
+      ],
+      2,
+    ).toJSON();
     expect(() => MomentAccumulator.fromJSON({ ...good, n: 0 })).toThrowError(/snapshot\.n: must be an integer ≥ 1/);
     expect(() => MomentAccumulator.fromJSON({ ...good, count: -1 })).toThrowError(/snapshot\.count: must be an integer ≥ 0/);
     expect(() => MomentAccumulator.fromJSON({ ...good, mean: [1] })).toThrowError(/snapshot\.mean: must have 2 entries\. Expected: 2\. Actual: 1\./);
@@ -210,10 +238,12 @@ describe("pushColumns", () => {
     for (let k = 0; k < rows.length; k++) rows[k] = Math.sin(k * 1.7) * 100 + (k % n) * 1e4;
     const columns = Array.from({ length: n }, (_, i) => Float64Array.from({ length: m }, (_, r) => rows[r * n + i]));
     const byRows = new MomentAccumulator(n).pushRows(rows.subarray(0, 10 * n), 10).pushRows(rows.subarray(10 * n), m - 10);
-    const byColumns = new MomentAccumulator(n).pushRows(rows.subarray(0, 10 * n), 10).pushColumns(columns.map((c) => c.subarray(10)), m - 10);
+    const byColumns = new MomentAccumulator(n).pushRows(rows.subarray(0, 10 * n), 10).pushColumns(
+      columns.map((c) => c.subarray(10)),
+      m - 10,
+    );
     expect(byColumns.count).toBe(m);
     for (let i = 0; i < n; i++) expect(Math.abs(byColumns.mean[i] - byRows.mean[i]) / Math.abs(byRows.mean[i])).toBeLessThan(1e-12);
     for (let k = 0; k < n * n; k++) expect(Math.abs(byColumns.comoment[k] - byRows.comoment[k]) / byRows.comoment[0]).toBeLessThan(1e-12);
   });
 });
-

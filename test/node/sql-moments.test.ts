@@ -120,7 +120,21 @@ describe("isodense sql on DuckDB", () => {
       await engine.execute(
         `CREATE TABLE payments AS SELECT * REPLACE (CASE WHEN paymentId = 'pay-000007' THEN -3 ELSE amount END AS amount) FROM read_csv(${sqlString(ledgerPath)}, header = true)`,
       );
-      const sql = await cli(sqlCommand, ["moments", "--spec", specPath, "--source", "payments", "--dialect", "duckdb", "--label-column", "label", "--segment-by", "channel", "--sample", samplePath]);
+      const sql = await cli(sqlCommand, [
+        "moments",
+        "--spec",
+        specPath,
+        "--source",
+        "payments",
+        "--dialect",
+        "duckdb",
+        "--label-column",
+        "label",
+        "--segment-by",
+        "channel",
+        "--sample",
+        samplePath,
+      ]);
       writeCsv(momentsPath, await engine.rows(sql.replace(/;\s*$/, "")));
     } finally {
       engine.close();

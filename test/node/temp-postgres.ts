@@ -21,7 +21,9 @@ export interface TempPostgres {
 export function postgresBinaries(): string | null {
   const root = "/usr/lib/postgresql";
   if (!existsSync(root)) return null;
-  const versions = readdirSync(root).filter((v) => existsSync(join(root, v, "bin", "initdb"))).sort((a, b) => Number(b) - Number(a));
+  const versions = readdirSync(root)
+    .filter((v) => existsSync(join(root, v, "bin", "initdb")))
+    .sort((a, b) => Number(b) - Number(a));
   return versions.length === 0 ? null : join(root, versions[0], "bin");
 }
 
