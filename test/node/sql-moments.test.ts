@@ -4,12 +4,14 @@
  * --moments` finishes the fit from their results. Each model must agree with the streaming fit of
  * the same rows (`fitModel`, Welford's one pass) to 1e-9 relative in every segment's mean and
  * covariance and in the cutoff. The same holds for `isodense fit` reading CSV, Parquet and a
- * DuckDB database through DuckDB. Data: the fictional demo shop (invented), with every transform
+ * DuckDB database through DuckDB. Data: the fictional demo shop (invented), its nine features
+ * derived by isodense derive, with every transform
  * kind (none, log, log1p, Yeo–Johnson, cyclic hour).
  */
 import { mkdtempSync, readFileSync, rmSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
+import { fileURLToPath } from "node:url";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { ledgerCsvLines } from "../../demo-ledger/generate";
 import { parseFeatureSpec } from "../../shared-model/src/features";
@@ -17,6 +19,7 @@ import { fitModel, type FitOptions } from "../../shared-model/src/fit";
 import type { ModelArtifact } from "../../shared-model/src/artifact";
 import { relativeErrors } from "../../scripts/shard-moments";
 import { captureIO } from "../../cli/capture-io";
+import { deriveCommand } from "../../cli/commands/derive";
 import { fitCommand } from "../../cli/commands/fit";
 import { sqlCommand } from "../../cli/commands/sql";
 import { formatCsvRow } from "../../cli/csv";
@@ -28,16 +31,18 @@ const ROWS = 4000;
 const dir = mkdtempSync(join(tmpdir(), "isodense-sql-"));
 const ledgerPath = join(dir, "ledger.csv");
 const specPath = join(dir, "spec.json");
-const spec = JSON.parse(readFileSync(new URL("../../demo-ledger/spec.json", import.meta.url), "utf8")) as { features: { name: string; transform: string }[] };
-// One column as it is, so every transform kind is written as SQL.
-spec.features = spec.features.map((f) => (f.name === "paymentsLast24h" ? { ...f, transform: "none" } : f));
+const recordsPath = join(dir, "records.csv");
+const demoSpecPath = new URL("../../demo-ledger/spec.json", import.meta.url);
+const demoSpec = JSON.parse(readFileSync(demoSpecPath, "utf8")) as { features: { name: string; transform: string }[] };
+// The derived feature columns with their transforms; one column as it is, so every transform kind is written as SQL.
+const spec = { features: demoSpec.features.map(({ name, transform }) => ({ name, transform: name === "paymentsLast24h" ? "none" : transform })) };
 const features = parseFeatureSpec(spec);
 const fitArgs = ["--spec", specPath, "--segment-by", "channel", "--seed", "3"];
 let reference: ModelArtifact;
 
 beforeAll(async () => {
-  const lines = [...ledgerCsvLines({ rows: ROWS })];
-  writeFileSync(ledgerPath, lines.join("\n") + "\n");
+  writeFileSync(recordsPath, [...ledgerCsvLines({ rows: ROWS })].join("\n") + "\n");
+  await cli(deriveCommand, [recordsPath, "--spec", fileURLToPath(demoSpecPath), "--out", ledgerPath]);
   writeFileSync(specPath, JSON.stringify(spec));
   const source = new LedgerRowSource(ledgerPath, { features, labelColumn: "label", idColumn: "paymentId", segmentColumn: "channel" });
   const options: FitOptions = {
