@@ -134,6 +134,8 @@ describe("the review app in Chromium", () => {
     const ticks = await page.getByTestId("pair-chart").locator("text.tick").allInnerTexts();
     expect(ticks.length).toBeGreaterThanOrEqual(4);
     expect(await page.getByText("A score is evidence, not a verdict.").first().isVisible()).toBe(true);
+    // The trail says how long it is and in which order it runs (it is served a page at a time).
+    expect(await text("audit-count")).toMatch(/^\(\d+ events?, newest first\)$/);
     // A tall window, so the whole view fits above the status bar.
     await page.setViewportSize({ width: 1280, height: 1560 });
     await page.screenshot({ path: join(shots, "payment-view.png") });
