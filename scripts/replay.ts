@@ -1,8 +1,12 @@
 /**
  * `npm run replay`: streams the demo ledger's payments to the running service
  * (`POST /v1/score/batch`), so that the review store fills with flags and audit-sample items.
- * Feature names and the segment column are taken from the live model (GET /v1/health), the
- * transaction id from `paymentId` and the account from `accountRef`; labels are never sent. A
+ * When the live model derives its features from payment records (GET /v1/health lists
+ * `paymentFields`), each payment is sent as it is in the ledger (the `payment` form: those columns
+ * only, labels never) and the service derives the features from the account's history; requests
+ * then go one at a time by default, so each account's payments arrive in ledger (time) order.
+ * Otherwise the features are sent ready (`features`, derived locally when the ledger has no feature
+ * columns), with the segment and the account from the ledger. A
  * ledger of payment records (the demo's) has its features derived in ledger order with --spec.
  *
  * Options: --url (default http://127.0.0.1:8787), --token (default: a flow credential from
@@ -16,7 +20,7 @@ import { fileURLToPath } from "node:url";
 import { numberOption, stringOption, type CommandSpec } from "../cli/args";
 import { parseScriptArgs } from "./script-args";
 import { credentialsOf, readDevVars } from "./dev-vars";
-import { ledgerPayments } from "./ledger-payments";
+import { ledgerPayments, type LedgerPayment } from "./ledger-payments";
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 
@@ -31,7 +35,7 @@ const spec: CommandSpec = {
     { name: "spec", kind: "string", valueName: "spec.json", description: "record spec deriving the features of a records ledger", defaultText: "demo-ledger/spec.json" },
     { name: "limit", kind: "integer", valueName: "N", min: 1, description: "send at most N payments", defaultText: "all" },
     { name: "batch", kind: "integer", valueName: "N", min: 1, max: 1000, description: "payments per request (≤ the service's MAX_BATCH)", defaultText: "100" },
-    { name: "parallel", kind: "integer", valueName: "N", min: 1, max: 32, description: "requests in flight", defaultText: "4" },
+    { name: "parallel", kind: "integer", valueName: "N", min: 1, max: 32, description: "requests in flight", defaultText: "1 for payment records (time order per account), else 4" },
   ],
 };
 
@@ -56,7 +60,7 @@ async function main(): Promise<number> {
   const specPath = resolve(stringOption(args, "spec") ?? join(root, "demo-ledger/spec.json"));
   const limit = numberOption(args, "limit") ?? Number.POSITIVE_INFINITY;
   const batchSize = numberOption(args, "batch") ?? 100;
-  const parallel = numberOption(args, "parallel") ?? 4;
+  const parallelOption = numberOption(args, "parallel");
   let token = stringOption(args, "token");
   if (token === undefined) {
     const devVars = join(root, ".dev.vars");
@@ -72,7 +76,7 @@ async function main(): Promise<number> {
     }
   }
 
-  let health: { model: { version: string; features: string[]; segmentBy: string | null } | null };
+  let health: { model: { version: string; features: string[]; segmentBy: string | null; paymentFields?: string[] | null } | null };
   try {
     health = (await (await fetch(`${url}/v1/health`)).json()) as typeof health;
   } catch (error) {
@@ -84,8 +88,11 @@ async function main(): Promise<number> {
     return 1;
   }
   const model = health.model;
+  const paymentFields = model.paymentFields ?? null;
+  const parallel = parallelOption ?? (paymentFields ? 1 : 4);
 
-  process.stdout.write(`replaying ${ledger} to ${url} (model ${model.version}, ${batchSize} per request, ${parallel} in flight)\n`);
+  const form = paymentFields ? "payment records" : "ready features";
+  process.stdout.write(`replaying ${ledger} to ${url} as ${form} (model ${model.version}, ${batchSize} per request, ${parallel} in flight)\n`);
   const tally: Tally = { sent: 0, scored: 0, review: 0, audit: 0, refused: 0, refusals: new Map() };
   const started = Date.now();
   const inFlight = new Set<Promise<void>>();
@@ -125,13 +132,7 @@ async function main(): Promise<number> {
   try {
     for await (const payment of payments) {
       if (tally.sent >= limit || failure) break;
-      const accountRef = payment.cell("accountRef");
-      batch.push({
-        transactionId: payment.cell("paymentId"),
-        features: payment.features,
-        ...(model.segmentBy ? { segment: payment.cell(model.segmentBy) } : {}),
-        ...(accountRef !== "" ? { accountRef } : {}),
-      });
+      batch.push(paymentFields ? paymentRecordBody(payment, paymentFields) : readyFeaturesBody(payment, model.segmentBy));
       tally.sent++;
       if (batch.length === batchSize) {
         send(batch);
@@ -165,6 +166,23 @@ async function main(): Promise<number> {
     ].join("\n"),
   );
   return tally.refused > 0 ? 1 : 0;
+}
+
+/** The `payment` form: the record's own cells under the model's payment fields (the first is the id). */
+function paymentRecordBody(payment: LedgerPayment, fields: readonly string[]): Record<string, unknown> {
+  const [idColumn, ...rest] = fields;
+  return { transactionId: payment.cell(idColumn), payment: Object.fromEntries(rest.map((c) => [c, payment.cell(c)]).filter(([, v]) => v !== "")) };
+}
+
+/** The `features` form: the features by the model's names, the segment and the account. */
+function readyFeaturesBody(payment: LedgerPayment, segmentBy: string | null): Record<string, unknown> {
+  const accountRef = payment.cell("accountRef");
+  return {
+    transactionId: payment.cell("paymentId"),
+    features: payment.features,
+    ...(segmentBy ? { segment: payment.cell(segmentBy) } : {}),
+    ...(accountRef !== "" ? { accountRef } : {}),
+  };
 }
 
 process.exitCode = await main();

@@ -136,7 +136,20 @@ function startWrangler(): ChildProcess {
   step(`starting wrangler dev on ${url}`);
   const child = spawn(
     paths.wrangler,
-    ["dev", "--ip", "127.0.0.1", "--port", String(port), "--persist-to", relative(root, paths.state), "--test-scheduled", "--show-interactive-dev-session=false"],
+    // The demo ledger's payments lie in the past: no clock check on payment times (replays).
+    [
+      "dev",
+      "--ip",
+      "127.0.0.1",
+      "--port",
+      String(port),
+      "--persist-to",
+      relative(root, paths.state),
+      "--test-scheduled",
+      "--show-interactive-dev-session=false",
+      "--var",
+      "PAYMENT_CLOCK_TOLERANCE_SECONDS:0",
+    ],
     { cwd: root, env: quietEnv, stdio: ["ignore", "inherit", "inherit"] },
   );
   child.on("error", (error) => fail(`wrangler dev: ${error.message}`));
@@ -159,9 +172,14 @@ async function waitForHealth(child: ChildProcess, timeoutMs: number): Promise<vo
   fail(`the service did not answer ${url}/v1/health within ${timeoutMs / 1000} s`);
 }
 
-/** A curl that scores the first legitimate payment of the ledger (its features by the model's names). */
+/**
+ * A curl that scores the first legitimate payment of the ledger: as a payment record when the model
+ * derives its features (`paymentFields`), else with its features by the model's names.
+ */
 async function sampleCurl(flowToken: string): Promise<string> {
-  const health = (await (await fetch(`${url}/v1/health`)).json()) as { model: { features: string[]; segmentBy: string | null } | null };
+  const health = (await (await fetch(`${url}/v1/health`)).json()) as {
+    model: { features: string[]; segmentBy: string | null; paymentFields?: string[] | null } | null;
+  };
   const model = health.model;
   if (!model) return "(no model loaded)";
   const payments = ledgerPayments(paths.ledger, model.features, paths.spec);
@@ -169,7 +187,10 @@ async function sampleCurl(flowToken: string): Promise<string> {
   try {
     for await (const { cell, features } of payments) {
       if (cell("label") !== "legitimate") continue;
-      body = { transactionId: "demo-curl-0001", features, ...(model.segmentBy ? { segment: cell(model.segmentBy) } : {}), accountRef: cell("accountRef") };
+      const fields = model.paymentFields;
+      body = fields
+        ? { transactionId: "demo-curl-0001", payment: Object.fromEntries(fields.slice(1).map((c) => [c, cell(c)])) }
+        : { transactionId: "demo-curl-0001", features, ...(model.segmentBy ? { segment: cell(model.segmentBy) } : {}), accountRef: cell("accountRef") };
       break;
     }
   } finally {
