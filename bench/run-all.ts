@@ -56,6 +56,7 @@ const coreOnly = process.argv.includes("--core");
 // The soak runs twice: on /v1/echo first, a control that shows the local simulator's own memory
 // growth under the same load, then the measured soak on /v1/score with review traffic.
 const serviceRuns: { script: string; env?: Record<string, string> }[] = [
+  { script: "sources.ts" },
   { script: "worker-load.ts" },
   { script: "review-ui.ts" },
   { script: "soak.ts", env: { SOAK_ROUTE: "echo", SOAK_REVIEW: "off" } },

@@ -1,0 +1,73 @@
+/**
+ * Fit from sources, against NumPy + pandas in the same run: a 1M × 32 CSV (`%.6f`, fixed seed),
+ * the same data as Parquet, and 10M × 32 as Parquet (memory flat from 1M to 10M). Each fit runs in
+ * its own process. Figures: bench/results/sources.json. Usage: node bin/run-ts.js bench/sources.ts [--no-10m]
+ */
+import { execFileSync } from "node:child_process";
+import { existsSync, mkdirSync, writeFileSync } from "node:fs";
+import { cpus, loadavg, tmpdir } from "node:os";
+import { join } from "node:path";
+import { DuckEngine, sqlString } from "../cli/sources/duckdb-engine";
+import { writeBenchLedger } from "./sources-ledger";
+
+const root = new URL("../", import.meta.url);
+const work = join(tmpdir(), "isodense-bench-sources");
+mkdirSync(work, { recursive: true });
+const csv = join(work, "ledger-1m.csv");
+const parquet = join(work, "ledger-1m.parquet");
+const parquet10 = join(work, "ledger-10m.parquet");
+if (!existsSync(csv)) await writeBenchLedger(1_000_000, csv);
+const engine = await DuckEngine.open();
+if (!existsSync(parquet)) await engine.execute(`COPY (SELECT * FROM read_csv(${sqlString(csv)}, header = true)) TO ${sqlString(parquet)} (FORMAT parquet)`);
+const with10m = !process.argv.includes("--no-10m");
+// 10M rows: the 1M rows ten times over, ids renumbered (the fit's memory, not the data, is measured).
+if (with10m && !existsSync(parquet10)) {
+  await engine.execute(
+    `COPY (SELECT (copy - 1) * 1000000 + id AS id, * EXCLUDE (id) FROM read_parquet(${sqlString(parquet)}), range(1, 11) AS t(copy)) TO ${sqlString(parquet10)} (FORMAT parquet)`,
+  );
+}
+engine.close();
+
+function fit(ledger: string): { seconds: number; peakRssMiB: number } {
+  const out = execFileSync(process.execPath, ["bin/run-ts.js", "bench/fit-source-child.ts", ledger, join(work, "model.json")], { cwd: root, encoding: "utf8" });
+  return JSON.parse(out.trim().split("\n").pop()!);
+}
+
+function pandas(): { seconds: number; peakRssMiB: number } | null {
+  try {
+    const out = execFileSync("python3", ["bench/pandas-fit.py", csv], { cwd: root, encoding: "utf8" });
+    return JSON.parse(out.trim().split("\n").pop()!);
+  } catch {
+    console.log("  NumPy + pandas baseline not run (apt-get install -y python3-pandas)");
+    return null;
+  }
+}
+
+const load = loadavg()[0];
+console.log(`fit from sources, 32 columns, classical full covariance (load average ${load.toFixed(1)} on ${cpus().length} cores)`);
+const baseline = pandas();
+if (baseline) console.log(`  NumPy + pandas, 1M CSV: ${baseline.seconds} s, peak RSS ${baseline.peakRssMiB} MiB`);
+const csvFit = fit(csv);
+console.log(`  isodense fit, 1M CSV: ${csvFit.seconds} s, peak RSS ${csvFit.peakRssMiB} MiB`);
+const parquetFit = fit(parquet);
+console.log(`  isodense fit, 1M Parquet: ${parquetFit.seconds} s, peak RSS ${parquetFit.peakRssMiB} MiB`);
+const parquet10Fit = with10m ? fit(parquet10) : null;
+if (parquet10Fit) console.log(`  isodense fit, 10M Parquet: ${parquet10Fit.seconds} s, peak RSS ${parquet10Fit.peakRssMiB} MiB`);
+const ratio = (a: number, b: number | undefined) => (b === undefined ? null : Number((a / b).toFixed(3)));
+const summary = {
+  measuredAt: new Date().toISOString(),
+  machine: { cpus: cpus().length, model: cpus()[0]?.model ?? "unknown", node: process.version, loadAverage1m: Number(load.toFixed(2)) },
+  pandasCsv1M: baseline,
+  fitCsv1M: csvFit,
+  fitParquet1M: parquetFit,
+  fitParquet10M: parquet10Fit,
+  targets: {
+    csvTimeRatioToPandas: ratio(csvFit.seconds, baseline?.seconds),
+    csvPeakRssRatioToPandas: ratio(csvFit.peakRssMiB, baseline?.peakRssMiB),
+    parquetTimeRatioToPandasCsv: ratio(parquetFit.seconds, baseline?.seconds),
+    peakRssRatio10MTo1M: parquet10Fit ? ratio(parquet10Fit.peakRssMiB, parquetFit.peakRssMiB) : null,
+  },
+};
+mkdirSync(new URL("bench/results/", root), { recursive: true });
+writeFileSync(new URL("bench/results/sources.json", root), JSON.stringify(summary, null, 2) + "\n");
+console.log("written bench/results/sources.json");
