@@ -21,7 +21,7 @@ import { auditPosition } from "./audit-sample";
 import { counters } from "./counters";
 import { sendConflicts, sendReviewItems, sendShadowComparisons } from "./handoff";
 import type { ModelSnapshot } from "./model-cache";
-import { deriveAtAccounts } from "../history/history-client";
+import { deriveAtAccounts, type HistoryOutcome } from "../history/history-client";
 import type { PendingPayment } from "../history/payment-form";
 import { fieldPath } from "../problems";
 import { completePayment, isPending, scorePayment, validatePayment, type ScoredPayment, type ValidPayment } from "./score-payment";
@@ -118,6 +118,10 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
   }
 
   const claimed = entries.filter((e): e is ValidEntry => e.state === "valid");
+  // Payment records go to their accounts' histories while their ids are claimed: two stores, one
+  // wait. Safe in parallel because the history counts an id once whatever the claim says (a
+  // repeat answered from the idempotency store, or refused as a conflict, is not recorded again).
+  const derivation = deriveFromHistory(call, claimed);
   const claims = await claimTransactions(
     env,
     claimed.map((e) => ({ transactionId: e.payment.transactionId, contentHash: e.bodyHash })),
@@ -137,9 +141,9 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
     }
   });
 
-  // Payment records not answered from the idempotency store: their accounts' histories derive the
-  // features and record them (one call per account).
-  await deriveFromHistory(call, entries, prefixOf);
+  // Payment records still open (not answered from the idempotency store, not refused) take the
+  // features their histories derived.
+  completeFromHistory(call, entries, await derivation, prefixOf);
 
   const scoredAt = new Date().toISOString();
   const valid = claimed.filter((e): e is ReadyEntry => entries[e.index] === e && !isPending(e.payment));
@@ -194,25 +198,35 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
   });
 }
 
+/** Payment-form entries and what their accounts' histories answered, in the same order. */
+interface Derivation {
+  pending: (ValidEntry & { payment: PendingPayment })[];
+  outcomes: HistoryOutcome[];
+}
+
 /**
- * Payment-form entries still open: derives their features at their accounts' histories (one call
- * per account, bounded by HISTORY_TIMEOUT_MS) and completes them, or refuses them: 400 for a
- * record the derivation refuses, 503 `history-unavailable` (retryable) when the history store
- * failed or did not answer in time.
+ * Derives the payment-form entries' features at their accounts' histories (one call per account,
+ * bounded by HISTORY_TIMEOUT_MS); the histories record the payments.
  */
-async function deriveFromHistory(call: ScoringCall, entries: Entry[], prefixOf: (index: number) => string): Promise<void> {
-  const pending = entries.filter((e): e is ValidEntry & { payment: PendingPayment } => e.state === "valid" && isPending(e.payment));
-  if (pending.length === 0) return;
+async function deriveFromHistory(call: ScoringCall, checked: readonly ValidEntry[]): Promise<Derivation> {
+  const pending = checked.filter((e): e is ValidEntry & { payment: PendingPayment } => isPending(e.payment));
+  if (pending.length === 0) return { pending, outcomes: [] };
   const model = call.snapshot.live;
   if (model.recordSpec === null) throw new Error(`payment records were accepted for model ${model.version}, which has no record spec`);
-  const outcomes = await deriveAtAccounts(
-    call.env.ACCOUNT_HISTORY,
-    model.version,
-    model.recordSpec,
-    pending.map((e) => e.payment.record),
-    call.settings.HISTORY_TIMEOUT_MS,
-  );
+  const records = pending.map((e) => e.payment.record);
+  const outcomes = await deriveAtAccounts(call.env.ACCOUNT_HISTORY, model.version, model.recordSpec, records, call.settings.HISTORY_TIMEOUT_MS);
+  return { pending, outcomes };
+}
+
+/**
+ * Completes the payment-form entries still open with their derived features, or refuses them: 400
+ * for a record the derivation refuses, 503 `history-unavailable` (retryable) when the history store
+ * failed or did not answer in time.
+ */
+function completeFromHistory(call: ScoringCall, entries: Entry[], { pending, outcomes }: Derivation, prefixOf: (index: number) => string): void {
+  const model = call.snapshot.live;
   pending.forEach((entry, i) => {
+    if (entries[entry.index] !== entry) return;
     const outcome = outcomes[i];
     const prefix = prefixOf(entry.index);
     const refuse = (r: Refusal) => {
