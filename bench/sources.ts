@@ -4,7 +4,7 @@
  * its own process. Figures: bench/results/sources.json. Usage: node bin/run-ts.js bench/sources.ts [--no-10m]
  */
 import { execFileSync } from "node:child_process";
-import { existsSync, mkdirSync, writeFileSync } from "node:fs";
+import { existsSync, mkdirSync, renameSync, writeFileSync } from "node:fs";
 import { cpus, loadavg, tmpdir } from "node:os";
 import { join } from "node:path";
 import { DuckEngine, sqlString } from "../cli/sources/duckdb-engine";
@@ -22,9 +22,12 @@ if (!existsSync(parquet)) await engine.execute(`COPY (SELECT * FROM read_csv(${s
 const with10m = !process.argv.includes("--no-10m");
 // 10M rows: the 1M rows ten times over, ids renumbered (the fit's memory, not the data, is measured).
 if (with10m && !existsSync(parquet10)) {
+  // Order does not matter here, and keeping it would hold rows past the memory limit.
+  await engine.execute("SET preserve_insertion_order = false");
   await engine.execute(
-    `COPY (SELECT (copy - 1) * 1000000 + id AS id, * EXCLUDE (id) FROM read_parquet(${sqlString(parquet)}), range(1, 11) AS t(copy)) TO ${sqlString(parquet10)} (FORMAT parquet)`,
+    `COPY (SELECT (copy - 1) * 1000000 + id AS id, * EXCLUDE (id) FROM read_parquet(${sqlString(parquet)}), range(1, 11) AS t(copy)) TO ${sqlString(`${parquet10}.partial`)} (FORMAT parquet)`,
   );
+  renameSync(`${parquet10}.partial`, parquet10);
 }
 engine.close();
 
@@ -35,7 +38,9 @@ function fit(ledger: string): { seconds: number; peakRssMiB: number } {
 
 function pandas(): { seconds: number; peakRssMiB: number } | null {
   try {
-    const out = execFileSync("python3", ["bench/pandas-fit.py", csv], { cwd: root, encoding: "utf8" });
+    // Debian's interpreter, where python3-pandas installs (a python3 earlier on PATH may lack it).
+    const python = existsSync("/usr/bin/python3") ? "/usr/bin/python3" : "python3";
+    const out = execFileSync(python, ["bench/pandas-fit.py", csv], { cwd: root, encoding: "utf8" });
     return JSON.parse(out.trim().split("\n").pop()!);
   } catch {
     console.log("  NumPy + pandas baseline not run (apt-get install -y python3-pandas)");
