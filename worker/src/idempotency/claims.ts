@@ -7,8 +7,8 @@
  * sight, on every isolate: sent again with the same content it gets the same answer; with other
  * content, 409 (and the conflict goes to the review store for the analysts). The ids live in
  * {@link IdempotencyObject}s, one per shard of the id space ({@link IDEMPOTENCY_SHARDS}), so each
- * payment costs one awaited round trip to one object and nothing more on its path: the answer is
- * kept afterwards, through `waitUntil`.
+ * payment costs one awaited round trip to one object and nothing more on its path (a batch: one per
+ * shard involved, at most eight): the answer is kept afterwards, through `waitUntil`.
  *
  * "The same answer": the answer stored for the id, once the first call has finished; its review item
  * is kept beside it and handed off again with each repeat (the review store keeps one row), so a
@@ -22,11 +22,16 @@
 import type { ClaimRequest, ClaimVerdict, IdempotencyObject, RememberRequest } from "./idempotency-object";
 
 /**
- * Shards of the id space. Fixed: changing it moves ids to other objects, which would forget every
- * id still inside the window. 128 objects keep each one far below a Durable Object's throughput
- * (about a thousand calls a second each, from memory) at tens of thousands of payments a second.
+ * Shards of the id space. Few on purpose: a batch asks every shard its ids fall in, once to claim
+ * and once to keep the answers, so a batch of 100 makes at most 2 × 8 Durable Object calls (each a
+ * subrequest and a storage commit). With 128 shards it made 2 × 55 to 85: each batch took seconds
+ * and passed the Workers Free plan's 50 subrequests a request. Eight objects still carry about
+ * 4,000 single payments a second (two calls each; a Durable Object serves about a thousand calls a
+ * second: Cloudflare's Durable Objects FAQ, "How much work can a single Durable Object do?") and
+ * about 50,000 a second in batches of 100. Fixed: changing it moves ids to other objects, which
+ * would forget every id still inside the window.
  */
-export const IDEMPOTENCY_SHARDS = 128;
+export const IDEMPOTENCY_SHARDS = 8;
 
 /** The binding the worker needs (wrangler.toml `[[durable_objects.bindings]]`). */
 export interface IdempotencyEnv {
@@ -41,7 +46,7 @@ export type Claim = ClaimVerdict | { kind: "unavailable" };
  * secret: ids are spread, not hidden.
  *
  * @example
- * shardOf("pay-000123") // → the same number in [0, 128) on every isolate
+ * shardOf("pay-000123") // → the same number in [0, 8) on every isolate
  */
 export function shardOf(transactionId: string): number {
   let hash = 0x811c9dc5;
