@@ -535,6 +535,57 @@ describe("paging, order and filters", () => {
   });
 });
 
+describe("how rare, past the reach of a double", () => {
+  it("orders payments whose tail probability underflows to 0 by their log tail, rarest first, and shows an unknown one as the rarest", async () => {
+    // Two payments far out (a channel the model has no segment for, so the pooled Gaussian scores
+    // them), the nearer one scored first: were the queue to sort by the tail
+    // probability (0 for both), they would tie and come back in item order, nearer first.
+    const scoredFar: { transactionId: string; mahalanobisSq: number; tailProbability: number; log10TailProbability: number }[] = [];
+    for (const [k, shippingShare] of [1.2, 1.35].entries()) {
+      const transactionId = `tx-rare-${k}`;
+      const res = await worker.post("/v1/score", { transactionId, features: { ...UNUSUAL_PAYMENT, shippingShare }, segment: "post" }, tokens.flow);
+      expect(res.status).toBe(200);
+      scoredFar.push({ transactionId, ...((await res.json()) as { mahalanobisSq: number; tailProbability: number; log10TailProbability: number }) });
+    }
+    for (const s of scoredFar) {
+      expect(s.mahalanobisSq).toBeGreaterThan(1500);
+      expect(s.tailProbability).toBe(0);
+      expect(s.log10TailProbability).toBeLessThan(-324);
+    }
+    expect(scoredFar[1]!.mahalanobisSq).toBeGreaterThan(scoredFar[0]!.mahalanobisSq);
+    // A row as stored before the log tail was kept: tail 0 and nothing else to go on.
+    await db
+      .prepare(
+        "INSERT INTO review_items (transaction_id, model_version, segment, account_ref, features_json, log_density, mahalanobis_sq, " +
+          "tail_probability, cutoff_mahalanobis_sq, reasons_json, selection, inclusion_probability, scored_at, received_at) " +
+          "VALUES ('tx-rare-legacy', ?1, '*', NULL, '{}', -900, 1700, 0, 30, '[]', 'flagged', 1, ?2, ?2)",
+      )
+      .bind(modelVersion, new Date().toISOString())
+      .run();
+    const wanted = ["tx-rare-legacy", "tx-rare-1", "tx-rare-0"];
+    const rows = await eventually(async () => {
+      const { body } = await get<QueuePage>(`/v1/review/items?modelVersion=${modelVersion}&segment=*&sort=tail&direction=asc&limit=50`);
+      const mine = body.items.filter((r) => wanted.includes(r.transactionId));
+      return mine.length === wanted.length ? mine : undefined;
+    }, 15_000);
+    expect(rows.map((r) => r.transactionId)).toEqual(wanted);
+    expect(rows[0]!.log10TailProbability).toBeNull();
+    expect(rows[1]!.log10TailProbability).toBeCloseTo(scoredFar[1]!.log10TailProbability, 9);
+    expect(rows[2]!.log10TailProbability).toBeCloseTo(scoredFar[0]!.log10TailProbability, 9);
+    // Paged one line at a time, the cursor carries the log tail and the order holds.
+    const paged: string[] = [];
+    let cursor: string | null = null;
+    do {
+      const { body }: { body: QueuePage } = await get<QueuePage>(
+        `/v1/review/items?modelVersion=${modelVersion}&segment=*&sort=tail&direction=asc&limit=1${cursor ? `&cursor=${cursor}` : ""}`,
+      );
+      paged.push(...body.items.map((r) => r.transactionId));
+      cursor = body.nextCursor;
+    } while (cursor);
+    expect(paged.filter((t) => wanted.includes(t))).toEqual(wanted);
+  });
+});
+
 describe("the day's figures", () => {
   it("counts today's decisions, mine among them, the open queue and the capacity from ANALYST_DAILY_CAPACITY", async () => {
     const before = (await get<DaySummary>("/v1/review/summary")).body;

@@ -1,5 +1,5 @@
 import { describe, expect, it } from "vitest";
-import { describeReason, formatAge, formatTail, formatValue } from "./format";
+import { describeReason, formatAge, formatLog10Tail, formatTail, formatValue } from "./format";
 
 describe("plain-words formatting", () => {
   it("words a reason the way an analyst reads it", () => {
@@ -35,6 +35,12 @@ describe("plain-words formatting", () => {
     expect(formatTail(4.4e-17)).toBe("rarer than 1 in 10¹⁵");
     expect(formatTail(0)).toBe("rarer than 1 in 10¹⁵");
     expect(formatTail(1e-320)).toBe("rarer than 1 in 10¹⁵");
+  });
+
+  it("gives how rare from the log tail probability, the same as from the probability, capped where it underflows", () => {
+    for (const p of [0.25, 0.00021, 2e-10, 4.4e-17]) expect(formatLog10Tail(Math.log10(p))).toBe(formatTail(p));
+    expect(formatLog10Tail(-434.2)).toBe("rarer than 1 in 10¹⁵");
+    expect(formatLog10Tail(null)).toBe("rarer than 1 in 10¹⁵");
   });
 
   it("gives ages in the largest whole unit", () => {

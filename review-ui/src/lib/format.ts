@@ -58,6 +58,17 @@ export function formatTail(p: number): string {
   return `1 in ${grouped.format(rounded)}`;
 }
 
+/**
+ * "How rare" from log10 of the tail probability, the figure that stays finite where the tail
+ * probability underflows; null (not known: stored before it was kept, tail underflowed) is below
+ * 1e-308 and so past the cap.
+ * @example formatLog10Tail(-3.678) // "1 in 4,800"; formatLog10Tail(-434.2) // "rarer than 1 in 10¹⁵"
+ */
+export function formatLog10Tail(log10p: number | null): string {
+  if (log10p === null || log10p < Math.log10(RAREST_SHOWN_TAIL)) return `rarer than 1 in ${power10(15)}`;
+  return formatTail(10 ** log10p);
+}
+
 /** Time of day in the analyst's locale, 24-hour. */
 export function formatClock(iso: string): string {
   const date = new Date(iso);

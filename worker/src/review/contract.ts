@@ -47,7 +47,10 @@ export interface QueueRow {
   segment: string;
   accountRef: string | null;
   selection: Selection;
+  /** P(χ²ₙ > d²); 0 where it underflows a double. */
   tailProbability: number;
+  /** log10 of it, finite where it underflows (the "how rare" order sorts by it); null where not known (rows stored before it was kept). */
+  log10TailProbability: number | null;
   mahalanobisSq: number;
   /** Raw `amount` feature when the model has one, else null. */
   amount: number | null;
@@ -104,6 +107,8 @@ export interface HistoryRow {
   transactionId: string;
   scoredAt: string;
   tailProbability: number;
+  /** As on {@link QueueRow}. */
+  log10TailProbability: number | null;
   amount: number | null;
   selection: Selection;
   state: ReviewState;

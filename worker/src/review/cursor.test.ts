@@ -4,7 +4,9 @@ import { decodeCursor, encodeCursor, type CursorPosition } from "./cursor";
 describe("keyset cursors", () => {
   it("decode to the position they were made from, including tiny and negative sort values", () => {
     const positions: CursorPosition[] = [
-      { sort: "tail", direction: "asc", state: "open", value: 4.4e-17, id: 42 },
+      { sort: "tail", direction: "asc", state: "open", value: -434.21, id: 42 },
+      { sort: "tail", direction: "desc", state: "open", value: -1e308, id: 43 },
+      { sort: "amount", direction: "asc", state: "open", value: 4.4e-17, id: 44 },
       { sort: "priority", direction: "desc", state: "decided", value: -20779.32289488517, id: 9_007_199_254_740_991 },
       { sort: "age", direction: "asc", state: "claimed", value: 1_796_119_200_000, id: 1 },
     ];
@@ -22,5 +24,8 @@ describe("keyset cursors", () => {
     expect(decodeCursor(altered)).toEqual({ error: expect.stringContaining("unexpected content") });
     const fractionalId = btoa(JSON.stringify(["tail", "asc", "open", 1, 2.5])).replace(/=+$/, "");
     expect(decodeCursor(fractionalId)).toEqual({ error: expect.stringContaining("start again without a cursor") });
+    // The tail order walks log10 tail probabilities; a positive value was made on the tail probability itself.
+    const fromTailProbability = btoa(JSON.stringify(["tail", "asc", "open", 4.4e-17, 2])).replace(/=+$/, "");
+    expect(decodeCursor(fromTailProbability)).toEqual({ error: expect.stringContaining("start again without a cursor") });
   });
 });

@@ -9,7 +9,7 @@ export interface CursorPosition {
   sort: SortKey;
   direction: SortDirection;
   state: ReviewState;
-  /** Sort value of the last line shown (priority_base, tail probability, amount at risk or scored ms). */
+  /** Sort value of the last line shown (priority_base, log10 tail probability, amount at risk or scored ms). */
   value: number;
   /** Item id of the last line shown. */
   id: number;
@@ -40,7 +40,10 @@ export function decodeCursor(text: string): { position: CursorPosition } | { err
     !["open", "claimed", "decided"].includes(parsed[2]) ||
     typeof parsed[3] !== "number" ||
     !Number.isFinite(parsed[3]) ||
-    !Number.isSafeInteger(parsed[4])
+    !Number.isSafeInteger(parsed[4]) ||
+    // The tail order walks log10 tail probabilities (never above 0); a larger value is a cursor from
+    // before it did, made on the tail probability itself.
+    (parsed[0] === "tail" && parsed[3] > 0)
   ) {
     return { error: "is not a cursor returned by this API (unexpected content); start again without a cursor" };
   }

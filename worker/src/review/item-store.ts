@@ -5,7 +5,7 @@
 import type { Reason } from "../../../shared-model/src";
 import type { Env } from "../env";
 import type { AuditAction, ConflictView, EventPage, HistoryRow, Outcome } from "./contract";
-import { STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
+import { log10TailOf, STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
 import { EVENT_PAGE, HISTORY_LIMIT } from "./settings";
 
 /** The review_items columns the payment view needs beyond the queue line. */
@@ -93,6 +93,7 @@ export async function readItem(env: Pick<Env, "DB">, id: number, nowMs: number):
       transactionId: h.transaction_id,
       scoredAt: new Date(h.scored_ms).toISOString(),
       tailProbability: h.tail_probability,
+      log10TailProbability: log10TailOf(h),
       amount: h.amount,
       selection: h.selection,
       state: stateOf(h, nowMs),

@@ -32,7 +32,7 @@ export interface PageRequest extends QueueFilters {
 /** Column holding each order's sort value; all are NOT NULL, so keyset comparisons need no NULL cases. */
 const SORT_COLUMN: Record<SortKey, string> = {
   priority: "priority_base",
-  tail: "tail_probability",
+  tail: "log10_tail_probability",
   amount: "amount_at_risk",
   age: "scored_ms",
 };
@@ -46,6 +46,8 @@ export interface StatusRow {
   selection: Selection;
   account_ref: string | null;
   tail_probability: number;
+  /** log10 of the tail probability; {@link UNKNOWN_LOG10_TAIL} where it is not known. */
+  log10_tail_probability: number;
   mahalanobis_sq: number;
   amount: number | null;
   amount_at_risk: number;
@@ -65,8 +67,19 @@ export interface StatusRow {
 
 /** Columns of {@link StatusRow}, for SELECT lists. */
 export const STATUS_COLUMNS =
-  "item_id, transaction_id, model_version, segment, selection, account_ref, tail_probability, mahalanobis_sq, amount, amount_at_risk, " +
+  "item_id, transaction_id, model_version, segment, selection, account_ref, tail_probability, log10_tail_probability, mahalanobis_sq, amount, amount_at_risk, " +
   "scored_ms, priority_base, decided, claimed_by, claim_expires_ms, outcome, note, decided_by, decided_ms, undo_json, undo_by, undo_until_ms";
+
+/**
+ * Stored log10 tail for rows written before the scorer sent it whose tail probability had underflowed
+ * to 0 (migration 0008): unknown, but below 1e-308, so they sort as the rarest and the API says null.
+ */
+export const UNKNOWN_LOG10_TAIL = -1e308;
+
+/** The row's log10 tail probability, or null where it is not known. */
+export function log10TailOf(row: Pick<StatusRow, "log10_tail_probability">): number | null {
+  return row.log10_tail_probability <= UNKNOWN_LOG10_TAIL ? null : row.log10_tail_probability;
+}
 
 /** Where a row stands at `nowMs`. */
 export function stateOf(row: Pick<StatusRow, "decided" | "claim_expires_ms">, nowMs: number): ReviewState {
@@ -85,6 +98,7 @@ export function toQueueRow(row: StatusRow, nowMs: number): QueueRow {
     accountRef: row.account_ref,
     selection: row.selection,
     tailProbability: row.tail_probability,
+    log10TailProbability: log10TailOf(row),
     mahalanobisSq: row.mahalanobis_sq,
     amount: row.amount,
     scoredAt: new Date(row.scored_ms).toISOString(),
@@ -173,7 +187,7 @@ function sortValue(row: StatusRow, sort: SortKey): number {
     case "priority":
       return row.priority_base;
     case "tail":
-      return row.tail_probability;
+      return row.log10_tail_probability;
     case "amount":
       return row.amount_at_risk;
     case "age":

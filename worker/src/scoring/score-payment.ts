@@ -169,6 +169,7 @@ export function scorePayment(
           logDensity: result.logDensity,
           mahalanobisSq: result.mahalanobisSq,
           tailProbability: result.tailProbability,
+          log10TailProbability: result.log10TailProbability,
           cutoffMahalanobisSq: live.compiled.cutoffMahalanobisSq,
           reasons,
           selection: result.flagged ? "flagged" : "audit",

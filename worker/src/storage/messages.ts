@@ -21,6 +21,8 @@ export const reviewMessageSchema = z.object({
   logDensity: finite,
   mahalanobisSq: finite,
   tailProbability: z.number().min(0).max(1),
+  /** log10 of the tail probability, finite where it underflows; absent from older deployments' messages. */
+  log10TailProbability: finite.pipe(z.number().max(0)).optional(),
   cutoffMahalanobisSq: finite,
   /**
    * Reasons as the answer gave them, stored as JSON text. Deliberately not validated field by

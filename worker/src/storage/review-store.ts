@@ -8,8 +8,8 @@ import type { ConflictMessage, ReviewMessage, ShadowMessage } from "./messages";
 
 const INSERT_REVIEW_ITEM = `INSERT INTO review_items (
   transaction_id, model_version, segment, account_ref, features_json, log_density, mahalanobis_sq,
-  tail_probability, cutoff_mahalanobis_sq, reasons_json, selection, inclusion_probability, scored_at, received_at
-) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14)
+  tail_probability, cutoff_mahalanobis_sq, reasons_json, selection, inclusion_probability, scored_at, received_at, log10_tail_probability
+) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15)
 ON CONFLICT (transaction_id, model_version) DO NOTHING`;
 
 const INSERT_SHADOW_SCORE = `INSERT INTO shadow_scores (
@@ -41,6 +41,7 @@ export function reviewItemInsert(env: Pick<Env, "DB">, item: ReviewMessage, rece
     item.inclusionProbability,
     item.scoredAt,
     receivedAt,
+    item.log10TailProbability ?? null,
   );
 }
 
