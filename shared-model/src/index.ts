@@ -20,6 +20,7 @@ export * from "./fit";
 export * from "./input-error";
 export * from "./tuning";
 export * from "./estimates";
+export * from "./decided-days";
 export * from "./drift";
 export * from "./intervals";
 export * from "./records";

@@ -129,13 +129,18 @@ describe("the labelled operating table", () => {
     // Invented labels: the unusual payments are fraud except the last two; of the audit draws, the
     // one with the largest d² is fraud (a fraud the cutoff missed).
     const largestAudit = reviewed.filter((a) => a.auditSample).sort((a, b) => b.mahalanobisSq - a.mahalanobisSq)[0];
-    for (const { id, transaction_id } of ids) {
+    for (const [k, { id, transaction_id }] of ids.entries()) {
       const outcome = /-odd-[0-5]$/.test(transaction_id) || transaction_id === largestAudit.transactionId ? "fraud" : "legitimate";
       outcomes.set(transaction_id, outcome);
       const claim = await post(`/v1/review/items/${id}/claim`, {}, worker.tokens.analyst);
       expect(claim.status, JSON.stringify(claim.body)).toBe(200);
       const decision = await post(`/v1/review/items/${id}/decision`, { outcome }, worker.tokens.analyst);
       expect(decision.status, JSON.stringify(decision.body)).toBe(200);
+      if (k === 0) {
+        // One decision on a day whose other items still wait: held back until the day is finished.
+        const early = (await get<{ labels: { labelled: number; undecided: number; heldBack: number } }>("/v1/insights/operating")).body.labels;
+        expect(early).toMatchObject({ labelled: 0, undecided: ids.length - 1, heldBack: 1 });
+      }
     }
     const cutoff = live.cutoff.mahalanobisSq;
     const { status, body } = await get<{
@@ -235,15 +240,15 @@ describe("publishing a cutoff and rolling back", () => {
     expect(events.results[0].detail).toContain("fewer flags while the desk is short-staffed");
     const scored = await post<Answer>("/v1/score", scoreBody("tx-after-publish", shopPayments(1, 99)[0]), worker.tokens.flow);
     expect(scored.body.modelVersion).toBe(body.version);
-    const operatingOfTuned = (await get<{ labelVersions: string[]; labels: { labelled: number } }>("/v1/insights/operating")).body;
+    const operatingOfTuned = (await get<{ labelVersions: string[]; labels: { labelled: number; heldBack: number } }>("/v1/insights/operating")).body;
 
     const rolledBack = await post<{ pointer: { version: string } }>("/v1/models/rollback", {});
     expect(rolledBack.status).toBe(200);
     expect(rolledBack.body.pointer.version).toBe(live.version);
     // While the retuned version was live, the decisions made under its parent were its labels too
-    // (same parameters, so the same d²).
+    // (same parameters, so the same d²); today's are held back while the payments scored since wait.
     expect(operatingOfTuned.labelVersions).toEqual([body.version, live.version]);
-    expect(operatingOfTuned.labels.labelled).toBe(outcomes.size);
+    expect(operatingOfTuned.labels.labelled + operatingOfTuned.labels.heldBack).toBe(outcomes.size);
     const page = await get<{ active: { version: string; cutoff: { mahalanobisSq: number } } }>("/v1/insights/model");
     expect(page.body.active.version).toBe(live.version);
     expect(page.body.active.cutoff.mahalanobisSq).toBe(live.cutoff.mahalanobisSq);

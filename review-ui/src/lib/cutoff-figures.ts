@@ -30,7 +30,7 @@ export interface CutoffView {
  * buildTable({ mahalanobisSq: [3, 40], fraud: [0, 1], weight: [1, 1] }) // OperatingTable
  */
 export function buildTable(labels: LabelArrays): OperatingTable | string {
-  if (labels.mahalanobisSq.length === 0) return "No decisions have been recorded for this version yet.";
+  if (labels.mahalanobisSq.length === 0) return "No decisions from a fully decided day for this version yet.";
   try {
     return operatingPoints(labels.mahalanobisSq, labels.fraud, labels.weight);
   } catch (error) {

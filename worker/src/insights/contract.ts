@@ -168,8 +168,12 @@ export interface OperatingData {
   /** Model columns: the degrees of freedom of d² under the model. */
   columns: number;
   cutoff: VersionSummary["cutoff"];
-  /** Decided review items (parallel arrays) and counts; `undecided` items are not in the arrays. */
-  labels: { mahalanobisSq: number[]; fraud: number[]; weight: number[]; flagged: number[]; labelled: number; fraudCount: number; undecided: number };
+  /**
+   * Decided review items of fully decided (version, UTC day) cells (parallel arrays) and counts:
+   * `undecided` items still wait, and `heldBack` decisions share a day with them, so they are left
+   * out until that day is finished (decisions that come fraud first would bias a half-decided day).
+   */
+  labels: { mahalanobisSq: number[]; fraud: number[]; weight: number[]; flagged: number[]; labelled: number; fraudCount: number; undecided: number; heldBack: number };
   traffic: { days: number; daysWithTraffic: number; scored: number; flagged: number; scoredPerDay: number | null };
   atCutoff: CutoffFigures | null;
   unavailable: string | null;

@@ -3,6 +3,7 @@
  * UTC days, the labelled decisions of a version, and when a version went live. Query functions take
  * `env` first; SQL uses numbered `?N` parameters.
  */
+import { onFullyDecidedDays } from "../../../shared-model/src";
 import type { Env } from "../env";
 import type { TallyModel } from "./tally";
 import { SCORE_ROW } from "./tally";
@@ -107,30 +108,46 @@ export interface LabelledRows {
 /** Most decided items read into one operating table (a year of a busy desk; keeps the answer bounded). */
 export const MAX_LABELLED_ROWS = 50_000;
 
+const DAY_MS = 86_400_000;
+
 /**
- * The decided review items scored under any of `versions` (at most 50): d², outcome and
- * Horvitz–Thompson weight 1/π.
+ * The decided review items scored under any of `versions` (at most 50) on fully decided days: d²,
+ * outcome and Horvitz–Thompson weight 1/π. A (version, UTC day) with any item still undecided is
+ * left out whole (shared-model `onFullyDecidedDays` says why: decisions that come fraud first bias
+ * a half-decided day); `undecided` counts the items still waiting and `heldBack` the decisions left
+ * out with them.
  *
  * @example
  * const rows = await labelledRows(env, ["m20261201-1f3a9c2e"]);
  */
-export async function labelledRows(env: Pick<Env, "DB">, versions: readonly string[]): Promise<LabelledRows> {
-  const list = versions.slice(0, 50);
-  const { results } = await env.DB.prepare(
-    `SELECT s.mahalanobis_sq AS d2, s.outcome AS outcome, i.inclusion_probability AS pi, s.selection AS selection
-     FROM review_status s JOIN review_items i ON i.id = s.item_id
-     WHERE s.model_version IN (SELECT value FROM json_each(?1)) AND s.decided = 1
-     ORDER BY s.item_id LIMIT ?2`,
-  )
-    .bind(JSON.stringify(list), MAX_LABELLED_ROWS)
-    .all<{ d2: number; outcome: string; pi: number; selection: string }>();
-  const rows: LabelledRows = { mahalanobisSq: [], fraud: [], weight: [], flagged: [] };
-  for (const r of results) {
+export async function labelledRows(env: Pick<Env, "DB">, versions: readonly string[]): Promise<LabelledRows & { undecided: number; heldBack: number }> {
+  const list = JSON.stringify(versions.slice(0, 50));
+  const [decided, waiting] = await env.DB.batch<{ d2: number; outcome: string; pi: number; selection: string; version: string; day: number; n: number }>([
+    env.DB.prepare(
+      `SELECT s.mahalanobis_sq AS d2, s.outcome AS outcome, i.inclusion_probability AS pi, s.selection AS selection,
+              s.model_version AS version, s.scored_ms / ${DAY_MS} AS day
+       FROM review_status s JOIN review_items i ON i.id = s.item_id
+       WHERE s.model_version IN (SELECT value FROM json_each(?1)) AND s.decided = 1
+       ORDER BY s.item_id LIMIT ?2`,
+    ).bind(list, MAX_LABELLED_ROWS),
+    env.DB.prepare(
+      `SELECT model_version AS version, scored_ms / ${DAY_MS} AS day, COUNT(*) AS n FROM review_status
+       WHERE model_version IN (SELECT value FROM json_each(?1)) AND decided = 0 GROUP BY model_version, day`,
+    ).bind(list),
+  ]);
+  const keep = onFullyDecidedDays(decided.results, waiting.results);
+  const rows: LabelledRows & { undecided: number; heldBack: number } = { mahalanobisSq: [], fraud: [], weight: [], flagged: [], undecided: 0, heldBack: 0 };
+  decided.results.forEach((r, i) => {
+    if (!keep[i]) {
+      rows.heldBack++;
+      return;
+    }
     rows.mahalanobisSq.push(Number(r.d2));
     rows.fraud.push(r.outcome === "fraud" ? 1 : 0);
     rows.weight.push(1 / Number(r.pi));
     rows.flagged.push(r.selection === "flagged" ? 1 : 0);
-  }
+  });
+  for (const cell of waiting.results) rows.undecided += Number(cell.n);
   return rows;
 }
 

@@ -91,13 +91,7 @@ insightRoutes.get("/operating", async (c) => {
   const days = query.days ?? DEFAULT_DAYS;
   const now = new Date();
   const sources = await sameParameterVersions(c.env, model, resolved.pointer);
-  const [rows, volumes, undecided] = await Promise.all([
-    labelledRows(c.env, sources),
-    dailyVolumes(c.env, model.version, dayBefore(now, days - 1), dayBefore(now, 0)),
-    c.env.DB.prepare("SELECT COUNT(*) AS n FROM review_status WHERE model_version IN (SELECT value FROM json_each(?1)) AND decided = 0")
-      .bind(JSON.stringify(sources))
-      .first<{ n: number }>(),
-  ]);
+  const [rows, volumes] = await Promise.all([labelledRows(c.env, sources), dailyVolumes(c.env, model.version, dayBefore(now, days - 1), dayBefore(now, 0))]);
   const scored = volumes.reduce((a, v) => a + v.scored, 0);
   const flagged = volumes.reduce((a, v) => a + v.flagged, 0);
   const scoredPerDay = volumes.length > 0 ? scored / volumes.length : null;
@@ -107,7 +101,7 @@ insightRoutes.get("/operating", async (c) => {
     labelVersions: sources,
     columns: model.artifact.columns.length,
     cutoff: model.artifact.cutoff,
-    labels: { ...rows, labelled: rows.fraud.length, fraudCount: rows.fraud.reduce((a, b) => a + b, 0), undecided: Number(undecided?.n ?? 0) },
+    labels: { ...rows, labelled: rows.fraud.length, fraudCount: rows.fraud.reduce((a, b) => a + b, 0) },
     traffic: { days, daysWithTraffic: volumes.length, scored, flagged, scoredPerDay },
     atCutoff: typeof atCutoff === "string" ? null : atCutoff,
     unavailable: typeof atCutoff === "string" ? atCutoff : null,
