@@ -51,6 +51,15 @@ const post = async <T>(path: string, body: unknown = {}, token: string | null = 
   const res = await worker.post(path, body, token);
   return { status: res.status, body: (await res.json()) as T };
 };
+/**
+ * A step a test builds on (a claim, a decision): fails right here with the worker's answer when it
+ * is not the expected status, rather than at a later assertion far from the cause.
+ */
+const step = async <T = ActionResult>(path: string, body: unknown = {}, token: string | null = tokens.analyst, expected = 200): Promise<T> => {
+  const res = await post<T>(path, body, token);
+  expect(res.status, `POST ${path} answered ${res.status}: ${JSON.stringify(res.body)}`).toBe(expected);
+  return res.body;
+};
 
 interface Refusal {
   error: string;
@@ -200,7 +209,7 @@ describe("claims", () => {
   it("lasts 15 minutes, after which another analyst may take the item and the first may no longer decide", async () => {
     const [id] = await flagPayments(1);
     const before = Date.now();
-    const first = await post<ActionResult>(`/v1/review/items/${id}/claim`);
+    const first = { body: await step(`/v1/review/items/${id}/claim`) };
     const until = Date.parse(first.body.item.claim!.until);
     expect(until - before).toBeGreaterThanOrEqual(15 * 60_000 - 5);
     expect(until - Date.now()).toBeLessThanOrEqual(15 * 60_000);
@@ -224,7 +233,7 @@ describe("claims", () => {
 
   it("lets the holder renew and release, and refuses a release by anyone else", async () => {
     const [id] = await flagPayments(1);
-    await post(`/v1/review/items/${id}/claim`);
+    await step(`/v1/review/items/${id}/claim`);
     expect((await post<ActionResult>(`/v1/review/items/${id}/claim`)).status).toBe(200);
     const foreign = await post<Refusal>(`/v1/review/items/${id}/release`, {}, idrisToken);
     expect(foreign.status).toBe(409);
@@ -247,7 +256,7 @@ describe("decisions and the audit trail", () => {
     expect(unclaimed.status).toBe(409);
     expect(unclaimed.body.error).toBe("claim-required");
 
-    await post(`/v1/review/items/${id}/claim`);
+    await step(`/v1/review/items/${id}/claim`);
     const decided = await post<ActionResult>(`/v1/review/items/${id}/decision`, { outcome: "fraud", note: "Card tested twice <b>within</b> a minute" });
     expect(decided.status).toBe(200);
     expect(decided.body.item.state).toBe("decided");
@@ -286,8 +295,8 @@ describe("decisions and the audit trail", () => {
 
   it("undoes a first decision back to an open item held by the analyst, so a new decision can follow", async () => {
     const [id] = await flagPayments(1);
-    await post(`/v1/review/items/${id}/claim`);
-    await post(`/v1/review/items/${id}/decision`, { outcome: "legitimate" });
+    await step(`/v1/review/items/${id}/claim`);
+    await step(`/v1/review/items/${id}/decision`, { outcome: "legitimate" });
     const undone = await post<ActionResult>(`/v1/review/items/${id}/undo`);
     expect(undone.body.item.state).toBe("claimed");
     expect(undone.body.item.decision).toBeNull();
@@ -297,8 +306,8 @@ describe("decisions and the audit trail", () => {
 
   it("refuses an undo after the 5-minute window", async () => {
     const [id] = await flagPayments(1);
-    await post(`/v1/review/items/${id}/claim`);
-    await post(`/v1/review/items/${id}/decision`, { outcome: "fraud" });
+    await step(`/v1/review/items/${id}/claim`);
+    await step(`/v1/review/items/${id}/decision`, { outcome: "fraud" });
     await db.prepare("UPDATE review_status SET undo_until_ms = ?2 WHERE item_id = ?1").bind(id, Date.now() - 1).run();
     const late = await post<Refusal>(`/v1/review/items/${id}/undo`);
     expect(late.status).toBe(409);
@@ -313,12 +322,12 @@ describe("decisions and the audit trail", () => {
 
   it("writes no audit row when a change is refused", async () => {
     const [id] = await flagPayments(1);
-    await post(`/v1/review/items/${id}/claim`, {}, idrisToken);
+    await step(`/v1/review/items/${id}/claim`, {}, idrisToken);
     const before = await countRows(db, "review_events", "item_id = ?1", id);
-    await post(`/v1/review/items/${id}/claim`);
-    await post(`/v1/review/items/${id}/decision`, { outcome: "fraud" });
-    await post(`/v1/review/items/${id}/release`);
-    await post(`/v1/review/items/${id}/undo`);
+    await step(`/v1/review/items/${id}/claim`, {}, tokens.analyst, 409);
+    await step(`/v1/review/items/${id}/decision`, { outcome: "fraud" }, tokens.analyst, 409);
+    await step(`/v1/review/items/${id}/release`, {}, tokens.analyst, 409);
+    await step(`/v1/review/items/${id}/undo`, {}, tokens.analyst, 409);
     expect(await countRows(db, "review_events", "item_id = ?1", id)).toBe(before);
   });
 });
@@ -339,7 +348,7 @@ describe("bad input gets a 4xx that names the field and the rule", () => {
 
   it("refuses a bad outcome, a huge note, unknown fields and bodies that are not JSON", async () => {
     const [id] = await flagPayments(1);
-    await post(`/v1/review/items/${id}/claim`);
+    await step(`/v1/review/items/${id}/claim`);
     const outcome = await post<Refusal>(`/v1/review/items/${id}/decision`, { outcome: "maybe" });
     expect(outcome.status).toBe(400);
     expect(outcome.body.problems).toEqual([{ field: "outcome", rule: 'must be fraud or legitimate. Actual: string "maybe"' }]);
@@ -498,9 +507,9 @@ describe("paging, order and filters", () => {
 
     // Take one, decide one: the counts move between states.
     const [taken, settled] = expected;
-    await post(`/v1/review/items/${taken}/claim`);
-    await post(`/v1/review/items/${settled}/claim`);
-    await post(`/v1/review/items/${settled}/decision`, { outcome: "legitimate" });
+    await step(`/v1/review/items/${taken}/claim`);
+    await step(`/v1/review/items/${settled}/claim`);
+    await step(`/v1/review/items/${settled}/decision`, { outcome: "legitimate" });
     const query = `segment=app&selection=audit&modelVersion=m-paging-a&from=${from}&to=${to}`;
     const counts = (await get<StateCounts>(`/v1/review/counts?${query}`)).body;
     expect(counts).toEqual({ open: expected.length - 2, claimed: 1, decided: 1 });
@@ -588,14 +597,16 @@ describe("how rare, past the reach of a double", () => {
 
 describe("the day's figures", () => {
   it("counts today's decisions, mine among them, the open queue and the capacity from ANALYST_DAILY_CAPACITY", async () => {
+    const asked = new Date().toISOString().slice(0, 10);
     const before = (await get<DaySummary>("/v1/review/summary")).body;
     expect(before.capacityPerAnalyst).toBe(120);
-    expect(before.day).toBe(new Date().toISOString().slice(0, 10));
+    // The worker reads its own clock: at midnight UTC the day may turn between asking and answering.
+    expect([asked, new Date().toISOString().slice(0, 10)]).toContain(before.day);
     const [id] = await flagPayments(1);
     const opened = (await get<DaySummary>("/v1/review/summary")).body;
     expect(opened.open).toBe(before.open + 1);
-    await post(`/v1/review/items/${id}/claim`, {}, idrisToken);
-    await post(`/v1/review/items/${id}/decision`, { outcome: "fraud" }, idrisToken);
+    await step(`/v1/review/items/${id}/claim`, {}, idrisToken);
+    await step(`/v1/review/items/${id}/decision`, { outcome: "fraud" }, idrisToken);
     const after = (await get<DaySummary>("/v1/review/summary")).body;
     expect(after.decidedToday).toBe(before.decidedToday + 1);
     expect(after.decidedTodayByMe).toBe(before.decidedTodayByMe);
@@ -611,8 +622,8 @@ describe("the labelled-set export", () => {
       [fraudId, "fraud"],
       [legitId, "legitimate"],
     ] as const) {
-      await post(`/v1/review/items/${id}/claim`);
-      await post(`/v1/review/items/${id}/decision`, { outcome, note: 'with, "quotes"\nand a line break' });
+      await step(`/v1/review/items/${id}/claim`);
+      await step(`/v1/review/items/${id}/decision`, { outcome, note: 'with, "quotes"\nand a line break' });
     }
     const res = await worker.fetch(`/v1/review/export?format=csv&modelVersion=${modelVersion}`, { token: tokens.analyst });
     expect(res.status).toBe(200);
@@ -666,8 +677,8 @@ describe("the labelled-set export", () => {
       .bind(new Date().toISOString())
       .run();
     const row = await db.prepare("SELECT id FROM review_items WHERE transaction_id = 'tx-audit-1'").first<{ id: number }>();
-    await post(`/v1/review/items/${row!.id}/claim`);
-    await post(`/v1/review/items/${row!.id}/decision`, { outcome: "legitimate" });
+    await step(`/v1/review/items/${row!.id}/claim`);
+    await step(`/v1/review/items/${row!.id}/decision`, { outcome: "legitimate" });
     const text = await (await worker.fetch("/v1/review/export?format=csv&modelVersion=m-audit", { token: tokens.analyst })).text();
     const [header, line] = parseCsvChunks([text], "audit.csv");
     expect(header.cells.slice(0, 3)).toEqual(["id", "amount", "items"]);

@@ -239,7 +239,7 @@ describe("shadow model", () => {
       token: worker.tokens.admin,
     });
     expect(cleared.status).toBe(200);
-    await worker.post("/v1/score", scoreBody("shadow-2", payment), worker.tokens.flow);
+    expect((await worker.post("/v1/score", scoreBody("shadow-2", payment), worker.tokens.flow)).status).toBe(200);
     await new Promise((r) => setTimeout(r, 2500));
     expect(await countRows(db, "shadow_scores", "transaction_id = 'shadow-2'")).toBe(0);
   });
