@@ -99,13 +99,21 @@ export async function seedDemoQueue(base: string, tokens: DemoTokens, options: D
     const answer = (await call(base, "/v1/score/batch", tokens.flow, { payments })) as { counts: { review: number; auditSample: number } };
     flagged += answer.counts.review + answer.counts.auditSample;
   }
-  // The consumer writes flags about a second after they are sent; wait until all are in D1.
+  await waitForQueue(base, tokens, flagged);
+  return { version: artifact.version, flagged };
+}
+
+/**
+ * Resolves once the review store holds `total` items (open, claimed or decided). The consumer writes
+ * review items about a second after the scoring answer, so a test that decides "every open item"
+ * right after scoring must wait for them first, or items landing later stay undecided.
+ */
+export async function waitForQueue(base: string, tokens: DemoTokens, total: number): Promise<void> {
   const deadline = Date.now() + 60_000;
   for (;;) {
     const counts = (await call(base, "/v1/review/counts", tokens.analyst)) as StateCounts;
-    if (counts.open + counts.claimed + counts.decided >= flagged) break;
-    if (Date.now() > deadline) throw new Error(`only ${counts.open + counts.claimed + counts.decided} of ${flagged} flags reached the queue`);
+    if (counts.open + counts.claimed + counts.decided >= total) return;
+    if (Date.now() > deadline) throw new Error(`only ${counts.open + counts.claimed + counts.decided} of ${total} review items reached the queue`);
     await new Promise((r) => setTimeout(r, 250));
   }
-  return { version: artifact.version, flagged };
 }

@@ -12,7 +12,7 @@ import type { Browser, Page } from "playwright-core";
 import { generateLedger, type LedgerRow } from "../../demo-ledger/generate";
 import { retuneArtifact, type ModelArtifact } from "../../shared-model/src";
 import { decideFromLedger } from "../../scripts/demo-decisions";
-import { seedDemoQueue } from "./demo-queue";
+import { seedDemoQueue, waitForQueue } from "./demo-queue";
 import { launchChromium, repoRoot, startStack, type Stack } from "./stack";
 
 let stack: Stack;
@@ -28,7 +28,9 @@ beforeAll(async () => {
   const labels = new Map<string, "fraud" | "legitimate">();
   const ledger = [...generateLedger({ rows: 14_000 })];
   for (const row of ledger) labels.set(row.paymentId, row.label);
-  await scoreWithShadow(ledger.slice(-600));
+  const rescored = await scoreWithShadow(ledger.slice(-600));
+  // Every item of both scorings must be in the store before "decide every open item" runs.
+  await waitForQueue(stack.base, stack.tokens, seeded.flagged + rescored);
   // The payments scored again are decided too: a day with items still waiting keeps its decisions out of the estimates.
   await decideFromLedger(stack.base, stack.tokens.analyst, (id) => labels.get(id.replace(/-again$/, "")));
   browser = await launchChromium();
@@ -52,21 +54,27 @@ async function api(path: string, token: string, body?: unknown, method = body ==
   return res.json();
 }
 
-/** Sets a stricter-cutoff copy of the live model as shadow and scores the last payments again under new ids. */
-async function scoreWithShadow(rows: LedgerRow[]): Promise<void> {
+/**
+ * Sets a stricter-cutoff copy of the live model as shadow and scores the last payments again under new ids.
+ * @returns how many of them went to review (flagged or audit-sampled).
+ */
+async function scoreWithShadow(rows: LedgerRow[]): Promise<number> {
   const { artifact } = (await api(`/v1/models/${liveVersion}`, stack.tokens.admin)) as { artifact: ModelArtifact };
   const shadow = await retuneArtifact(artifact, artifact.cutoff.mahalanobisSq * 1.3, "manual", null);
   await api("/v1/models", stack.tokens.admin, shadow);
   await api("/v1/models/shadow", stack.tokens.admin, { version: shadow.version }, "PUT");
   const features = Object.keys(rows[0]).filter((k) => artifact.features.some((f) => f.name === k));
+  let toReview = 0;
   for (let start = 0; start < rows.length; start += 100) {
     const payments = rows.slice(start, start + 100).map((r) => ({
       transactionId: `${r.paymentId}-again`,
       features: Object.fromEntries(features.map((k) => [k, r[k as keyof LedgerRow] as number])),
       segment: r.channel,
     }));
-    await api("/v1/score/batch", stack.tokens.flow, { payments });
+    const answer = (await api("/v1/score/batch", stack.tokens.flow, { payments })) as { counts: { review: number; auditSample: number } };
+    toReview += answer.counts.review + answer.counts.auditSample;
   }
+  return toReview;
 }
 
 async function until(check: () => Promise<boolean>, what: string, timeoutMs = 15_000): Promise<void> {
