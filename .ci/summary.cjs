@@ -19,7 +19,11 @@ const suites = report.testResults || [];
 const brokenFiles = suites.filter((s) => s.status === "failed" && !(s.assertionResults || []).some((a) => a.status === "failed"));
 for (const s of brokenFiles) {
   const where = path.relative(process.cwd(), s.name);
-  console.log(`file failed outside its tests: ${where}: ${String(s.message || "no message").split("\n")[0].slice(0, 300)}`);
+  console.log(
+    `file failed outside its tests: ${where}: ${String(s.message || "no message")
+      .split("\n")[0]
+      .slice(0, 300)}`,
+  );
 }
 const passed = report.numPassedTests || 0;
 const failed = (report.numFailedTests || 0) + brokenFiles.length;

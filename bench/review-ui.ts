@@ -48,9 +48,16 @@ const sqlText = (s: string) => `'${s.replace(/'/g, "''")}'`;
 async function prepareSeed(dir: string): Promise<{ version: string; artifactPath: string; sqlPath: string }> {
   const rows = [...generateLedger({ rows: LEDGER_ROWS })];
   const raw = (r: LedgerRow) => Float64Array.from(DEMO_FEATURES.map((f) => r[f.name as keyof LedgerRow] as number));
-  const training: FitRow[] = rows.slice(0, 25_000).filter((r) => r.label === "legitimate").map((r) => ({ values: raw(r), segment: r.channel }));
+  const training: FitRow[] = rows
+    .slice(0, 25_000)
+    .filter((r) => r.label === "legitimate")
+    .map((r) => ({ values: raw(r), segment: r.channel }));
   const { artifact } = await fitModel(
-    { async *pass() { yield* training; } },
+    {
+      async *pass() {
+        yield* training;
+      },
+    },
     { features: DEMO_FEATURES, shape: "auto", estimator: "classical", segmentBy: "channel", cutoffRate: 0.01, seed: 7, source: "bench (demo ledger, invented)" },
   );
   const scorer = new Scorer(compileModel(artifact));

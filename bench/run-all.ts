@@ -64,7 +64,15 @@ const serviceRuns: { script: string; env?: Record<string, string> }[] = [
 ];
 for (const { script, env } of coreOnly ? [] : serviceRuns) {
   if (existsSync(new URL(script, import.meta.url))) {
-    console.log(`\n— ${script}${env ? ` ${Object.entries(env).map(([k, v]) => `${k}=${v}`).join(" ")}` : ""} —`);
+    console.log(
+      `\n— ${script}${
+        env
+          ? ` ${Object.entries(env)
+              .map(([k, v]) => `${k}=${v}`)
+              .join(" ")}`
+          : ""
+      } —`,
+    );
     execFileSync(process.execPath, ["bin/run-ts.js", `bench/${script}`], { cwd: root, stdio: "inherit", env: { ...process.env, ...env } });
   }
 }

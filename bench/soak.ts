@@ -172,8 +172,21 @@ try {
   const rows: FitRow[] = Array.from({ length: 20_000 }, () => ({ values: Float64Array.from(sample()), segment: null }));
   const features: FeatureDeclaration[] = names.map((name) => ({ name, transform: "none" }));
   const { artifact } = await fitModel(
-    { async *pass() { yield* rows; } },
-    { features, shape: "full", estimator: "classical", segmentBy: null, cutoffRate: 0.01, version: "msoak-16", createdAt: "2026-03-02T09:00:00.000Z", source: "soak (invented data)" },
+    {
+      async *pass() {
+        yield* rows;
+      },
+    },
+    {
+      features,
+      shape: "full",
+      estimator: "classical",
+      segmentBy: null,
+      cutoffRate: 0.01,
+      version: "msoak-16",
+      createdAt: "2026-03-02T09:00:00.000Z",
+      source: "soak (invented data)",
+    },
   );
   const modelFile = join(work, "model.json");
   writeFileSync(modelFile, JSON.stringify(artifact));
@@ -186,7 +199,25 @@ try {
   console.log(`starting wrangler dev on ${url}`);
   wrangler = spawn(
     wranglerBin,
-    ["dev", "--config", config, "--no-bundle", "--ip", "127.0.0.1", "--port", String(port), "--inspector-port", String(inspectorPort), "--persist-to", state, "--env-file", envFile, "--show-interactive-dev-session=false", "--log-level", "warn"],
+    [
+      "dev",
+      "--config",
+      config,
+      "--no-bundle",
+      "--ip",
+      "127.0.0.1",
+      "--port",
+      String(port),
+      "--inspector-port",
+      String(inspectorPort),
+      "--persist-to",
+      state,
+      "--env-file",
+      envFile,
+      "--show-interactive-dev-session=false",
+      "--log-level",
+      "warn",
+    ],
     { cwd: root, env: quietEnv, stdio: ["ignore", "ignore", "inherit"] },
   );
   await waitForHealth(url, wrangler);
@@ -217,7 +248,10 @@ try {
   const rssAll = () => totalOf(rssByPid());
   rssAll();
   /** The workerd pids, to tell a restart (new processes) between two reads. */
-  const pidsKey = () => workerdDescendants(wranglerPid).sort((a, b) => a - b).join(",");
+  const pidsKey = () =>
+    workerdDescendants(wranglerPid)
+      .sort((a, b) => a - b)
+      .join(",");
 
   // Warm-up: fills the per-isolate answer memory (5,000 entries) several times over and lets V8's
   // heap and SQLite's page cache reach their working size, so "before" is the steady state.
@@ -247,7 +281,11 @@ try {
         const point: (typeof timeline)[number] = { seconds: Math.round((Date.now() - soakStart) / 1000), rssMiBByPid: rssByPid() };
         timeline.push(point);
         // The isolate's heap as it is (no collection, which would pause the worker under load).
-        if (ticks % 10 === 1) void isolateHeap(inspectorPort, false, 5000).then((h) => (point.heapUsedMiB = h.usedMiB), () => undefined);
+        if (ticks % 10 === 1)
+          void isolateHeap(inspectorPort, false, 5000).then(
+            (h) => (point.heapUsedMiB = h.usedMiB),
+            () => undefined,
+          );
       }
     } catch {
       /* the process may be between reads */

@@ -48,8 +48,21 @@ async function fitBenchModel() {
   const rows: FitRow[] = Array.from({ length: TRAINING_ROWS }, () => ({ values: Float64Array.from(sample()), segment: null }));
   const features: FeatureDeclaration[] = names.map((name) => ({ name, transform: "none" }));
   const { artifact } = await fitModel(
-    { async *pass() { yield* rows; } },
-    { features, shape: "full", estimator: "classical", segmentBy: null, cutoffRate: 0.01, version: "mbench-32", createdAt: "2026-03-02T09:00:00.000Z", source: "bench (invented data)" },
+    {
+      async *pass() {
+        yield* rows;
+      },
+    },
+    {
+      features,
+      shape: "full",
+      estimator: "classical",
+      segmentBy: null,
+      cutoffRate: 0.01,
+      version: "mbench-32",
+      createdAt: "2026-03-02T09:00:00.000Z",
+      source: "bench (invented data)",
+    },
   );
   return artifact;
 }
@@ -74,7 +87,6 @@ interface CaseResult {
   non2xx: number;
   errors: number;
 }
-
 
 const payloads = Array.from({ length: 4096 }, () => sample().map((v) => Number(v.toFixed(4))));
 let counter = 0;
@@ -137,14 +149,7 @@ async function load(url: string, route: string, connections: number, duration: n
  * runs so that drift in the machine's load (other processes, the simulator's own housekeeping)
  * falls on both routes alike.
  */
-async function measurePair(
-  url: string,
-  connections: number,
-  duration: number,
-  rounds: number,
-  token: string,
-  form: CaseResult["form"] = "features",
-): Promise<CaseResult[]> {
+async function measurePair(url: string, connections: number, duration: number, rounds: number, token: string, form: CaseResult["form"] = "features"): Promise<CaseResult[]> {
   const body = form === "payment" ? nextPaymentBody : nextBody;
   const routes = ["/v1/echo", "/v1/score"];
   const acc = routes.map(() => ({ times: [] as number[], requests: 0, non2xx: 0, errors: 0, seconds: 0 }));

@@ -24,7 +24,7 @@ afterAll(() => rmSync(dir, { recursive: true, force: true }));
 const cell = fc.oneof(
   fc.stringMatching(/^[a-z0-9.]{1,8}$/),
   fc.string({ maxLength: 12 }).map((s) => s.replace(/[\uD800-\uDFFF]/g, "?")),
-  fc.constantFrom('a,b', 'say "hi"', "two\nlines", "\u202Eevil", "💳", "' OR 1=1 --", "<script>", "\u0000", " ", "=cmd|' /C calc'!A0"),
+  fc.constantFrom("a,b", 'say "hi"', "two\nlines", "\u202Eevil", "💳", "' OR 1=1 --", "<script>", "\u0000", " ", "=cmd|' /C calc'!A0"),
 );
 
 interface Table {
@@ -32,12 +32,15 @@ interface Table {
   rows: string[][];
 }
 
-const table: fc.Arbitrary<Table> = fc.integer({ min: 1, max: 6 }).chain((width) =>
-  fc.record({
-    header: fc.uniqueArray(fc.stringMatching(/^[a-z][a-zA-Z0-9_]{0,10}$/), { minLength: width, maxLength: width }),
-    rows: fc.array(fc.array(cell, { minLength: width, maxLength: width }), { minLength: 1, maxLength: 8 }),
-  }),
-).filter((t) => t.rows.every((r) => r.some((c) => c !== ""))); // a lone empty cell is a blank line, which the reader skips
+const table: fc.Arbitrary<Table> = fc
+  .integer({ min: 1, max: 6 })
+  .chain((width) =>
+    fc.record({
+      header: fc.uniqueArray(fc.stringMatching(/^[a-z][a-zA-Z0-9_]{0,10}$/), { minLength: width, maxLength: width }),
+      rows: fc.array(fc.array(cell, { minLength: width, maxLength: width }), { minLength: 1, maxLength: 8 }),
+    }),
+  )
+  .filter((t) => t.rows.every((r) => r.some((c) => c !== ""))); // a lone empty cell is a blank line, which the reader skips
 
 interface Layout {
   bom: boolean;

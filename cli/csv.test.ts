@@ -3,17 +3,7 @@ import { tmpdir } from "node:os";
 import { join } from "node:path";
 import fc from "fast-check";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import {
-  CsvError,
-  formatCsvCell,
-  formatCsvRow,
-  numberCell,
-  openCsvTable,
-  parseCsvChunks,
-  readCsvRecords,
-  requireColumn,
-  type CsvRecord,
-} from "./csv";
+import { CsvError, formatCsvCell, formatCsvRow, numberCell, openCsvTable, parseCsvChunks, readCsvRecords, requireColumn, type CsvRecord } from "./csv";
 
 let dir: string;
 beforeAll(async () => {
@@ -110,7 +100,7 @@ describe("the CSV parser", () => {
   });
 
   it("handles a CRLF split between two chunks and a doubled quote split between two chunks", () => {
-    const records = parseCsvChunks(['a,b\r', '\n1,"x"', '"y"\r', "\n2,3"]);
+    const records = parseCsvChunks(["a,b\r", '\n1,"x"', '"y"\r', "\n2,3"]);
     expect(records).toEqual([
       { line: 1, cells: ["a", "b"] },
       { line: 2, cells: ["1", 'x"y'] },
@@ -122,9 +112,7 @@ describe("the CSV parser", () => {
     const error = thrown(() => parseCsvChunks(['a,b\n1,12" screen\n'], "ledger.csv"));
     expect(error.line).toBe(2);
     expect(error.column).toBe("cell 2");
-    expect(error.message).toBe(
-      "ledger.csv line 2, column 'cell 2': a quote appears inside an unquoted field; quote the whole cell and double the quotes inside it (RFC 4180)",
-    );
+    expect(error.message).toBe("ledger.csv line 2, column 'cell 2': a quote appears inside an unquoted field; quote the whole cell and double the quotes inside it (RFC 4180)");
   });
 
   it("refuses text after a closing quote", () => {
@@ -140,54 +128,42 @@ describe("the CSV parser", () => {
   });
 
   it("gives the same records however the text is split into chunks (property)", () => {
-    const cell = fc.oneof(
-      fc.string({ unit: fc.constantFrom("a", "b", "1", ",", '"', "\r", "\n", " ", "é", "€") }),
-      fc.string(),
-    );
+    const cell = fc.oneof(fc.string({ unit: fc.constantFrom("a", "b", "1", ",", '"', "\r", "\n", " ", "é", "€") }), fc.string());
     const row = fc.array(cell, { minLength: 1, maxLength: 5 }).filter((cells) => !(cells.length === 1 && cells[0] === ""));
     fc.assert(
-      fc.property(
-        fc.array(row, { minLength: 1, maxLength: 12 }),
-        fc.boolean(),
-        fc.boolean(),
-        fc.array(fc.nat(), { maxLength: 12 }),
-        (rows, crlf, bom, cutPoints) => {
-          let text = rows.map((cells) => formatCsvRow(cells)).join("");
-          if (crlf) text = text.replace(/(^|[^\r"])\n/g, "$1\r\n"); // line ends outside quotes only matter for counting
-          if (bom) text = "\uFEFF" + text;
-          const whole = parseCsvChunks([text]);
-          const cuts = [...new Set(cutPoints.map((p) => p % (text.length + 1)))].sort((a, b) => a - b);
-          const chunks: string[] = [];
-          let at = 0;
-          for (const cut of cuts) {
-            chunks.push(text.slice(at, cut));
-            at = cut;
-          }
-          chunks.push(text.slice(at));
-          const split = parseCsvChunks(chunks);
-          expect(split).toEqual(whole);
-          if (!crlf) expect(whole.map((r) => r.cells)).toEqual(rows);
-        },
-      ),
+      fc.property(fc.array(row, { minLength: 1, maxLength: 12 }), fc.boolean(), fc.boolean(), fc.array(fc.nat(), { maxLength: 12 }), (rows, crlf, bom, cutPoints) => {
+        let text = rows.map((cells) => formatCsvRow(cells)).join("");
+        if (crlf) text = text.replace(/(^|[^\r"])\n/g, "$1\r\n"); // line ends outside quotes only matter for counting
+        if (bom) text = "\uFEFF" + text;
+        const whole = parseCsvChunks([text]);
+        const cuts = [...new Set(cutPoints.map((p) => p % (text.length + 1)))].sort((a, b) => a - b);
+        const chunks: string[] = [];
+        let at = 0;
+        for (const cut of cuts) {
+          chunks.push(text.slice(at, cut));
+          at = cut;
+        }
+        chunks.push(text.slice(at));
+        const split = parseCsvChunks(chunks);
+        expect(split).toEqual(whole);
+        if (!crlf) expect(whole.map((r) => r.cells)).toEqual(rows);
+      }),
       { numRuns: 400 },
     );
   });
 
   it("round-trips any table written with formatCsvRow, line numbers included (property)", () => {
     fc.assert(
-      fc.property(
-        fc.array(fc.array(fc.string(), { minLength: 2, maxLength: 4 }), { minLength: 1, maxLength: 10 }),
-        (rows) => {
-          const text = rows.map((cells) => formatCsvRow(cells)).join("");
-          const records = parseCsvChunks([text]);
-          expect(records.map((r) => r.cells)).toEqual(rows);
-          let line = 1;
-          records.forEach((record, k) => {
-            expect(record.line).toBe(line);
-            line += (formatCsvRow(rows[k]).match(/\r\n|\r|\n/g) ?? []).length;
-          });
-        },
-      ),
+      fc.property(fc.array(fc.array(fc.string(), { minLength: 2, maxLength: 4 }), { minLength: 1, maxLength: 10 }), (rows) => {
+        const text = rows.map((cells) => formatCsvRow(cells)).join("");
+        const records = parseCsvChunks([text]);
+        expect(records.map((r) => r.cells)).toEqual(rows);
+        let line = 1;
+        records.forEach((record, k) => {
+          expect(record.line).toBe(line);
+          line += (formatCsvRow(rows[k]).match(/\r\n|\r|\n/g) ?? []).length;
+        });
+      }),
       { numRuns: 300 },
     );
   });
@@ -195,7 +171,7 @@ describe("the CSV parser", () => {
 
 describe("CSV files", () => {
   it("streams a file in small chunks, multi-byte characters split across chunks included", async () => {
-    const path = await file("utf8.csv", "\uFEFFcity,amount\r\nZürich,12.5\r\n\"Köln, Süd\",€7\r\n");
+    const path = await file("utf8.csv", '\uFEFFcity,amount\r\nZürich,12.5\r\n"Köln, Süd",€7\r\n');
     const records: CsvRecord[] = await collect(readCsvRecords(path, { chunkSize: 3 }));
     expect(records.map((r) => r.cells)).toEqual([
       ["city", "amount"],
@@ -254,9 +230,7 @@ describe("column and cell helpers", () => {
   it("parses numeric cells strictly and says why a cell is refused", () => {
     expect(numberCell("1e3", "l.csv", 4, "amount")).toBe(1000);
     expect(numberCell("-0.5", "l.csv", 4, "amount")).toBe(-0.5);
-    expect(thrown(() => numberCell("abc", "ledger.csv", 42, "amount")).message).toBe(
-      "ledger.csv line 42, column 'amount': 'abc' is not a number",
-    );
+    expect(thrown(() => numberCell("abc", "ledger.csv", 42, "amount")).message).toBe("ledger.csv line 42, column 'amount': 'abc' is not a number");
     expect(thrown(() => numberCell("12abc", "l.csv", 2, "a")).rule).toBe("'12abc' is not a number");
     expect(thrown(() => numberCell("0x10", "l.csv", 2, "a")).rule).toBe("'0x10' is not a number");
     expect(thrown(() => numberCell("", "l.csv", 2, "a")).rule).toBe("the cell is empty; a number is required");

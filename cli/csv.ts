@@ -144,9 +144,7 @@ export class CsvParser {
             this.newLine(c);
             start = i + 1;
           } else if (c === QUOTE) {
-            this.fail(
-              `a quote appears inside an unquoted field; quote the whole cell and double the quotes inside it (RFC 4180)`,
-            );
+            this.fail(`a quote appears inside an unquoted field; quote the whole cell and double the quotes inside it (RFC 4180)`);
           }
           break;
         case QUOTED:
@@ -193,12 +191,7 @@ export class CsvParser {
     this.ended = true;
     switch (this.state) {
       case QUOTED:
-        throw new CsvError(
-          this.file,
-          this.quoteLine,
-          null,
-          `a quoted cell opened on line ${this.quoteLine} is never closed`,
-        );
+        throw new CsvError(this.file, this.quoteLine, null, `a quoted cell opened on line ${this.quoteLine} is never closed`);
       case UNQUOTED:
       case QUOTE_SEEN:
         this.cells.push(this.partial);
@@ -394,13 +387,7 @@ export function requireColumn(header: readonly string[], name: string, file: str
   const index = header.indexOf(name);
   if (index < 0) {
     const asked = role ? ` (${role})` : "";
-    throw new CsvError(
-      file,
-      null,
-      name,
-      "column not found",
-      `column '${name}'${asked} not found in header of ${file}; columns are: ${header.join(", ")}`,
-    );
+    throw new CsvError(file, null, name, "column not found", `column '${name}'${asked} not found in header of ${file}; columns are: ${header.join(", ")}`);
   }
   return index;
 }

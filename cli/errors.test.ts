@@ -6,7 +6,6 @@ import { CsvError } from "./csv";
 import { EXIT_INTERNAL, EXIT_REFUSED, EXIT_USAGE, InputError, reportFailure } from "./errors";
 import { captureIO } from "./capture-io";
 
-
 describe("turning failures into messages and exit codes", () => {
   it("prints a refused fit's diagnostics with equation and remedy and returns 1", () => {
     const c = captureIO();

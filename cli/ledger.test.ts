@@ -73,33 +73,21 @@ describe("ledger layout", () => {
     expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount", "velocity_1h") })).toThrow(
       "column 'velocity_1h' (feature) not found in header of ledger.csv; columns are: id, amount, items, label, channel",
     );
-    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount"), labelColumn: "outcome" })).toThrow(
-      "column 'outcome' (--label-column) not found",
-    );
-    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount"), idColumn: "ref" })).toThrow(
-      "column 'ref' (--id-column) not found",
-    );
-    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount"), segmentColumn: "country" })).toThrow(
-      "column 'country' (segment column) not found",
-    );
+    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount"), labelColumn: "outcome" })).toThrow("column 'outcome' (--label-column) not found");
+    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount"), idColumn: "ref" })).toThrow("column 'ref' (--id-column) not found");
+    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount"), segmentColumn: "country" })).toThrow("column 'country' (segment column) not found");
   });
 
   it("refuses a feature listed twice and a feature that is also the label or segment column", () => {
-    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount", "amount") })).toThrow(
-      "feature 'amount' is listed twice",
-    );
-    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount", "label") })).toThrow(
-      "column 'label' of ledger.csv is both a feature and the label column",
-    );
-    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount", "items"), segmentColumn: "items" })).toThrow(
-      "is both a feature and the segment column",
-    );
+    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount", "amount") })).toThrow("feature 'amount' is listed twice");
+    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount", "label") })).toThrow("column 'label' of ledger.csv is both a feature and the label column");
+    expect(() => resolveLedgerLayout(header, "ledger.csv", { features: plain("amount", "items"), segmentColumn: "items" })).toThrow("is both a feature and the segment column");
   });
 });
 
 describe("reading a ledger", () => {
   it("yields values in feature order with id, label, segment and line", async () => {
-    const path = await file("ok.csv", "id,amount,items,label,channel\nA1,12.5,2,,web\nA2,80,1,FRAUD,\n\"A,3\",7,3,0,app\n");
+    const path = await file("ok.csv", 'id,amount,items,label,channel\nA1,12.5,2,,web\nA2,80,1,FRAUD,\n"A,3",7,3,0,app\n');
     const ledger = await openLedger(path, { features: plain("items", "amount"), segmentColumn: "channel" });
     const rows = [];
     for await (const row of ledger.rows) rows.push({ ...row, values: Array.from(row.values) });
@@ -144,9 +132,7 @@ describe("reading a ledger", () => {
       const ledger = await openLedger(path, { features: plain("amount") }, { label: "ledger.csv" });
       for await (const _ of ledger.rows);
     });
-    expect(error.message).toBe(
-      "ledger.csv line 3, column 'label': 'suspicious' is not a label; expected fraud, legitimate, 1, 0 or an empty cell",
-    );
+    expect(error.message).toBe("ledger.csv line 3, column 'label': 'suspicious' is not a label; expected fraud, legitimate, 1, 0 or an empty cell");
   });
 });
 

@@ -2,7 +2,6 @@ import { describe, expect, it } from "vitest";
 import { COMMANDS, main, topLevelHelp } from "./main";
 import { captureIO } from "./capture-io";
 
-
 describe("the isodense dispatcher", () => {
   it("lists derive, fit, score, tune, refit, drift, sql, publish and demo-ledger in its help", async () => {
     expect(COMMANDS.map((c) => c.name)).toEqual(["derive", "fit", "score", "tune", "refit", "drift", "sql", "publish", "demo-ledger"]);

@@ -69,7 +69,7 @@ describe("demo-ledger command", () => {
     [["--out", "x.csv", "--rows", "0"], "--rows: must be an integer from 1 to 2000000 (received 0)"],
     [["--out", "x.csv", "--seed", "-4"], '--seed: must be an integer from 0 to 4294967295 (received "-4")'],
     [["--out", "x.csv", "--seed", "4294967296"], "--seed: must be an integer from 0 to 4294967295 (received 4294967296)"],
-    [["--out", "x.csv", "--start", "2026-13-01"], '--start: must be a calendar date YYYY-MM-DD'],
+    [["--out", "x.csv", "--start", "2026-13-01"], "--start: must be a calendar date YYYY-MM-DD"],
     [["--out", "x.csv", "--days", "3"], "--days: unknown option"],
     [["--out", "x.csv", "--rows", "5", "--rows", "6"], "--rows: given more than once"],
     [["--out", "x.csv", "ledger"], "ledger: unexpected argument"],

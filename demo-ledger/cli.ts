@@ -162,11 +162,7 @@ function summary(target: string, tally: Tally): string {
   const percent = ((100 * tally.fraud) / tally.rows).toFixed(2);
   const patterns = FRAUD_PATTERNS.map((p) => `${p} ${count(tally.byPattern.get(p) ?? 0)}`).join(", ");
   const channels = CHANNELS.map((c) => `${c} ${count(tally.byChannel.get(c) ?? 0)}`).join(", ");
-  return [
-    `Wrote ${count(tally.rows)} payments to ${target}`,
-    `  fraud: ${count(tally.fraud)} (${percent} %): ${patterns}`,
-    `  channels: ${channels}`,
-  ].join("\n");
+  return [`Wrote ${count(tally.rows)} payments to ${target}`, `  fraud: ${count(tally.fraud)} (${percent} %): ${patterns}`, `  channels: ${channels}`].join("\n");
 }
 
 /**

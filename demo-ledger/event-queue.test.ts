@@ -24,12 +24,7 @@ describe("EventQueue", () => {
     expect(queue.pop()).toEqual({ time: 10, event: "a" });
     queue.schedule(20, "b");
     queue.schedule(30, "d");
-    expect([queue.pop(), queue.pop(), queue.pop(), queue.pop()]).toEqual([
-      { time: 20, event: "b" },
-      { time: 30, event: "c" },
-      { time: 30, event: "d" },
-      undefined,
-    ]);
+    expect([queue.pop(), queue.pop(), queue.pop(), queue.pop()]).toEqual([{ time: 20, event: "b" }, { time: 30, event: "c" }, { time: 30, event: "d" }, undefined]);
   });
 
   it("refuses a time that is not a finite number, naming the field", () => {

@@ -209,7 +209,7 @@ describe("columns and types", () => {
       const r = rows[i];
       if (r.paymentId !== `pay-${String(i + 1).padStart(6, "0")}`) broken.push(`row ${i + 1} is ${r.paymentId}`);
       if (i > 0 && r.timeMs < rows[i - 1].timeMs) broken.push(`${r.paymentId} is earlier than the row before`);
-      const expected = ((r.timeMs / HOUR_MS + LOCAL_UTC_OFFSET_HOURS) % 24 + 24) % 24;
+      const expected = (((r.timeMs / HOUR_MS + LOCAL_UTC_OFFSET_HOURS) % 24) + 24) % 24;
       if (!(Math.abs(r.hourOfDay - expected) < 1.01e-4)) broken.push(`${r.paymentId} hourOfDay ${r.hourOfDay} ≠ ${expected}`);
     }
     expect(broken.slice(0, 5)).toEqual([]);
@@ -298,8 +298,7 @@ describe("fraud", () => {
   });
 
   it("makes the combination rare: at most a handful of legitimate payments join an account under three days old, 3–5 a.m. and one item for 95 or more", () => {
-    const lookalike = (r: ParsedRow): boolean =>
-      r.accountAgeDays < 3 && r.hourOfDay >= 3 && r.hourOfDay < 5 && r.basketItems === 1 && r.amount >= 95;
+    const lookalike = (r: ParsedRow): boolean => r.accountAgeDays < 3 && r.hourOfDay >= 3 && r.hourOfDay < 5 && r.basketItems === 1 && r.amount >= 95;
     expect(rows.filter((r) => r.fraudPattern === COMBINATION_PATTERN).every(lookalike)).toBe(true);
     // Each ingredient alone is common enough among legitimate payments…
     expect(legit.filter((r) => r.accountAgeDays < 3).length).toBeGreaterThan(1_000);
@@ -317,7 +316,10 @@ describe("fraud", () => {
     expect(takeover.every((r) => r.accountAgeDays > 180 && r.shipDistanceKm > 50)).toBe(true);
     const ratios = takeover.map((r) => r.amountVsAccountAverage).sort((x, y) => x - y);
     expect(quantile(ratios, 0.5)).toBeGreaterThan(4);
-    const legitRatioP98 = quantile(legit.map((r) => r.amountVsAccountAverage).sort((x, y) => x - y), 0.98);
+    const legitRatioP98 = quantile(
+      legit.map((r) => r.amountVsAccountAverage).sort((x, y) => x - y),
+      0.98,
+    );
     expect(quantile(ratios, 0.5)).toBeGreaterThan(legitRatioP98);
     // Takeovers hit accounts that also make legitimate payments.
     const takenOver = new Set(takeover.map((r) => r.accountRef));
@@ -425,9 +427,24 @@ describe("segments and realism", () => {
 
   it("raises amount with basket size, lowers the shipping share as amount rises and ties velocity to short gaps", () => {
     const logAmount = legit.map((r) => Math.log(r.amount));
-    expect(pearson(logAmount, legit.map((r) => Math.log1p(r.basketItems)))).toBeGreaterThan(0.6);
-    expect(pearson(logAmount, legit.map((r) => r.shippingShare))).toBeLessThan(-0.6);
-    expect(pearson(legit.map((r) => Math.log1p(r.hoursSincePrevious)), legit.map((r) => r.paymentsLast24h))).toBeLessThan(-0.3);
+    expect(
+      pearson(
+        logAmount,
+        legit.map((r) => Math.log1p(r.basketItems)),
+      ),
+    ).toBeGreaterThan(0.6);
+    expect(
+      pearson(
+        logAmount,
+        legit.map((r) => r.shippingShare),
+      ),
+    ).toBeLessThan(-0.6);
+    expect(
+      pearson(
+        legit.map((r) => Math.log1p(r.hoursSincePrevious)),
+        legit.map((r) => r.paymentsLast24h),
+      ),
+    ).toBeLessThan(-0.3);
   });
 
   it("skews every positive feature to the right before its transform", () => {

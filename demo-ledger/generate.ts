@@ -79,12 +79,9 @@ export const COMBINATION_PATTERN: FraudPattern = "ordinary-parts";
 
 /** One-sentence description of each fraud kind, for reports and the README. */
 export const FRAUD_PATTERN_NOTES: Readonly<Record<FraudPattern, string>> = {
-  "test-burst":
-    "A freshly opened account runs a quick burst of tiny payments (stolen cards being tried): high velocity, minutes apart.",
-  "takeover-spike":
-    "Someone else gets into a long-standing account and spends several times its usual amount, shipping far away.",
-  "reship-haul":
-    "A young account orders many items to a distant forwarding address, once or a few times within a day.",
+  "test-burst": "A freshly opened account runs a quick burst of tiny payments (stolen cards being tried): high velocity, minutes apart.",
+  "takeover-spike": "Someone else gets into a long-standing account and spends several times its usual amount, shipping far away.",
+  "reship-haul": "A young account orders many items to a distant forwarding address, once or a few times within a day.",
   "ordinary-parts":
     "A day-old account pays a moderate amount for a single costly item at 3–5 a.m., by courier to a moderately distant address: every value ordinary alone, the mix rare.",
 };
@@ -207,8 +204,7 @@ function describe(value: unknown): string {
 
 const DATE_ONLY = /^(\d{4})-(\d{2})-(\d{2})$/;
 const UTC_TIMESTAMP = /^(\d{4})-(\d{2})-(\d{2})T(\d{2}):(\d{2}):(\d{2})(\.\d{1,3})?Z$/;
-const START_RULE =
-  "must be a calendar date YYYY-MM-DD or a UTC timestamp YYYY-MM-DDTHH:MM:SS[.sss]Z, year 1970 to 9999";
+const START_RULE = "must be a calendar date YYYY-MM-DD or a UTC timestamp YYYY-MM-DDTHH:MM:SS[.sss]Z, year 1970 to 9999";
 
 /**
  * Validates generator options and fills in defaults.
@@ -667,15 +663,7 @@ class Simulation {
     return Math.min(round2(fee), feeCap(merchandise));
   }
 
-  private finishDraft(
-    channel: Channel,
-    merchandise: number,
-    items: number,
-    distanceKm: number,
-    shipTo: string,
-    delivery: Delivery,
-    pattern: FraudPattern | "",
-  ): PaymentDraft {
+  private finishDraft(channel: Channel, merchandise: number, items: number, distanceKm: number, shipTo: string, delivery: Delivery, pattern: FraudPattern | ""): PaymentDraft {
     const merch = Math.max(0.5, round2(merchandise));
     const fee = this.shippingFee(distanceKm, items, delivery, merch);
     const amount = round2(merch + fee);

@@ -68,7 +68,10 @@ describe("createRandom", () => {
     expect(Math.abs(poisson.variance - 3.2)).toBeLessThan(0.08);
 
     // Gamma(shape k, mean μ): variance μ²/k; both the k < 1 and k ≥ 1 branches.
-    for (const [shape, mean] of [[0.9, 0.045], [5, 1]] as const) {
+    for (const [shape, mean] of [
+      [0.9, 0.045],
+      [5, 1],
+    ] as const) {
       const gamma = moments(() => rng.gamma(shape, mean));
       expect(Math.abs(gamma.mean / mean - 1)).toBeLessThan(0.02);
       expect(Math.abs(gamma.variance / ((mean * mean) / shape) - 1)).toBeLessThan(0.06);

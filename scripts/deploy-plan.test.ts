@@ -41,7 +41,11 @@ const queueInfo = (name: string, id: string) => ({
   stdout: `Queue Name: ${name}\nQueue ID: ${id}\nCreated On: 2026-11-30T09:13:02.000Z\nLast Modified: 2026-11-30T09:13:02.000Z\nNumber of Producers: 1\nProducers: worker:isodense\nNumber of Consumers: 1\nConsumers: worker:isodense\n`,
   stderr: "",
 });
-const wranglerError = (message: string) => ({ code: 1, stdout: "", stderr: `\u001b[31m✘ \u001b[41;31m[\u001b[41;97mERROR\u001b[41;31m]\u001b[0m \u001b[1m${message}\u001b[0m\n\n` });
+const wranglerError = (message: string) => ({
+  code: 1,
+  stdout: "",
+  stderr: `\u001b[31m✘ \u001b[41;31m[\u001b[41;97mERROR\u001b[41;31m]\u001b[0m \u001b[1m${message}\u001b[0m\n\n`,
+});
 
 /** An account holding everything the committed config needs, with all secrets set. */
 function fullInventory(): Inventory {
@@ -102,7 +106,8 @@ describe("reading wrangler's output", () => {
 describe("reading whether the database is current", () => {
   it("goes on only when wrangler says no migration is left to apply", () => {
     expect(migrationsCurrent("isodense-review", { code: 0, stdout: "\u2705 No migrations to apply!\n", stderr: "" })).toBe(true);
-    const pending = "Migrations to be applied:\n┌──────────────────────────┐\n│ Name                     │\n├──────────────────────────┤\n│ 0006_add_limits.sql      │\n└──────────────────────────┘\n";
+    const pending =
+      "Migrations to be applied:\n┌──────────────────────────┐\n│ Name                     │\n├──────────────────────────┤\n│ 0006_add_limits.sql      │\n└──────────────────────────┘\n";
     expect(migrationsCurrent("isodense-review", { code: 0, stdout: pending, stderr: "" })).toBe(false);
     expect(() => migrationsCurrent("isodense-review", wranglerError("Couldn't find a D1 DB with the name or binding 'isodense-review'"))).toThrow(/Couldn't find a D1 DB/);
   });
@@ -169,7 +174,11 @@ describe("planning a deploy", () => {
     const plan = planDeploy(committed, fullInventory(), [], "wrangler.deploy.json");
     const config = plan.deployConfig as Record<string, unknown>;
     expect(config.kv_namespaces).toEqual([{ binding: "MODELS", id: "0f2a9c1b8d7e6f5a4b3c2d1e0f9a8b7c" }]);
-    expect((config.d1_databases as Record<string, unknown>[])[0]).toMatchObject({ binding: "DB", database_name: "isodense-review", database_id: "8e4f2a10-5b6c-4d7e-9f01-23456789abcd" });
+    expect((config.d1_databases as Record<string, unknown>[])[0]).toMatchObject({
+      binding: "DB",
+      database_name: "isodense-review",
+      database_id: "8e4f2a10-5b6c-4d7e-9f01-23456789abcd",
+    });
     const { kv_namespaces: _kv, d1_databases: _d1, ...rest } = config;
     const { kv_namespaces: _kv0, d1_databases: _d10, ...committedRest } = committed;
     expect(rest).toEqual(committedRest);

@@ -379,6 +379,9 @@ function stripAnsi(text: string): string {
 }
 
 function lastLines(text: string): string {
-  const lines = stripAnsi(text).trim().split("\n").filter((l) => l.trim() !== "");
+  const lines = stripAnsi(text)
+    .trim()
+    .split("\n")
+    .filter((l) => l.trim() !== "");
   return lines.slice(-3).join(" / ") || "(no output)";
 }

@@ -178,7 +178,7 @@ async function main(): Promise<number> {
           throw new DeployInputError(`${step.database} still has migrations to apply (declined?); not deploying code that needs them`);
         }
         say(`\n▸ ${step.database}: every migration applied`);
-      }      else if (step.kind === "deploy") {
+      } else if (step.kind === "deploy") {
         if (step.secrets.length > 0) writeFileSync(secretsPath, secretsFileText(secrets.values), { mode: 0o600 });
         await run(
           step.argv.map((a) => (a === SECRETS_FILE_PLACEHOLDER ? secretsPath : a)),

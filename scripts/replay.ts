@@ -35,7 +35,15 @@ const spec: CommandSpec = {
     { name: "spec", kind: "string", valueName: "spec.json", description: "record spec deriving the features of a records ledger", defaultText: "demo-ledger/spec.json" },
     { name: "limit", kind: "integer", valueName: "N", min: 1, description: "send at most N payments", defaultText: "all" },
     { name: "batch", kind: "integer", valueName: "N", min: 1, max: 1000, description: "payments per request (≤ the service's MAX_BATCH)", defaultText: "100" },
-    { name: "parallel", kind: "integer", valueName: "N", min: 1, max: 32, description: "requests in flight", defaultText: "1 for payment records (time order per account), else 4" },
+    {
+      name: "parallel",
+      kind: "integer",
+      valueName: "N",
+      min: 1,
+      max: 32,
+      description: "requests in flight",
+      defaultText: "1 for payment records (time order per account), else 4",
+    },
   ],
 };
 

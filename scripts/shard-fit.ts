@@ -38,10 +38,16 @@ const amountAt = contrastDecls.findIndex((d) => d.name === "amount");
 const naive = naivePerShardTransforms(rows, contrastDecls, shards);
 const contrastRight = shardAndMerge(rows, contrastDecls, shards);
 console.log(`demo ledger: ${ledgerRows.toLocaleString("en")} payments, ${rows.length.toLocaleString("en")} legitimate rows, ${result.columns.length} model columns`);
-console.log(`${shards} shards of ${result.rowsPerShard.map((r) => r.toLocaleString("en")).join(" / ")} rows; ${result.snapshotBytes.toLocaleString("en")} bytes of moment snapshots shipped`);
+console.log(
+  `${shards} shards of ${result.rowsPerShard.map((r) => r.toLocaleString("en")).join(" / ")} rows; ${result.snapshotBytes.toLocaleString("en")} bytes of moment snapshots shipped`,
+);
 console.log(`merged vs single pass (transforms fitted once on the pooled rows):`);
 console.log(`  mean: max relative difference ${result.meanRelativeError.toExponential(2)}; covariance: ${result.covarianceRelativeError.toExponential(2)}  (target ≤ 1e-9)`);
 console.log(`contrast, with amount under Yeo–Johnson (pooled λ ${contrastRight.features[amountAt].lambda?.toFixed(4)}):`);
-console.log(`  transforms fitted once, shards merged: mean ${contrastRight.meanRelativeError.toExponential(2)}, covariance ${contrastRight.covarianceRelativeError.toExponential(2)}`);
-console.log(`  each shard its own λ (${naive.lambdas.map((l) => l[amountAt]?.toFixed(3)).join(", ")}): mean ${naive.meanRelativeError.toExponential(2)}, covariance ${naive.covarianceRelativeError.toExponential(2)}`);
+console.log(
+  `  transforms fitted once, shards merged: mean ${contrastRight.meanRelativeError.toExponential(2)}, covariance ${contrastRight.covarianceRelativeError.toExponential(2)}`,
+);
+console.log(
+  `  each shard its own λ (${naive.lambdas.map((l) => l[amountAt]?.toFixed(3)).join(", ")}): mean ${naive.meanRelativeError.toExponential(2)}, covariance ${naive.covarianceRelativeError.toExponential(2)}`,
+);
 if (result.meanRelativeError > 1e-9 || result.covarianceRelativeError > 1e-9 || contrastRight.covarianceRelativeError > 1e-9) process.exitCode = 1;

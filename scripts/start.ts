@@ -196,12 +196,7 @@ async function sampleCurl(flowToken: string): Promise<string> {
   } finally {
     await payments.return(undefined);
   }
-  return [
-    `curl -s ${url}/v1/score \\`,
-    `  -H "authorization: Bearer ${flowToken}" \\`,
-    `  -H "content-type: application/json" \\`,
-    `  -d '${JSON.stringify(body)}'`,
-  ].join("\n");
+  return [`curl -s ${url}/v1/score \\`, `  -H "authorization: Bearer ${flowToken}" \\`, `  -H "content-type: application/json" \\`, `  -d '${JSON.stringify(body)}'`].join("\n");
 }
 
 await ensureLedger();

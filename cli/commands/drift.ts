@@ -134,7 +134,9 @@ export function reportLines(report: DriftReport, out: string | undefined): strin
     `${formatCount(report.payments)} payments of ${report.ledger} against model ${report.modelVersion}` +
       (report.rowsLeftOutAsFraud > 0 ? ` (${formatCount(report.rowsLeftOutAsFraud)} rows labelled fraud left out)` : "") +
       `; baseline: ${report.baseline}`,
-    ...report.drift.map((d) => `  ${(d.name === "mahalanobisSq" ? "score (d²)" : d.name).padEnd(width)}  ${d.psi === null ? `—  ${d.note}` : `PSI ${d.psi.toFixed(3)}  ${d.level}`}`),
+    ...report.drift.map(
+      (d) => `  ${(d.name === "mahalanobisSq" ? "score (d²)" : d.name).padEnd(width)}  ${d.psi === null ? `—  ${d.note}` : `PSI ${d.psi.toFixed(3)}  ${d.level}`}`,
+    ),
   ];
   const f = report.flagRate;
   if (f !== null) {

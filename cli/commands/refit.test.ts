@@ -29,7 +29,6 @@ let dir: string;
 let rows: Row[];
 let live: ModelArtifact;
 
-
 const p = (name: string): string => join(dir, name);
 
 beforeAll(async () => {
@@ -53,7 +52,15 @@ beforeAll(async () => {
   // 30 confirmed (i % 100 = 7 below 3000) + 10 ledger fraud: 3,000 normal rows remain.
   expect(rows.filter((r) => r.kind === "normal")).toHaveLength(3000);
   await writeFile(p("ledger.csv"), ["id,amount,items,channel,label", ...rows.map((r) => `${r.id},${r.amount},${r.items},${r.channel},${r.ledgerLabel}`)].join("\n") + "\n");
-  await writeFile(p("spec.json"), JSON.stringify({ features: [{ name: "amount", transform: "log" }, { name: "items", transform: "log1p" }] }));
+  await writeFile(
+    p("spec.json"),
+    JSON.stringify({
+      features: [
+        { name: "amount", transform: "log" },
+        { name: "items", transform: "log1p" },
+      ],
+    }),
+  );
   // The live model was fitted before the reviews: the 30 later-confirmed frauds were in its training data.
   const fit = captureIO();
   expect(await fitCommand([p("ledger.csv"), "--out", p("live.json"), "--spec", p("spec.json"), "--segment-by", "channel", "--cutoff-rate", "0.02"], fit.io)).toBe(0);
@@ -61,8 +68,7 @@ beforeAll(async () => {
   // The review export: the 30 confirmed frauds, 20 dismissed flags, 100 audit draws at 5 %, and two
   // confirmed frauds from after the training window (not in the ledger).
   const normals = rows.filter((r) => r.kind === "normal");
-  const line = (r: Pick<Row, "id" | "amount" | "items" | "channel">, outcome: string, weight: number): string =>
-    `${r.id},${r.amount},${r.items},${r.channel},${outcome},${weight}`;
+  const line = (r: Pick<Row, "id" | "amount" | "items" | "channel">, outcome: string, weight: number): string => `${r.id},${r.amount},${r.items},${r.channel},${outcome},${weight}`;
   await writeFile(
     p("labels.csv"),
     [
@@ -91,10 +97,7 @@ describe("isodense refit", () => {
 
     // Pooled mean in model units over exactly the 3,000 normal rows (ln amount, ln(1 + items)).
     const normals = rows.filter((r) => r.kind === "normal");
-    const mean = [
-      normals.reduce((s, r) => s + Math.log(r.amount), 0) / normals.length,
-      normals.reduce((s, r) => s + Math.log1p(r.items), 0) / normals.length,
-    ];
+    const mean = [normals.reduce((s, r) => s + Math.log(r.amount), 0) / normals.length, normals.reduce((s, r) => s + Math.log1p(r.items), 0) / normals.length];
     candidate.segments["*"].mean.forEach((m, j) => expect(Math.abs(m - mean[j])).toBeLessThan(1e-9));
     // The live model learnt from the 30 frauds (25 times the usual amount): its mean amount is higher.
     expect(live.segments["*"].mean[0] - candidate.segments["*"].mean[0]).toBeGreaterThan(0.03);
@@ -111,7 +114,9 @@ describe("isodense refit", () => {
     expect(candidate.cutoff.flagRate).toBeCloseTo(0.02, 3);
 
     const out = c.out();
-    expect(out).toContain("ledger: 3,040 rows read from ledger.csv; left out 30 confirmed fraud (labels) and 10 labelled fraud (ledger); kept 120 payments reviewed as legitimate as normal traffic");
+    expect(out).toContain(
+      "ledger: 3,040 rows read from ledger.csv; left out 30 confirmed fraud (labels) and 10 labelled fraud (ledger); kept 120 payments reviewed as legitimate as normal traffic",
+    );
     expect(out).toContain("labels: 152 rows from labels.csv (32 fraud); 2 confirmed-fraud ids are not in the ledger (outside the training window)");
     expect(out).toMatch(/PR-AUC \(average precision\) +[\d.]+ +[\d.]+/);
     expect(out).toMatch(/recall at the live flag rate \(≤ [\d.]+ %\) +[\d.]+ +[\d.]+/);

@@ -43,8 +43,24 @@ export const refitSpec: CommandSpec = {
     { name: "labels-id-column", kind: "string", valueName: "column", description: "payment id column of the labels", defaultText: "transactionId, else id" },
     { name: "labels-label-column", kind: "string", valueName: "column", description: "outcome column of the labels", defaultText: "outcome" },
     { name: "weight-column", kind: "string", valueName: "column", description: "1 / inclusion probability in the labels", defaultText: "weight if present, else 1" },
-    { name: "cutoff-rate", kind: "number", valueName: "rate", greaterThan: 0, lessThan: 1, description: "share of training rows the candidate's cutoff flags", defaultText: "the live flag rate, or the share the live cutoff flags" },
-    { name: "seed", kind: "integer", valueName: "N", min: 0, max: 2 ** 32 - 1, description: "seed for sampling and the robust fit", defaultText: "the live model's robust seed, else 1" },
+    {
+      name: "cutoff-rate",
+      kind: "number",
+      valueName: "rate",
+      greaterThan: 0,
+      lessThan: 1,
+      description: "share of training rows the candidate's cutoff flags",
+      defaultText: "the live flag rate, or the share the live cutoff flags",
+    },
+    {
+      name: "seed",
+      kind: "integer",
+      valueName: "N",
+      min: 0,
+      max: 2 ** 32 - 1,
+      description: "seed for sampling and the robust fit",
+      defaultText: "the live model's robust seed, else 1",
+    },
   ],
   notes: [
     "Exit codes: 0 written; 1 fit refused by diagnostics (nothing written); 2 usage or input error.",
@@ -186,9 +202,7 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
         `${layout.file} has no id column to match the labels against; name it with --id-column (columns are: ${layout.header.join(", ")})`,
       );
     }
-    const cutoff = givenRate !== undefined
-      ? { rate: givenRate, why: "as given with --cutoff-rate" }
-      : await sameCutoffRate(live, source);
+    const cutoff = givenRate !== undefined ? { rate: givenRate, why: "as given with --cutoff-rate" } : await sameCutoffRate(live, source);
     const cutoffRate = cutoff.rate;
     const liveSeed = live.segments["*"].details.estimator === "robust" ? live.segments["*"].details.seed : undefined;
     const { artifact: candidate, report } = await fitModel(source, {
@@ -346,13 +360,7 @@ export function compareOnLabels(
 }
 
 /** Scores every ledger row with both models and counts the flags of each and of both. */
-async function overlapOnLedger(
-  live: ModelArtifact,
-  candidate: ModelArtifact,
-  ledgerPath: string,
-  request: LedgerRequest,
-  onProgress: (rows: number) => void,
-): Promise<Overlap> {
+async function overlapOnLedger(live: ModelArtifact, candidate: ModelArtifact, ledgerPath: string, request: LedgerRequest, onProgress: (rows: number) => void): Promise<Overlap> {
   const liveScorer = new Scorer(compileModel(live));
   const candidateScorer = new Scorer(compileModel(candidate));
   const ledger = await openLedger(ledgerPath, request);

@@ -92,15 +92,7 @@ export async function scoreCommand(argv: string[], io: CommandIO = processIO()):
       const result = scorer.score(row.values, row.segment);
       const [reason] = scorer.explain(row.values, row.segment, 1);
       await writer.write(
-        formatCsvRow([
-          row.id,
-          result.logDensity,
-          result.mahalanobisSq,
-          result.tailProbability,
-          result.flagged,
-          result.segment,
-          reason === undefined ? "" : describeReason(reason),
-        ]),
+        formatCsvRow([row.id, result.logDensity, result.mahalanobisSq, result.tailProbability, result.flagged, result.segment, reason === undefined ? "" : describeReason(reason)]),
       );
       counts.rows++;
       if (result.flagged) counts.flagged++;

@@ -26,7 +26,6 @@ interface Labelled {
 }
 let labelled: Labelled[];
 
-
 /** An invented shop: amounts grow with basket size; fraud buys far more per item. */
 function payment(random: ReturnType<typeof createRandom>, fraud: boolean): { amount: number; items: number } {
   const normal = (): number => Math.sqrt(-2 * Math.log(1 - random.next())) * Math.cos(2 * Math.PI * random.next());
@@ -48,9 +47,20 @@ beforeAll(async () => {
     ledger.push(`ord-${i},${p.amount},${p.items},${i % 3 === 0 ? "app" : "web"}`);
   }
   await writeFile(join(dir, "ledger.csv"), ledger.join("\n") + "\n");
-  await writeFile(join(dir, "spec.json"), JSON.stringify({ features: [{ name: "amount", transform: "log" }, { name: "items", transform: "log1p" }] }));
+  await writeFile(
+    join(dir, "spec.json"),
+    JSON.stringify({
+      features: [
+        { name: "amount", transform: "log" },
+        { name: "items", transform: "log1p" },
+      ],
+    }),
+  );
   const fit = captureIO();
-  const code = await fitCommand(["ledger.csv", "--out", join(dir, "live.json"), "--spec", join(dir, "spec.json"), "--segment-by", "channel"].map((a) => (a === "ledger.csv" ? join(dir, a) : a)), fit.io);
+  const code = await fitCommand(
+    ["ledger.csv", "--out", join(dir, "live.json"), "--spec", join(dir, "spec.json"), "--segment-by", "channel"].map((a) => (a === "ledger.csv" ? join(dir, a) : a)),
+    fit.io,
+  );
   expect(fit.err()).toBe("");
   expect(code).toBe(0);
   live = await parseArtifact(JSON.parse(await readFile(join(dir, "live.json"), "utf8")));

@@ -48,7 +48,12 @@ export const tuneSpec: CommandSpec = {
     { name: "objective", kind: "string", choices: ["f1", "capacity", "cost"], description: "what the cutoff should achieve", defaultText: "f1" },
     { name: "capacity", kind: "string", valueName: "N/day", description: "reviews the analysts can do per day (objective capacity), e.g. 400 or 400/day" },
     { name: "daily-payments", kind: "number", valueName: "N", greaterThan: 0, description: "payments scored per day (needed for capacity; adds flags/day and cost/day)" },
-    { name: "costs", kind: "string", valueName: "review=…,fraud=…,friction=…", description: "cost per review, loss per missed fraud, friction per good customer flagged (objective cost)" },
+    {
+      name: "costs",
+      kind: "string",
+      valueName: "review=…,fraud=…,friction=…",
+      description: "cost per review, loss per missed fraud, friction per good customer flagged (objective cost)",
+    },
     { name: "scored-payments", kind: "integer", valueName: "N", min: 1, description: "payments scored in the period the labels cover", defaultText: "Σ weights" },
     { name: "id-column", kind: "string", valueName: "column", description: "payment id column", defaultText: "transactionId, else id" },
     { name: "label-column", kind: "string", valueName: "column", description: "outcome column: fraud/legitimate or 1/0", defaultText: "outcome" },
@@ -277,13 +282,7 @@ function pointSummary(p: OperatingPoint): string {
  * its flag rate (each the loosest point within that rate), so the table shows the trade-off at a
  * glance instead of thousands of near-identical rows.
  */
-function pointTable(
-  table: OperatingTable,
-  tuned: TunedCutoff,
-  objective: TuningObjective,
-  dailyPayments: number | undefined,
-  n: number,
-): string[] {
+function pointTable(table: OperatingTable, tuned: TunedCutoff, objective: TuningObjective, dailyPayments: number | undefined, n: number): string[] {
   const rate = tuned.point.flagRate;
   const targets = rate > 0 ? [0.25, 0.5, 0.75, 1.5, 2, 4].map((f) => f * rate) : [0.001, 0.005, 0.01, 0.02, 0.05];
   const picked = new Map<number, OperatingPoint>();
@@ -380,5 +379,10 @@ function num(value: number): string {
 /** Pads every column to its widest cell; the first column (marker) is left as is. */
 function alignColumns(rows: string[][]): string[] {
   const widths = rows[0].map((_, c) => Math.max(...rows.map((r) => (r[c] ?? "").length)));
-  return rows.map((r) => r.map((cell, c) => (c === 0 ? cell.padEnd(widths[0]) : cell.padStart(widths[c]))).join("  ").trimEnd());
+  return rows.map((r) =>
+    r
+      .map((cell, c) => (c === 0 ? cell.padEnd(widths[0]) : cell.padStart(widths[c])))
+      .join("  ")
+      .trimEnd(),
+  );
 }

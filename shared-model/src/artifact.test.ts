@@ -22,18 +22,8 @@ import type { FixtureOptions } from "./test-support";
 
 // A fictional shop's payments: log amount, log1p basket size, hour of day (two columns).
 const FEATURES = [fitted("amount", "log"), fitted("basket_items", "log1p"), fitted("hour", "cyclic-hour")];
-const POOLED_COV = [
-  0.64, 0.12, 0.02, -0.01,
-  0.12, 0.25, 0.01, 0.0,
-  0.02, 0.01, 0.45, 0.05,
-  -0.01, 0.0, 0.05, 0.4,
-];
-const WEB_COV = [
-  0.81, 0.2, 0.0, 0.03,
-  0.2, 0.36, 0.02, 0.0,
-  0.0, 0.02, 0.5, -0.04,
-  0.03, 0.0, -0.04, 0.38,
-];
+const POOLED_COV = [0.64, 0.12, 0.02, -0.01, 0.12, 0.25, 0.01, 0.0, 0.02, 0.01, 0.45, 0.05, -0.01, 0.0, 0.05, 0.4];
+const WEB_COV = [0.81, 0.2, 0.0, 0.03, 0.2, 0.36, 0.02, 0.0, 0.0, 0.02, 0.5, -0.04, 0.03, 0.0, -0.04, 0.38];
 const OPTIONS: FixtureOptions = {
   features: FEATURES,
   segments: {
@@ -72,9 +62,7 @@ async function tamperAndReseal(edit: (a: ModelArtifact) => void): Promise<ModelA
 
 describe("canonicalJson", () => {
   it("sorts object keys at every depth, keeps array order and writes no whitespace", () => {
-    expect(canonicalJson({ b: [2, 1, { z: 1, a: 2 }], a: { d: 1, c: null }, "é": true })).toBe(
-      '{"a":{"c":null,"d":1},"b":[2,1,{"a":2,"z":1}],"é":true}',
-    );
+    expect(canonicalJson({ b: [2, 1, { z: 1, a: 2 }], a: { d: 1, c: null }, é: true })).toBe('{"a":{"c":null,"d":1},"b":[2,1,{"a":2,"z":1}],"é":true}');
   });
 
   it("writes numbers and strings exactly as JSON.stringify does", () => {
@@ -138,9 +126,7 @@ describe("buildSegment", () => {
   it("satisfies L·Lᵀ = Σ, Σ·Λ = I and ln|Σ| = ml-matrix's determinant for random SPD matrices", () => {
     fc.assert(
       fc.property(
-        fc.integer({ min: 1, max: 8 }).chain((n) =>
-          fc.tuple(fc.constant(n), fc.array(fc.double({ min: -1, max: 1, noNaN: true }), { minLength: n * n, maxLength: n * n })),
-        ),
+        fc.integer({ min: 1, max: 8 }).chain((n) => fc.tuple(fc.constant(n), fc.array(fc.double({ min: -1, max: 1, noNaN: true }), { minLength: n * n, maxLength: n * n }))),
         ([n, entries]) => {
           const sigma = spdFrom(entries, n, 0.05);
           const seg = buildSegment(new Float64Array(n), sigma, n, 10 * n, { estimator: "classical", denominator: "m" });
@@ -183,20 +169,16 @@ describe("buildSegment", () => {
     expect((caught as NotPositiveDefiniteError).column).toBe(2);
     expect((caught as NotPositiveDefiniteError).message).toMatch(/Cholesky pivot of total/);
     // An exact copy of a column leaves an exactly zero pivot.
-    expect(() =>
-      buildSegment(new Float64Array(2), Float64Array.of(2, 2, 2, 2), 2, 100, { estimator: "classical", denominator: "m" }, ["amount", "amount_copy"]),
-    ).toThrow(/Cholesky pivot of amount_copy is .* linear combination of earlier columns/);
+    expect(() => buildSegment(new Float64Array(2), Float64Array.of(2, 2, 2, 2), 2, 100, { estimator: "classical", denominator: "m" }, ["amount", "amount_copy"])).toThrow(
+      /Cholesky pivot of amount_copy is .* linear combination of earlier columns/,
+    );
   });
 
   it("refuses a zero-variance column, a wrong size, a non-finite entry and an asymmetric covariance", () => {
     const details = { estimator: "classical", denominator: "m" } as const;
     expect(() => buildSegment(new Float64Array(2), Float64Array.of(1, 0, 0, 0), 2, 9, details)).toThrow(/column 1/);
-    expect(() => buildSegment(new Float64Array(3), Float64Array.of(1, 0, 0, 1), 2, 9, details)).toThrow(
-      /mean must have n = 2 entries. Actual: 3/,
-    );
-    expect(() => buildSegment(new Float64Array(2), Float64Array.of(1, NaN, NaN, 1), 2, 9, details)).toThrow(
-      /covariance\[0\]\[1\] must be finite/,
-    );
+    expect(() => buildSegment(new Float64Array(3), Float64Array.of(1, 0, 0, 1), 2, 9, details)).toThrow(/mean must have n = 2 entries. Actual: 3/);
+    expect(() => buildSegment(new Float64Array(2), Float64Array.of(1, NaN, NaN, 1), 2, 9, details)).toThrow(/covariance\[0\]\[1\] must be finite/);
     expect(() => buildSegment(new Float64Array(2), Float64Array.of(1, 0.5, 0.4, 1), 2, 9, details)).toThrow(/symmetric/);
     expect(() => buildSegment(new Float64Array(2), Float64Array.of(1, 0, 0, 1), 2, 0, details)).toThrow(/rows must be a positive integer/);
   });
@@ -339,7 +321,7 @@ describe("sealArtifact and parseArtifact", () => {
 
   it("refuses a __proto__ key that zod would otherwise drop without a word", async () => {
     const text = JSON.stringify(await sealed()).replace('"segmentFallbacks":{', '"segmentFallbacks":{"__proto__":"x",');
-    expectProblem(await refusal(text), 'segmentFallbacks.__proto__', /reserved key/);
+    expectProblem(await refusal(text), "segmentFallbacks.__proto__", /reserved key/);
   });
 
   it("refuses cutoff log-densities that disagree with the d² cutoff, or miss a segment", async () => {

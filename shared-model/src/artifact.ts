@@ -50,7 +50,6 @@ export const INVERSE_TOLERANCE = 1e-6;
 /** Largest accepted |logDet − 2·Σ ln L_ii| (absolute; ln|Σ| is dimensionless in this sense). */
 export const LOG_DET_TOLERANCE = 1e-8;
 
-
 // ---------------------------------------------------------------------------------------------
 // Schema
 // ---------------------------------------------------------------------------------------------
@@ -147,7 +146,10 @@ export const modelArtifactSchema = z.strictObject({
      * Training share of each drift bucket (edges + 1 per column), counted at fit time; absent in
      * artifacts written before it was stored, whose drift falls back to equal shares.
      */
-    columnShares: z.array(z.array(finite.min(0).max(1))).max(MAX_MODEL_COLUMNS).optional(),
+    columnShares: z
+      .array(z.array(finite.min(0).max(1)))
+      .max(MAX_MODEL_COLUMNS)
+      .optional(),
     scoreShares: z.array(finite.min(0).max(1)).optional(),
   }),
   checksum: z.string().regex(/^sha256:[0-9a-f]{64}$/, 'must be "sha256:" followed by 64 lower-case hex digits'),
@@ -181,12 +183,7 @@ export class ArtifactError extends InputError {
   readonly problems: ArtifactProblem[];
   constructor(problems: ArtifactProblem[]) {
     const listed =
-      problems.length > MAX_PROBLEMS
-        ? [
-            ...problems.slice(0, MAX_PROBLEMS),
-            { path: "(artifact)", rule: `${problems.length - MAX_PROBLEMS} more problems not listed` },
-          ]
-        : problems;
+      problems.length > MAX_PROBLEMS ? [...problems.slice(0, MAX_PROBLEMS), { path: "(artifact)", rule: `${problems.length - MAX_PROBLEMS} more problems not listed` }] : problems;
     super(listed[0]?.path ?? "(artifact)", listed[0]?.rule ?? "refused", `model artifact refused: ${listed.map((p) => `${p.path}: ${p.rule}`).join("; ")}`);
     this.problems = listed;
   }
@@ -358,14 +355,7 @@ export async function sealArtifact(content: UnsealedArtifact): Promise<ModelArti
  * @example buildSegment(Float64Array.of(0, 0), Float64Array.of(4, 2, 2, 3), 2, 50, { estimator: "classical", denominator: "m" })
  *   // { rows: 50, mean: [0, 0], covariance: [[4, 2], [2, 3]], precision: [[0.375, -0.25], [-0.25, 0.5]], logDet: ln 8, … }
  */
-export function buildSegment(
-  mean: Float64Array,
-  covariance: Float64Array,
-  n: number,
-  rows: number,
-  details: EstimatorDetails,
-  columns?: readonly string[],
-): ArtifactSegment {
+export function buildSegment(mean: Float64Array, covariance: Float64Array, n: number, rows: number, details: EstimatorDetails, columns?: readonly string[]): ArtifactSegment {
   if (!Number.isInteger(n) || n < 1 || n > MAX_MODEL_COLUMNS) {
     throw new RangeError(`n must be an integer in [1, ${MAX_MODEL_COLUMNS}]. Actual: ${n}.`);
   }
@@ -380,9 +370,7 @@ export function buildSegment(
   }
   for (let i = 0; i < n * n; i++) {
     if (!Number.isFinite(covariance[i])) {
-      throw new RangeError(
-        `covariance[${Math.floor(i / n)}][${i % n}] must be finite. Actual: ${covariance[i]}.`,
-      );
+      throw new RangeError(`covariance[${Math.floor(i / n)}][${i % n}] must be finite. Actual: ${covariance[i]}.`);
     }
   }
   const asym = worstAsymmetry(covariance, n);
@@ -594,7 +582,7 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
 
   for (const key of Object.keys(a.segmentFallbacks)) {
     if (Object.hasOwn(a.segments, key) || key === "*") {
-      add(joinFieldPath("segmentFallbacks", key), "must not name a fitted segment: a value is either fitted or falls back to \"*\"");
+      add(joinFieldPath("segmentFallbacks", key), 'must not name a fitted segment: a value is either fitted or falls back to "*"');
     }
   }
   if (a.segmentBy === null && Object.keys(a.segmentFallbacks).length > 0) {
@@ -611,10 +599,7 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
     const expected = logDensityAt(n, a.segments[key].logDet, c.mahalanobisSq);
     const actual = c.logDensity[key];
     if (!(Math.abs(actual - expected) <= 1e-9 * Math.max(1, Math.abs(expected)))) {
-      add(
-        joinFieldPath("cutoff.logDensity", key),
-        `must equal −½(n ln 2π + logDet + cutoff.mahalanobisSq) = ${expected}. Actual: ${actual}`,
-      );
+      add(joinFieldPath("cutoff.logDensity", key), `must equal −½(n ln 2π + logDet + cutoff.mahalanobisSq) = ${expected}. Actual: ${actual}`);
     }
   }
   for (const key of Object.keys(c.logDensity)) {
@@ -712,10 +697,7 @@ function checkSegment(a: ModelArtifact, key: string, n: number, add: (path: stri
         }
       }
       if (offenders > 0) {
-        add(
-          `${base}.${which}[${Math.floor(first / n)}][${first % n}]`,
-          `must be 0 in a diagonal model (${offenders} non-zero off-diagonal entries)`,
-        );
+        add(`${base}.${which}[${Math.floor(first / n)}][${first % n}]`, `must be 0 in a diagonal model (${offenders} non-zero off-diagonal entries)`);
       }
     }
   }
@@ -734,18 +716,14 @@ function checkSegment(a: ModelArtifact, key: string, n: number, add: (path: stri
     if (!(dev.worst <= INVERSE_TOLERANCE)) {
       add(
         `${base}.precision`,
-        `precision·covariance must equal the identity: deviation ${formatNumber(dev.worst)} at [${dev.i}][${dev.j}] ` +
-          `> ${INVERSE_TOLERANCE} (scaled to unit variances)`,
+        `precision·covariance must equal the identity: deviation ${formatNumber(dev.worst)} at [${dev.i}][${dev.j}] ` + `> ${INVERSE_TOLERANCE} (scaled to unit variances)`,
       );
     }
   }
 }
 
 function notPdRule(chol: CholeskyResult, colName: (k: number) => string): string {
-  return (
-    `must be positive definite: the Cholesky pivot of ${colName(chol.failedAt)} (index ${chol.failedAt}) ` +
-    `is ${formatNumber(chol.failedPivot)}, not > 0`
-  );
+  return `must be positive definite: the Cholesky pivot of ${colName(chol.failedAt)} (index ${chol.failedAt}) ` + `is ${formatNumber(chol.failedPivot)}, not > 0`;
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -818,7 +796,6 @@ function firstDecrease(values: readonly number[]): number {
 function sameStrings(a: readonly string[], b: readonly string[]): boolean {
   return a.length === b.length && a.every((v, i) => v === b[i]);
 }
-
 
 function formatNumber(x: number): string {
   if (!Number.isFinite(x)) return String(x);

@@ -107,7 +107,14 @@ describe("outOfSampleCutoff", () => {
       let law = "";
       for (let f = 0; f < fits; f++) {
         const rows = gaussianRows(stream, m);
-        const { artifact } = await fitModel(source(rows), { features, shape: "full", estimator: "classical", segmentBy: null, cutoffRate: rate, createdAt: "2026-12-04T00:00:00Z" });
+        const { artifact } = await fitModel(source(rows), {
+          features,
+          shape: "full",
+          estimator: "classical",
+          segmentBy: null,
+          cutoffRate: rate,
+          createdAt: "2026-12-04T00:00:00Z",
+        });
         const scorer = new Scorer(compileModel(artifact));
         // The cutoff used before: the in-sample quantile of the training rows' own distances.
         const inSample = Float64Array.from(rows, (r) => scorer.score(r).mahalanobisSq);

@@ -88,7 +88,12 @@ export function outOfSampleCutoff(input: {
   const { inSample, deleted, traffic, n, rate } = input;
   if (deleted === null) {
     const cut = cutoffForFlagRate(inSample, rate, n);
-    return { ...cut, law: "in-sample", lawReason: "in-sample quantile of the training distances (no closed-form out-of-sample law for this estimator or shape; new payments may be flagged somewhat more often than asked)" };
+    return {
+      ...cut,
+      law: "in-sample",
+      lawReason:
+        "in-sample quantile of the training distances (no closed-form out-of-sample law for this estimator or shape; new payments may be flagged somewhat more often than asked)",
+    };
   }
   const model = input.model ?? new Uint16Array(deleted.length);
   const total = traffic.reduce((s, t) => s + t.scored, 0);
@@ -123,7 +128,9 @@ export function outOfSampleCutoff(input: {
     predictive.length === 0
       ? `empirical quantile of the deleted (leave-one-out) distances: every model's tail holds at least ${MIN_TAIL_ROWS} rows`
       : `predictive law of a new payment, n(m + 1)/(m − n)·F(n, m − n), for ${predictive.map((t) => `'${t.key}' (${formatRows(rate * t.rows)} in its tail)`).join(", ")}` +
-        (predictive.length < traffic.filter((t) => t.scored > 0).length ? `; deleted (leave-one-out) distances for the models whose tail holds at least ${MIN_TAIL_ROWS} rows` : "");
+        (predictive.length < traffic.filter((t) => t.scored > 0).length
+          ? `; deleted (leave-one-out) distances for the models whose tail holds at least ${MIN_TAIL_ROWS} rows`
+          : "");
   return { mahalanobisSq: c, tailProbability: chiSquareSurvival(c, n), flagRate: expected(c), law, lawReason };
 }
 

@@ -11,7 +11,12 @@ describe("decisions on fully decided days", () => {
       { version: "m2", day: 2 },
       { version: "m1", day: 1 },
     ];
-    expect(onFullyDecidedDays(decided, [{ version: "m1", day: 2 }, { version: "m1", day: 2 }])).toEqual([true, false, true, true]);
+    expect(
+      onFullyDecidedDays(decided, [
+        { version: "m1", day: 2 },
+        { version: "m1", day: 2 },
+      ]),
+    ).toEqual([true, false, true, true]);
     expect(onFullyDecidedDays(decided, [])).toEqual([true, true, true, true]);
   });
 

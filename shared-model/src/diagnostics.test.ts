@@ -126,7 +126,12 @@ describe("diagnoseColumns", () => {
   });
 
   it("says nothing about variances with fewer than two rows (the row-count check covers that)", () => {
-    expect(diagnoseColumns(momentsOf(1, 2, () => [1, 2]), ["a", "b"])).toEqual([]);
+    expect(
+      diagnoseColumns(
+        momentsOf(1, 2, () => [1, 2]),
+        ["a", "b"],
+      ),
+    ).toEqual([]);
   });
 
   it("refuses a name list that does not match the columns", () => {

@@ -191,12 +191,7 @@ export const DEPENDENCY_TOLERANCE = 1e-10;
  * @example diagnoseCovariance(cov, 3, ["subtotal", "shipping", "total"], { mean }).diagnostics
  *   // […, { code: "linear-dependency", equation: "total ≈ 1.00·subtotal + 1.00·shipping", … }]
  */
-export function diagnoseCovariance(
-  covariance: Float64Array,
-  n: number,
-  columns: readonly string[],
-  options: CovarianceDiagnosisOptions = {},
-): CovarianceDiagnosis {
+export function diagnoseCovariance(covariance: Float64Array, n: number, columns: readonly string[], options: CovarianceDiagnosisOptions = {}): CovarianceDiagnosis {
   if (!Number.isInteger(n) || n < 1) throw new EstimationInputError("n", "must be an integer ≥ 1 (the number of model columns)", "an integer ≥ 1", n);
   if (!(covariance instanceof Float64Array) || covariance.length !== n * n) {
     throw new EstimationInputError("covariance", `must be a Float64Array of n × n = ${n} × ${n} values`, n * n, covariance?.length);
@@ -269,9 +264,7 @@ export function diagnoseCovariance(
       severity: shape === "full" ? "error" : "warning",
       message:
         `${dep.subject} is a linear function of ${listNames(dep.columns.slice(1))} in the training rows: ${dep.equation}` +
-        (dep.residualShare < 1e-12
-          ? " (exactly, up to round-off)"
-          : ` (to within ${formatNumber(dep.residualShare)} of ${dep.subject}'s standard deviation)`) +
+        (dep.residualShare < 1e-12 ? " (exactly, up to round-off)" : ` (to within ${formatNumber(dep.residualShare)} of ${dep.subject}'s standard deviation)`) +
         (shape === "full" ? "; a full covariance with such a column cannot be inverted" : "; the diagonal model counts this evidence more than once"),
       columns: dep.columns,
       equation: dep.equation,
@@ -317,9 +310,7 @@ export function diagnoseCovariance(
 
 function conditionDiagnostic(condition: number, lambdaMax: number, lambdaMin: number, correlationCondition: number): Diagnostic {
   const warn = !(condition <= CONDITION_NUMBER_WARNING);
-  const unitFree = Number.isNaN(correlationCondition)
-    ? ""
-    : `; ${formatNumber(correlationCondition)} once every column is scaled to unit variance`;
+  const unitFree = Number.isNaN(correlationCondition) ? "" : `; ${formatNumber(correlationCondition)} once every column is scaled to unit variance`;
   const message =
     condition === Number.POSITIVE_INFINITY
       ? `condition number ∞: the smallest eigenvalue of the covariance (${formatNumber(lambdaMin)}) is zero within round-off of the largest (${formatNumber(lambdaMax)})${unitFree}`
@@ -503,8 +494,6 @@ function listNames(names: readonly string[], conjunction = "and"): string {
   if (names.length <= 1) return names.join("");
   return `${names.slice(0, -1).join(", ")} ${conjunction} ${names[names.length - 1]}`;
 }
-
-
 
 /** Short human form of a number for messages: 4 significant digits, exponent outside [1e-3, 1e6). */
 function formatNumber(x: number): string {

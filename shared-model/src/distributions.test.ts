@@ -16,7 +16,6 @@ import {
 } from "./distributions";
 import { readReferenceData } from "../../test/reference-data/files";
 
-
 /** Parses a table `df,alpha_0.10,…` into rows of { df, alpha, value }. */
 function readCriticalValues(file: string): { df: number; alpha: number; value: number }[] {
   const [header, ...lines] = readReferenceData(file).trim().split(/\r?\n/);

@@ -1,18 +1,6 @@
 import fc from "fast-check";
 import { describe, expect, it } from "vitest";
-import {
-  DriftInputError,
-  PSI_FLOOR,
-  PSI_SHIFTED,
-  PSI_WATCH,
-  bucketIndex,
-  decileReference,
-  driftLevel,
-  driftTable,
-  flagRateCheck,
-  psi,
-  referencePsi,
-} from "./drift";
+import { DriftInputError, PSI_FLOOR, PSI_SHIFTED, PSI_WATCH, bucketIndex, decileReference, driftLevel, driftTable, flagRateCheck, psi, referencePsi } from "./drift";
 
 function expectClose(actual: number, expected: number, tolerance = 1e-12): void {
   const diff = Math.abs(actual - expected) / Math.max(1e-300, Math.abs(expected));
@@ -140,7 +128,13 @@ describe("referencePsi", () => {
 
 describe("driftTable", () => {
   it("lists every model column and the score with its index and level", () => {
-    const reference = { columnEdges: [[1, 2, 3], [10, 20, 30]], scoreEdges: [0.5, 1.5, 3] };
+    const reference = {
+      columnEdges: [
+        [1, 2, 3],
+        [10, 20, 30],
+      ],
+      scoreEdges: [0.5, 1.5, 3],
+    };
     const rows = driftTable(reference, ["amount", "items"], {
       columns: [
         [25, 25, 25, 25],
@@ -154,9 +148,15 @@ describe("driftTable", () => {
       ["mahalanobisSq", "stable"],
     ]);
     expectClose(rows[1].psi, psi([0.25, 0.25, 0.25, 0.25], [70, 10, 10, 10]));
-    expect(() => driftTable(reference, ["amount", "items"], { columns: [[1, 1, 1, 1], [1, 1]], score: [1, 1, 1, 1] })).toThrow(
-      "items.counts: must have one count per bucket",
-    );
+    expect(() =>
+      driftTable(reference, ["amount", "items"], {
+        columns: [
+          [1, 1, 1, 1],
+          [1, 1],
+        ],
+        score: [1, 1, 1, 1],
+      }),
+    ).toThrow("items.counts: must have one count per bucket");
   });
 });
 

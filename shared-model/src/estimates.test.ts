@@ -22,7 +22,6 @@ const HAND = {
 };
 
 describe("estimateRates on a review set worked by hand", () => {
-
   it("gives Horvitz–Thompson prevalence with the Poisson-sampling variance when the payment count is known", () => {
     const e = estimateRates(HAND, { totalPayments: 100 });
     // T̂_fraud = 3·1 + 1·10 = 13 → prevalence 13/100.
@@ -127,9 +126,7 @@ describe("estimateRates verdicts", () => {
   it("refuses bad inputs, naming the field and the rule", () => {
     expect(() => estimateRates({ fraud: [], flagged: [], weights: [] })).toThrow(EstimateInputError);
     expect(() => estimateRates({ fraud: [1], flagged: [1, 0], weights: [1] })).toThrow("flagged: must have one entry per label (1). Actual: 2");
-    expect(() => estimateRates({ fraud: [1, 0], flagged: [1, 0], weights: [1, 0.5] })).toThrow(
-      "weights[1]: must be a finite number ≥ 1 (1 / inclusion probability). Actual: 0.5",
-    );
+    expect(() => estimateRates({ fraud: [1, 0], flagged: [1, 0], weights: [1, 0.5] })).toThrow("weights[1]: must be a finite number ≥ 1 (1 / inclusion probability). Actual: 0.5");
     expect(() => estimateRates({ fraud: [1, 2], flagged: [1, 0], weights: [1, 1] })).toThrow("fraud[1]: must be true/1 or false/0");
     expect(() => estimateRates(HAND, { totalPayments: 3 })).toThrow("totalPayments: must be a finite number ≥ the labelled rows (10)");
     expect(() => estimateRates(HAND, { confidence: 95 })).toThrow("confidence");
@@ -190,10 +187,7 @@ describe("estimateRates on a simulated population with known truth", () => {
         rows.push(unflagged[k]);
         weights.push(1 / auditRate);
       }
-      const e = estimateRates(
-        { fraud: rows.map((i) => fraud[i]), flagged: rows.map((i) => (score[i] > evalCut ? 1 : 0)), weights },
-        { totalPayments: N },
-      );
+      const e = estimateRates({ fraud: rows.map((i) => fraud[i]), flagged: rows.map((i) => (score[i] > evalCut ? 1 : 0)), weights }, { totalPayments: N });
       if (e.tooFewLabels) tooFew++;
       for (const key of ["prevalence", "recall", "precision"] as const) {
         if (e[key].low! <= truth[key] && truth[key] <= e[key].high!) covered[key]++;

@@ -206,8 +206,7 @@ export function estimateRates(labels: ReviewedLabels, options: EstimateOptions =
     }
     return v;
   };
-  const ratioSe = (r: number, den: number, a: (i: number) => number, b: (i: number) => number): number =>
-    Math.sqrt(varianceOf((i) => (a(i) - r * b(i)) / den));
+  const ratioSe = (r: number, den: number, a: (i: number) => number, b: (i: number) => number): number => Math.sqrt(varianceOf((i) => (a(i) - r * b(i)) / den));
 
   // Decided (w = 1) and sampled (w > 1) parts of the three counts the figures are made of.
   const flaggedFraud = new PartTotals();
@@ -240,7 +239,12 @@ export function estimateRates(labels: ReviewedLabels, options: EstimateOptions =
   if (tY > 0) {
     const value = tYF / tY;
     const parts = (flaggedFraud.sampled ? 1 : 0) + (missedSampled ? 1 : 0);
-    const se = ratioSe(value, tY, (i) => y[i] * f[i], (i) => y[i]);
+    const se = ratioSe(
+      value,
+      tY,
+      (i) => y[i] * f[i],
+      (i) => y[i],
+    );
     if (!census && !sampling) recall = { value, standardError: se, low: null, high: null, exact: false };
     else if (parts === 0) recall = exact(value);
     else {
@@ -254,7 +258,12 @@ export function estimateRates(labels: ReviewedLabels, options: EstimateOptions =
   if (tF > 0) {
     const value = tYF / tF;
     const parts = (flaggedFraud.sampled ? 1 : 0) + (flaggedLegit.sampled ? 1 : 0);
-    const se = ratioSe(value, tF, (i) => y[i] * f[i], (i) => f[i]);
+    const se = ratioSe(
+      value,
+      tF,
+      (i) => y[i] * f[i],
+      (i) => f[i],
+    );
     if (parts === 0) precision = exact(value);
     else {
       const a = flaggedFraud.bounds(split(parts), typicalWeight, false);
@@ -267,7 +276,14 @@ export function estimateRates(labels: ReviewedLabels, options: EstimateOptions =
   {
     const value = tY / totalPayments;
     const se =
-      totalPaymentsSource === "given" ? Math.sqrt(varianceOf((i) => y[i])) / totalPayments : ratioSe(value, sumW, (i) => y[i], () => 1);
+      totalPaymentsSource === "given"
+        ? Math.sqrt(varianceOf((i) => y[i])) / totalPayments
+        : ratioSe(
+            value,
+            sumW,
+            (i) => y[i],
+            () => 1,
+          );
     if (census) prevalence = exact(value);
     else if (!sampling) prevalence = { value, standardError: se, low: null, high: null, exact: false };
     else {

@@ -1,14 +1,6 @@
 import fc from "fast-check";
 import { describe, expect, it } from "vitest";
-import {
-  chooseShape,
-  classicalEstimate,
-  FourthMomentAccumulator,
-  ledoitWolfFromRows,
-  shrinkageEstimate,
-  shrinkageEstimateFromPasses,
-  toDiagonal,
-} from "./estimators";
+import { chooseShape, classicalEstimate, FourthMomentAccumulator, ledoitWolfFromRows, shrinkageEstimate, shrinkageEstimateFromPasses, toDiagonal } from "./estimators";
 import { cholesky } from "./linalg";
 import { MomentAccumulator } from "./moments";
 import { mulberry32 } from "./seeded-stream";
@@ -21,7 +13,12 @@ const expected = JSON.parse(readReferenceData("expected-values.json"));
 /** Numeric columns `from`..`to` (0-based after the rownames column) of a reference CSV. */
 function csvRows(file: string, from: number, to: number): number[][] {
   const lines = readReferenceData(file).trim().split("\n").slice(1);
-  return lines.map((line) => line.split(",").slice(1 + from, 1 + to).map(Number));
+  return lines.map((line) =>
+    line
+      .split(",")
+      .slice(1 + from, 1 + to)
+      .map(Number),
+  );
 }
 
 function shrinkageOf(details: EstimatorDetails): number {
@@ -52,7 +49,12 @@ function intensityByDefinition(rows: number[][]): number {
 describe("classicalEstimate", () => {
   it("returns the mean and the covariance divided by m, with details saying so", () => {
     const acc = new MomentAccumulator(2);
-    for (const row of [[1, 2], [3, 4], [5, 9]]) acc.push(row);
+    for (const row of [
+      [1, 2],
+      [3, 4],
+      [5, 9],
+    ])
+      acc.push(row);
     const est = classicalEstimate(acc);
     expect(Array.from(est.mean)).toEqual([3, 5]);
     expect(Array.from(est.covariance)).toEqual([8 / 3, 14 / 3, 14 / 3, 26 / 3]);
@@ -75,7 +77,12 @@ describe("classicalEstimate", () => {
     expect(m).toBe(21);
     const published = expected.stackloss.published.sas_iml_classical;
     expectRelativelyClose(est.mean, published.mean, 1e-9, "stackloss mean vs SAS/IML");
-    expectRelativelyClose(est.covariance.map((v) => (v * m) / (m - 1)), published.cov_unbiased.flat(), 1e-9, "stackloss covariance vs SAS/IML");
+    expectRelativelyClose(
+      est.covariance.map((v) => (v * m) / (m - 1)),
+      published.cov_unbiased.flat(),
+      1e-9,
+      "stackloss covariance vs SAS/IML",
+    );
     // And to full precision against NumPy (expected-values.json → stackloss.classical, SOURCES.md §6).
     expectRelativelyClose(est.covariance, expected.stackloss.classical.cov_mle.flat(), 1e-12, "stackloss cov_mle vs NumPy");
   });
@@ -194,7 +201,12 @@ describe("Ledoit–Wolf shrinkage", () => {
 describe("toDiagonal", () => {
   it("keeps the variances and zeroes every covariance between columns, leaving the input untouched", () => {
     const acc = new MomentAccumulator(2);
-    for (const row of [[1, 2], [3, 4], [5, 9]]) acc.push(row);
+    for (const row of [
+      [1, 2],
+      [3, 4],
+      [5, 9],
+    ])
+      acc.push(row);
     const full = classicalEstimate(acc);
     const diagonal = toDiagonal(full);
     expect(Array.from(diagonal.covariance)).toEqual([8 / 3, 0, 0, 26 / 3]);

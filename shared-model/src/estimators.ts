@@ -280,5 +280,3 @@ export function chooseShape(request: CovarianceShapeRequest, rows: number, n: nu
   }
   return { shape: request, reason: `${request} as requested (--covariance ${request}): ${rowText} for ${colText}` };
 }
-
-

@@ -105,7 +105,13 @@ describe("parseFeatureSpec", () => {
   });
 
   it("names the field and the allowed transforms when a transform is unknown", () => {
-    const error = specError({ features: [{ name: "a", transform: "none" }, { name: "b", transform: "log" }, { name: "c", transform: "sqrt" }] });
+    const error = specError({
+      features: [
+        { name: "a", transform: "none" },
+        { name: "b", transform: "log" },
+        { name: "c", transform: "sqrt" },
+      ],
+    });
     expect(error.field).toBe("features[2].transform");
     expect(error.rule).toBe('must be one of none, log, log1p, yeo-johnson, cyclic-hour; got "sqrt"');
     expect(error.message).toContain("features[2].transform");
@@ -145,16 +151,31 @@ describe("parseFeatureSpec", () => {
   });
 
   it("refuses duplicate names and names whose model columns collide with a cyclic-hour pair", () => {
-    const duplicate = specError({ features: [{ name: "amount", transform: "log" }, { name: "amount", transform: "none" }] });
+    const duplicate = specError({
+      features: [
+        { name: "amount", transform: "log" },
+        { name: "amount", transform: "none" },
+      ],
+    });
     expect(duplicate.field).toBe("features[1].name");
     expect(duplicate.rule).toContain('must be unique; features[0].name is also "amount"');
-    const clash = specError({ features: [{ name: "hour", transform: "cyclic-hour" }, { name: "hour.sin", transform: "none" }] });
+    const clash = specError({
+      features: [
+        { name: "hour", transform: "cyclic-hour" },
+        { name: "hour.sin", transform: "none" },
+      ],
+    });
     expect(clash.field).toBe("features[1].name");
     expect(clash.rule).toContain('model column "hour.sin", which features[0] ("hour") already produces');
   });
 
   it("lists every problem, in document order, and reports the first as field and rule", () => {
-    const error = specError({ features: [{ name: "", transform: "sqrt" }, { name: "b", transform: 3 }] });
+    const error = specError({
+      features: [
+        { name: "", transform: "sqrt" },
+        { name: "b", transform: 3 },
+      ],
+    });
     expect(error.problems.map((p) => p.field)).toEqual(["features[0].name", "features[0].transform", "features[1].transform"]);
     expect(error.field).toBe("features[0].name");
     expect(error).toBeInstanceOf(Error);

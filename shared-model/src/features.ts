@@ -61,7 +61,13 @@ export class FeatureSpecError extends InputError {
 
   constructor(problems: FeatureSpecProblem[]) {
     const [first] = problems;
-    const more = problems.length > 1 ? ` (and ${problems.length - 1} more: ${problems.slice(1).map((p) => `${p.field} ${p.rule}`).join("; ")})` : "";
+    const more =
+      problems.length > 1
+        ? ` (and ${problems.length - 1} more: ${problems
+            .slice(1)
+            .map((p) => `${p.field} ${p.rule}`)
+            .join("; ")})`
+        : "";
     super(first.field, first.rule, `Invalid feature spec: ${first.field} ${first.rule}${more}`);
     this.problems = problems;
   }
@@ -114,9 +120,7 @@ const featureSchema = z.strictObject(
 export const featureSpecSchema = z
   .strictObject(
     {
-      features: z
-        .array(featureSchema, { error: expecting('an array of { "name": …, "transform": … } objects') })
-        .min(1, { error: "must list at least one feature" }),
+      features: z.array(featureSchema, { error: expecting('an array of { "name": …, "transform": … } objects') }).min(1, { error: "must list at least one feature" }),
     },
     { error: (issue) => (issue.code === "unrecognized_keys" ? undefined : 'must be an object { "features": [ … ] }') },
   )
@@ -140,9 +144,7 @@ export const featureSpecSchema = z
           context.addIssue({
             code: "custom",
             path: ["features", i, "name"],
-            message:
-              `must not produce model column ${JSON.stringify(column)}, ` +
-              `which features[${owner}] (${JSON.stringify(spec.features[owner].name)}) already produces`,
+            message: `must not produce model column ${JSON.stringify(column)}, ` + `which features[${owner}] (${JSON.stringify(spec.features[owner].name)}) already produces`,
           });
         }
         columnAt.set(column, i);
@@ -475,12 +477,7 @@ export function fitYeoJohnsonLambda(values: Float64Array): number {
   }
   const gridBest = low + bestIndex * gridStep;
   if (!Number.isFinite(bestValue)) return 1;
-  const refined = brentMinimize(
-    negativeLogLikelihood,
-    Math.max(low, gridBest - gridStep),
-    Math.min(high, gridBest + gridStep),
-    1e-10,
-  );
+  const refined = brentMinimize(negativeLogLikelihood, Math.max(low, gridBest - gridStep), Math.min(high, gridBest + gridStep), 1e-10);
   return negativeLogLikelihood(refined) <= bestValue ? refined : gridBest;
 }
 
@@ -566,8 +563,7 @@ export function transformInto(features: readonly FittedFeature[], raw: ArrayLike
       }
       default:
         throw new RangeError(
-          `features[${i}].transform must be one of ${TRANSFORM_KINDS.join(", ")}. ` +
-            `Actual: ${describeReceived((feature as { transform: unknown }).transform)}`,
+          `features[${i}].transform must be one of ${TRANSFORM_KINDS.join(", ")}. ` + `Actual: ${describeReceived((feature as { transform: unknown }).transform)}`,
         );
     }
   }
@@ -602,9 +598,7 @@ export function inverseTransform(feature: FittedFeature, value: number): number 
       return yeoJohnsonInverseUnchecked(value, lambda);
     }
     case "cyclic-hour":
-      throw new RangeError(
-        `feature ${feature.name} is cyclic-hour (two model columns); inverseTransform handles single-column features: use hourFromCyclic`,
-      );
+      throw new RangeError(`feature ${feature.name} is cyclic-hour (two model columns); inverseTransform handles single-column features: use hourFromCyclic`);
     default:
       throw new RangeError(`feature ${feature.name} has an unknown transform ${describeReceived((feature as { transform: unknown }).transform)}`);
   }

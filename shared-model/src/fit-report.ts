@@ -114,7 +114,6 @@ function estimatorBrief(slot: ModelSlot): string {
   return "classical";
 }
 
-
 function num(value: number): string {
   if (!Number.isFinite(value)) return String(value);
   const magnitude = Math.abs(value);

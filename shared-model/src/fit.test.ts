@@ -11,7 +11,6 @@ import { parseCsv } from "./test-support";
 import type { FeatureDeclaration } from "./types";
 import { readReferenceData } from "../../test/reference-data/files";
 
-
 /** An in-memory row source; counts its passes so tests can check the fit restarts it. */
 class ArraySource implements RowSource {
   passes = 0;
@@ -539,7 +538,9 @@ describe("estimators and transforms end to end", () => {
     expect(text).toContain("covariance: diagonal (diagonal as requested");
     expect(text).toMatch(/estimator: shrinkage \(Ledoit–Wolf toward \(tr S\/n\)·I, divides by m\), pooled δ = /);
     expect(text).toContain("condition number of the pooled covariance:");
-    expect(text).toMatch(/cutoff: flag when d² > [\d.]+ \(tail probability P\(χ²3 > d²\) < [\d.e-]+\); expected to flag [\d.]+ % of new payments \(asked 1\.00 %\); chosen by the /);
+    expect(text).toMatch(
+      /cutoff: flag when d² > [\d.]+ \(tail probability P\(χ²3 > d²\) < [\d.e-]+\); expected to flag [\d.]+ % of new payments \(asked 1\.00 %\); chosen by the /,
+    );
     expect(report.shape).toBe("diagonal");
     expect(report.rowsUsed).toBe(200);
     expect(report.conditionNumber).toBeGreaterThan(1);

@@ -2,15 +2,7 @@ import chisquareCdf from "@stdlib/stats-base-dists-chisquare-cdf";
 import chisquareQuantile from "@stdlib/stats-base-dists-chisquare-quantile";
 import { describe, expect, it } from "vitest";
 import { cholesky, inverseFromCholesky } from "./linalg";
-import {
-  ExactFitError,
-  McdError,
-  fastMcd,
-  mcdConsistencyFactor,
-  mcdSmallSampleFactor,
-  robustEstimate,
-  type McdResult,
-} from "./mcd";
+import { ExactFitError, McdError, fastMcd, mcdConsistencyFactor, mcdSmallSampleFactor, robustEstimate, type McdResult } from "./mcd";
 import { createRandom } from "./random";
 import { readReferenceData } from "../../test/reference-data/files";
 
@@ -126,10 +118,14 @@ describe("fastMcd on published data sets", () => {
   ];
   for (const [name, source] of cases) {
     it(`ranks exactly the published outliers of ${name} highest by robust distance (${source})`, () => {
-      const published = publishedOutliers(name).map((row) => row - 1).sort((a, b) => a - b);
+      const published = publishedOutliers(name)
+        .map((row) => row - 1)
+        .sort((a, b) => a - b);
       expect(published.length).toBeGreaterThan(0);
       const result = fit(name);
-      const top = rankByDecreasing(result.robustDistancesSq).slice(0, published.length).sort((a, b) => a - b);
+      const top = rankByDecreasing(result.robustDistancesSq)
+        .slice(0, published.length)
+        .sort((a, b) => a - b);
       expect(top).toEqual(published);
     });
   }
@@ -429,7 +425,9 @@ describe("fastMcd on large data (nested subsample scheme)", () => {
     const n = 4;
     const { rows, bad, mu } = contaminated(m, n, 0.1, 77);
     const result = fastMcd(rows, m, n, { seed: 1 });
-    const top = rankByDecreasing(result.robustDistancesSq).slice(0, bad).sort((a, b) => a - b);
+    const top = rankByDecreasing(result.robustDistancesSq)
+      .slice(0, bad)
+      .sort((a, b) => a - b);
     expect(top).toEqual(Array.from({ length: bad }, (_, i) => i));
     // No contaminated row is in the raw subset or kept by the reweighting.
     expect(Array.from(result.support).every((i) => i >= bad)).toBe(true);
@@ -452,7 +450,9 @@ describe("fastMcd on large data (nested subsample scheme)", () => {
     const a = fastMcd(rows, m, n, { seed: 8 });
     const b = fastMcd(rows, m, n, { seed: 8 });
     expect(b).toEqual(a);
-    const top = rankByDecreasing(a.robustDistancesSq).slice(0, bad).sort((x, y) => x - y);
+    const top = rankByDecreasing(a.robustDistancesSq)
+      .slice(0, bad)
+      .sort((x, y) => x - y);
     expect(top).toEqual(Array.from({ length: bad }, (_, i) => i));
   });
 });
@@ -570,12 +570,7 @@ describe("fastMcd input errors", () => {
     ["h above m", () => fastMcd(good.rows, good.m, good.n, { h: 22 }), "options.h", /\[12, 21\].*Actual: 22/],
     ["a negative seed", () => fastMcd(good.rows, good.m, good.n, { seed: -1 }), "options.seed", /Actual: -1/],
     ["zero starts", () => fastMcd(good.rows, good.m, good.n, { starts: 0 }), "options.starts", /\[1, 1000000\]. Actual: 0/],
-    [
-      "an unknown option",
-      () => fastMcd(good.rows, good.m, good.n, { start: 5 } as unknown as { starts: number }),
-      "options.start",
-      /not an MCD option/,
-    ],
+    ["an unknown option", () => fastMcd(good.rows, good.m, good.n, { start: 5 } as unknown as { starts: number }), "options.start", /not an MCD option/],
     ["a consistency fraction outside (0, 1]", () => mcdConsistencyFactor(0, 3), "fraction", /\(0, 1\]/],
   ];
   for (const [what, call, field, message] of cases) {

@@ -136,9 +136,7 @@ interface Candidate {
   subset: Int32Array;
 }
 
-type Factorisation =
-  | { ok: true; lower: Float64Array; logDet: number }
-  | { ok: false; normal: Float64Array };
+type Factorisation = { ok: true; lower: Float64Array; logDet: number } | { ok: false; normal: Float64Array };
 
 /** Scratch buffers shared by every stage, sized for the full data once; nothing is allocated per row. */
 interface Workspace {
@@ -353,21 +351,13 @@ function validateShape(rows: Float64Array, m: number, n: number): void {
     throw new McdError("rows", "must be a Float64Array", `rows must be a Float64Array (m×n row-major). Actual: ${describe(rows)}.`);
   }
   if (rows.length !== m * n) {
-    throw new McdError(
-      "rows",
-      "length must equal m·n",
-      `rows must hold m·n = ${m}·${n} = ${m * n} values. Actual: ${rows.length}.`,
-    );
+    throw new McdError("rows", "length must equal m·n", `rows must hold m·n = ${m}·${n} = ${m * n} values. Actual: ${rows.length}.`);
   }
   for (let k = 0; k < rows.length; k++) {
     const v = rows[k];
     if (!Number.isFinite(v)) {
       const i = Math.floor(k / n);
-      throw new McdError(
-        "rows",
-        "every value must be finite",
-        `rows[${k}] (row ${i}, column ${k - i * n}) must be a finite number. Actual: ${v}.`,
-      );
+      throw new McdError("rows", "every value must be finite", `rows[${k}] (row ${i}, column ${k - i * n}) must be a finite number. Actual: ${v}.`);
     }
   }
 }
@@ -393,19 +383,11 @@ function resolveOptions(options: McdOptions | undefined, m: number, n: number): 
   }
   const seed = opts.seed ?? DEFAULT_SEED;
   if (!Number.isInteger(seed) || seed < 0 || seed > Number.MAX_SAFE_INTEGER) {
-    throw new McdError(
-      "options.seed",
-      "must be a non-negative safe integer",
-      `options.seed must be an integer in [0, ${Number.MAX_SAFE_INTEGER}]. Actual: ${String(seed)}.`,
-    );
+    throw new McdError("options.seed", "must be a non-negative safe integer", `options.seed must be an integer in [0, ${Number.MAX_SAFE_INTEGER}]. Actual: ${String(seed)}.`);
   }
   const starts = opts.starts ?? DEFAULT_STARTS;
   if (!Number.isInteger(starts) || starts < 1 || starts > 1_000_000) {
-    throw new McdError(
-      "options.starts",
-      "must be an integer in [1, 1000000]",
-      `options.starts must be an integer in [1, 1000000]. Actual: ${String(starts)}.`,
-    );
+    throw new McdError("options.starts", "must be an integer in [1, 1000000]", `options.starts must be an integer in [1, 1000000]. Actual: ${String(starts)}.`);
   }
   return { h, seed, starts };
 }
@@ -619,8 +601,7 @@ function cSteps(ctx: FitContext, block: Block, hBlock: number, steps: number): C
 function keepBest(list: Candidate[], candidate: Candidate, keep: number): void {
   if (list.length === keep && !(candidate.logDet < list[keep - 1].logDet)) return;
   for (const other of list) {
-    if (Math.abs(other.logDet - candidate.logDet) <= 1e-10 * Math.max(1, Math.abs(other.logDet)) &&
-        sameSubset(other.subset, candidate.subset, candidate.subset.length)) {
+    if (Math.abs(other.logDet - candidate.logDet) <= 1e-10 * Math.max(1, Math.abs(other.logDet)) && sameSubset(other.subset, candidate.subset, candidate.subset.length)) {
       return;
     }
   }
@@ -890,15 +871,7 @@ function nullDirection(lower: Float64Array, n: number, k: number): Float64Array 
  * waits on every previous z_k); rows go in pairs so each entry of L⁻¹ is loaded once for two rows.
  * O(count·n²/2); no allocation.
  */
-function distancesSq(
-  data: Float64Array,
-  count: number,
-  n: number,
-  mean: Float64Array,
-  lower: Float64Array,
-  out: Float64Array,
-  ws: Workspace,
-): void {
+function distancesSq(data: Float64Array, count: number, n: number, mean: Float64Array, lower: Float64Array, out: Float64Array, ws: Workspace): void {
   const li = ws.inverseLower;
   invertLower(lower, n, li);
   const c0 = ws.centered;

@@ -14,10 +14,26 @@ describe("packed quadratic form", () => {
     for (let i = 0; i < n; i++) for (let j = i; j < n; j++) precision[i * n + j] = precision[j * n + i] = 10 * i + j;
     const { packed } = packQuadraticForm(precision, new Float64Array(n), n);
     expect(packed).toEqual([
-      0, 2, 4, 6, 11, 24, 26, 22, 46, 33, // triangle of rows 0–3, off-diagonals doubled
-      8, 28, 48, 68, // column 4: rows 0, 1, 2, 3
-      10, 30, 50, 70, // column 5
-      44, 90, // row 4: Λ44, 2Λ45
+      0,
+      2,
+      4,
+      6,
+      11,
+      24,
+      26,
+      22,
+      46,
+      33, // triangle of rows 0–3, off-diagonals doubled
+      8,
+      28,
+      48,
+      68, // column 4: rows 0, 1, 2, 3
+      10,
+      30,
+      50,
+      70, // column 5
+      44,
+      90, // row 4: Λ44, 2Λ45
       55, // row 5
     ]);
   });
@@ -43,7 +59,11 @@ describe("packed quadratic form", () => {
     const names = ["a", "b", "c", "d", "e", "f", "g"];
     const segment = (shift: number) => ({
       mean: names.map((_, i) => i + shift),
-      covariance: spdFrom(Array.from({ length: 49 }, (_, k) => Math.sin(k + shift)), 7, 0.5),
+      covariance: spdFrom(
+        Array.from({ length: 49 }, (_, k) => Math.sin(k + shift)),
+        7,
+        0.5,
+      ),
     });
     const model = compileModel(await sealedFixture({ features: names.map((name) => fitted(name, "none")), segments: { "*": segment(0), web: segment(3) } }));
     const scorer = new Scorer(model);

@@ -51,9 +51,7 @@ export function splitMix64Outputs(seed: number, count: number): bigint[] {
 
 function checkSeed(seed: number): void {
   if (typeof seed !== "number" || !Number.isInteger(seed) || seed < 0 || seed > MAX_SEED) {
-    throw new RangeError(
-      `seed must be an integer in [0, ${MAX_SEED}] (a non-negative safe integer). Actual: ${String(seed)}.`,
-    );
+    throw new RangeError(`seed must be an integer in [0, ${MAX_SEED}] (a non-negative safe integer). Actual: ${String(seed)}.`);
   }
 }
 
@@ -102,9 +100,7 @@ export function createRandom(seed: number): RandomSource {
 
   function int(maxExclusive: number): number {
     if (!Number.isInteger(maxExclusive) || maxExclusive < 1 || maxExclusive > TWO_POW_32) {
-      throw new RangeError(
-        `maxExclusive must be an integer in [1, ${TWO_POW_32}]. Actual: ${String(maxExclusive)}.`,
-      );
+      throw new RangeError(`maxExclusive must be an integer in [1, ${TWO_POW_32}]. Actual: ${String(maxExclusive)}.`);
     }
     // Reject the top partial block of 2³² so every residue is equally likely.
     const limit = TWO_POW_32 - (TWO_POW_32 % maxExclusive);

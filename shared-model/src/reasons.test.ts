@@ -161,7 +161,12 @@ describe("conditionalReasons", () => {
     const seg = segmentOf(mean, cov);
     const x = Float64Array.of(1.5, -1.5, 0.2);
     const reasons = conditionalReasons(seg, plain, x, x);
-    expect(reasons.slice(0, 2).map((r) => r.feature).sort()).toEqual(["f0", "f1"]);
+    expect(
+      reasons
+        .slice(0, 2)
+        .map((r) => r.feature)
+        .sort(),
+    ).toEqual(["f0", "f1"]);
     expect(Math.abs(reasons[0].standardizedResidual)).toBeGreaterThan(8);
     expect(reasons[2].feature).toBe("f2");
 

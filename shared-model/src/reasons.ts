@@ -137,13 +137,7 @@ function observedClip(f: FittedFeature): (value: number) => number {
   return (value) => (value < range.min ? range.min : value > range.max ? range.max : value);
 }
 
-export function conditionalReasons(
-  seg: SegmentModel,
-  features: readonly FittedFeature[],
-  raw: ArrayLike<number>,
-  x: Float64Array,
-  top = 3,
-): Reason[] {
+export function conditionalReasons(seg: SegmentModel, features: readonly FittedFeature[], raw: ArrayLike<number>, x: Float64Array, top = 3): Reason[] {
   if (!Number.isInteger(top) || top < 0) throw new RangeError(`top must be a non-negative integer. Actual: ${top}.`);
   if (raw.length !== features.length) {
     throw new RangeError(`raw must have one value per feature (${features.length}). Actual: ${raw.length}.`);
@@ -194,4 +188,3 @@ export function conditionalReasons(
   order.sort((p, q) => p.logTail - q.logTail);
   return order.slice(0, top).map((o) => o.reason);
 }
-

@@ -6,15 +6,7 @@ import type { ModelArtifact } from "./artifact";
 import { chiSquareSurvival, log10ChiSquareSurvival } from "./distributions";
 import { fromRows } from "./linalg";
 import { kernelScratch, mahalanobisSqPacked, packQuadraticForm } from "./quadratic-form";
-import {
-  ScoreInputError,
-  Scorer,
-  compileModel,
-  mahalanobisSq,
-  mahalanobisSqDiagonal,
-  rawVectorFromRecord,
-  selectSegment,
-} from "./score";
+import { ScoreInputError, Scorer, compileModel, mahalanobisSq, mahalanobisSqDiagonal, rawVectorFromRecord, selectSegment } from "./score";
 import { fitted, jsonCopy, parseCsv, sealedFixture, spdCases, spdFrom } from "./test-support";
 import type { FixtureOptions } from "./test-support";
 import { readReferenceData } from "../../test/reference-data/files";
@@ -24,10 +16,7 @@ const LN_2PI = Math.log(2 * Math.PI);
 /** Relative closeness with the numbers and their difference in the failure message. */
 function expectRelClose(actual: number, expected: number, rel: number, label: string): void {
   const scale = Math.max(Math.abs(expected), Number.MIN_VALUE);
-  expect(
-    Math.abs(actual - expected) / scale,
-    `${label}: actual ${actual}, expected ${expected}, difference ${actual - expected}`,
-  ).toBeLessThanOrEqual(rel);
+  expect(Math.abs(actual - expected) / scale, `${label}: actual ${actual}, expected ${expected}, difference ${actual - expected}`).toBeLessThanOrEqual(rel);
 }
 
 async function loaded(options: FixtureOptions): Promise<ModelArtifact> {
@@ -101,7 +90,13 @@ describe("scoring against R's mahalanobis() on the stackloss data (R package qqt
       const d2 = mahalanobisSq(precision, mean, data[row - 1], n, diff);
       expect(Math.abs(d2 - ordinary), `row ${row}: actual ${d2}, expected ${ordinary}`).toBeLessThanOrEqual(1e-7);
       // Pins the denominator: under the ÷m (maximum-likelihood) covariance, d² scales by m/(m−1).
-      const mle = buildSegment(mean, cov.map((v) => (v * (m - 1)) / m), n, m, details);
+      const mle = buildSegment(
+        mean,
+        cov.map((v) => (v * (m - 1)) / m),
+        n,
+        m,
+        details,
+      );
       const d2Mle = mahalanobisSq(fromRows(mle.precision), mean, data[row - 1], n, diff);
       expectRelClose(d2Mle, (ordinary * m) / (m - 1), 1e-8, `row ${row} under ÷m`);
     });
@@ -161,14 +156,16 @@ describe("mahalanobisSq kernel", () => {
   });
 
   it("is invariant under an affine change of features x → Ax + b (Σ → AΣAᵀ, μ → Aμ + b)", () => {
-    const affineCase = spdCase.filter((c) => c.n <= 6).chain((c) =>
-      fc.record({
-        c: fc.constant(c),
-        lower: fc.array(fc.double({ min: -0.5, max: 0.5, noNaN: true }), { minLength: c.n * c.n, maxLength: c.n * c.n }),
-        scale: fc.array(fc.double({ min: 0.5, max: 2, noNaN: true }), { minLength: c.n, maxLength: c.n }),
-        shift: fc.array(fc.double({ min: -10, max: 10, noNaN: true }), { minLength: c.n, maxLength: c.n }),
-      }),
-    );
+    const affineCase = spdCase
+      .filter((c) => c.n <= 6)
+      .chain((c) =>
+        fc.record({
+          c: fc.constant(c),
+          lower: fc.array(fc.double({ min: -0.5, max: 0.5, noNaN: true }), { minLength: c.n * c.n, maxLength: c.n * c.n }),
+          scale: fc.array(fc.double({ min: 0.5, max: 2, noNaN: true }), { minLength: c.n, maxLength: c.n }),
+          shift: fc.array(fc.double({ min: -10, max: 10, noNaN: true }), { minLength: c.n, maxLength: c.n }),
+        }),
+      );
     fc.assert(
       fc.property(affineCase, ({ c, lower, scale, shift }) => {
         const { n } = c;

@@ -14,7 +14,6 @@ import { kernelScratch, mahalanobisSqPacked, packQuadraticForm, type PackedQuadr
 import { conditionalReasons } from "./reasons";
 import type { FittedFeature, Reason, ScoreResult, SegmentModel } from "./types";
 
-
 /** A model ready to score: every segment's mean and precision as Float64Arrays, built once. */
 export interface CompiledModel {
   artifact: ModelArtifact;
@@ -98,13 +97,7 @@ export function selectSegment(model: CompiledModel, segment?: string | null): Se
  * @param diff scratch of length ≥ n, overwritten
  * @example mahalanobisSq(Float64Array.of(1, 0, 0, 4), Float64Array.of(0, 0), [1, 1], 2, new Float64Array(2)) // 5
  */
-export function mahalanobisSq(
-  precision: Float64Array,
-  mean: Float64Array,
-  x: ArrayLike<number>,
-  n: number,
-  diff: Float64Array,
-): number {
+export function mahalanobisSq(precision: Float64Array, mean: Float64Array, x: ArrayLike<number>, n: number, diff: Float64Array): number {
   for (let i = 0; i < n; i++) diff[i] = x[i] - mean[i];
   let total = 0;
   let i = 0;
@@ -152,13 +145,7 @@ export function mahalanobisSq(
  * (reads only the diagonal of Λ, fills `diff`).
  * @example mahalanobisSqDiagonal(Float64Array.of(1, 0, 0, 4), Float64Array.of(0, 0), [1, 1], 2, new Float64Array(2)) // 5
  */
-export function mahalanobisSqDiagonal(
-  precision: Float64Array,
-  mean: Float64Array,
-  x: ArrayLike<number>,
-  n: number,
-  diff: Float64Array,
-): number {
+export function mahalanobisSqDiagonal(precision: Float64Array, mean: Float64Array, x: ArrayLike<number>, n: number, diff: Float64Array): number {
   let total = 0;
   for (let i = 0; i < n; i++) {
     const d = x[i] - mean[i];
@@ -285,7 +272,6 @@ export class Scorer {
       segment: seg.key,
     };
   }
-
 }
 
 function ruleFor(feature: FittedFeature, value: unknown): string | null {
@@ -306,10 +292,7 @@ const MAX_UNKNOWN_KEYS = 20;
  * @example rawVectorFromRecord(model, { amount: 42.5, items: 3 }) // { values: Float64Array [42.5, 3] }
  * @example rawVectorFromRecord(model, { amount: "12" }) // { errors: [{ field: "features.amount", rule: 'must be a number. Actual: string "12"' }, …] }
  */
-export function rawVectorFromRecord(
-  model: CompiledModel,
-  record: Record<string, unknown>,
-): { values: Float64Array } | { errors: { field: string; rule: string }[] } {
+export function rawVectorFromRecord(model: CompiledModel, record: Record<string, unknown>): { values: Float64Array } | { errors: { field: string; rule: string }[] } {
   if (typeof record !== "object" || record === null || Array.isArray(record)) {
     return { errors: [{ field: "features", rule: `must be an object keyed by feature name. Actual: ${describeValue(record)}` }] };
   }

@@ -71,14 +71,7 @@ export function unsealedFixture(options: FixtureOptions): UnsealedArtifact {
   const segments: Record<string, ArtifactSegment> = {};
   for (const key of Object.keys(options.segments)) {
     const s = options.segments[key];
-    segments[key] = buildSegment(
-      Float64Array.from(s.mean),
-      Float64Array.from(s.covariance),
-      n,
-      s.rows ?? 500,
-      CLASSICAL,
-      columns,
-    );
+    segments[key] = buildSegment(Float64Array.from(s.mean), Float64Array.from(s.covariance), n, s.rows ?? 500, CLASSICAL, columns);
   }
   const cut = options.cutoffMahalanobisSq ?? 3 * n;
   const logDensity: Record<string, number> = {};

@@ -3,17 +3,7 @@ import { describe, expect, it } from "vitest";
 import { parseArtifact } from "./artifact";
 import { chiSquareSurvival } from "./distributions";
 import { fitted, sealedFixture } from "./test-support";
-import {
-  TuningInputError,
-  cutoffForms,
-  cutoffModelOf,
-  expectedCost,
-  operatingPoints,
-  pointAtCutoff,
-  pointAtFlagRate,
-  retuneArtifact,
-  tuneCutoff,
-} from "./tuning";
+import { TuningInputError, cutoffForms, cutoffModelOf, expectedCost, operatingPoints, pointAtCutoff, pointAtFlagRate, retuneArtifact, tuneCutoff } from "./tuning";
 
 const LN_2PI = Math.log(2 * Math.PI);
 
@@ -175,16 +165,20 @@ describe("operatingPoints", () => {
 describe("pointAtCutoff and pointAtFlagRate", () => {
   it("give the figures of any cutoff as direct counting does", () => {
     fc.assert(
-      fc.property(labelledSet, fc.integer({ min: 0, max: 44 }).map((k) => k / 4 - 0.125), (rows, raw) => {
-        const cutoff = Math.max(0, raw);
-        const scores = rows.map((r) => r.score);
-        const labels = rows.map((r) => r.fraud);
-        const weights = rows.map((r) => r.weight);
-        const p = pointAtCutoff(operatingPoints(scores, labels, weights), cutoff);
-        const c = countAt(scores, labels, weights, cutoff);
-        expect(p.mahalanobisSq).toBe(cutoff);
-        expect([p.truePositives, p.falsePositives, p.falseNegatives, p.trueNegatives]).toEqual([c.tp, c.fp, c.fn, c.tn]);
-      }),
+      fc.property(
+        labelledSet,
+        fc.integer({ min: 0, max: 44 }).map((k) => k / 4 - 0.125),
+        (rows, raw) => {
+          const cutoff = Math.max(0, raw);
+          const scores = rows.map((r) => r.score);
+          const labels = rows.map((r) => r.fraud);
+          const weights = rows.map((r) => r.weight);
+          const p = pointAtCutoff(operatingPoints(scores, labels, weights), cutoff);
+          const c = countAt(scores, labels, weights, cutoff);
+          expect(p.mahalanobisSq).toBe(cutoff);
+          expect([p.truePositives, p.falsePositives, p.falseNegatives, p.trueNegatives]).toEqual([c.tp, c.fp, c.fn, c.tn]);
+        },
+      ),
     );
   });
 
@@ -220,29 +214,24 @@ describe("tuneCutoff", () => {
 
   it("never exceeds the analysts' capacity and finds the best recall that fits it", () => {
     fc.assert(
-      fc.property(
-        labelledSet,
-        fc.integer({ min: 0, max: 2000 }),
-        fc.integer({ min: 1, max: 20000 }),
-        (rows, reviewsPerDay, paymentsPerDay) => {
-          const scores = rows.map((r) => r.score);
-          const labels = rows.map((r) => r.fraud);
-          const weights = rows.map((r) => r.weight);
-          const table = operatingPoints(scores, labels, weights);
-          const tuned = tuneCutoff(table, model, { kind: "capacity", reviewsPerDay, paymentsPerDay });
-          // The promise: expected flags per day at the chosen cutoff fit the capacity.
-          expect(tuned.expectedDailyFlags!).toBeLessThanOrEqual(reviewsPerDay);
-          const c = countAt(scores, labels, weights, tuned.cutoff.mahalanobisSq);
-          expect(((c.tp + c.fp) / c.total) * paymentsPerDay).toBeLessThanOrEqual(reviewsPerDay);
-          // And nothing that fits does better (brute force over every cutoff).
-          for (const cutoff of everyCutoff(scores)) {
-            const other = countAt(scores, labels, weights, cutoff);
-            if (((other.tp + other.fp) / other.total) * paymentsPerDay <= reviewsPerDay) {
-              expect(other.tp / (other.tp + other.fn)).toBeLessThanOrEqual(tuned.point.recall + 1e-12);
-            }
+      fc.property(labelledSet, fc.integer({ min: 0, max: 2000 }), fc.integer({ min: 1, max: 20000 }), (rows, reviewsPerDay, paymentsPerDay) => {
+        const scores = rows.map((r) => r.score);
+        const labels = rows.map((r) => r.fraud);
+        const weights = rows.map((r) => r.weight);
+        const table = operatingPoints(scores, labels, weights);
+        const tuned = tuneCutoff(table, model, { kind: "capacity", reviewsPerDay, paymentsPerDay });
+        // The promise: expected flags per day at the chosen cutoff fit the capacity.
+        expect(tuned.expectedDailyFlags!).toBeLessThanOrEqual(reviewsPerDay);
+        const c = countAt(scores, labels, weights, tuned.cutoff.mahalanobisSq);
+        expect(((c.tp + c.fp) / c.total) * paymentsPerDay).toBeLessThanOrEqual(reviewsPerDay);
+        // And nothing that fits does better (brute force over every cutoff).
+        for (const cutoff of everyCutoff(scores)) {
+          const other = countAt(scores, labels, weights, cutoff);
+          if (((other.tp + other.fp) / other.total) * paymentsPerDay <= reviewsPerDay) {
+            expect(other.tp / (other.tp + other.fn)).toBeLessThanOrEqual(tuned.point.recall + 1e-12);
           }
-        },
-      ),
+        }
+      }),
     );
   });
 

@@ -18,7 +18,6 @@ import { chiSquareSurvival } from "./distributions";
 import { logDensityAt } from "./log-density";
 import { contentVersion } from "./fit";
 
-
 /** A bad argument to a tuning function, naming the field and the rule it broke. */
 export class TuningInputError extends InputError {}
 
@@ -101,11 +100,7 @@ export interface OperatingTable {
  * const table = operatingPoints([0.1, 0.4, 0.35, 0.8], [false, false, true, true]);
  * table.averagePrecision // 0.8333… (scikit-learn's documented example)
  */
-export function operatingPoints(
-  scores: ArrayLike<number>,
-  labels: ArrayLike<boolean | number>,
-  weights?: ArrayLike<number>,
-): OperatingTable {
+export function operatingPoints(scores: ArrayLike<number>, labels: ArrayLike<boolean | number>, weights?: ArrayLike<number>): OperatingTable {
   const m = scores.length;
   if (m === 0) throw new TuningInputError("scores", "must hold at least one labelled payment. Actual: none");
   if (labels.length !== m) throw new TuningInputError("labels", `must have one label per score (${m}). Actual: ${labels.length}`);
@@ -386,19 +381,12 @@ export function cutoffForms(model: CutoffModel, cutoffMahalanobisSq: number): Cu
  * @throws TuningInputError naming a cost that is not a finite number ≥ 0
  * @example expectedCost(point, { kind: "cost", reviewCost: 4, missedFraudCost: 120, frictionCost: 2 }, table.totalWeight)
  */
-export function expectedCost(
-  point: OperatingPoint,
-  costs: Extract<TuningObjective, { kind: "cost" }>,
-  totalWeight: number,
-): ExpectedCost {
+export function expectedCost(point: OperatingPoint, costs: Extract<TuningObjective, { kind: "cost" }>, totalWeight: number): ExpectedCost {
   checkCosts(costs);
   if (!(totalWeight > 0) || totalWeight === Infinity) {
     throw new TuningInputError("totalWeight", `must be a finite number > 0. Actual: ${String(totalWeight)}`);
   }
-  const total =
-    costs.missedFraudCost * point.falseNegatives +
-    costs.reviewCost * (point.truePositives + point.falsePositives) +
-    costs.frictionCost * point.falsePositives;
+  const total = costs.missedFraudCost * point.falseNegatives + costs.reviewCost * (point.truePositives + point.falsePositives) + costs.frictionCost * point.falsePositives;
   const perPayment = total / totalWeight;
   return { perPayment, perDay: costs.paymentsPerDay === undefined ? null : perPayment * costs.paymentsPerDay };
 }

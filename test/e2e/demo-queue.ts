@@ -72,7 +72,11 @@ export async function seedDemoQueue(base: string, tokens: DemoTokens, options: D
     .filter((r) => r.label === "legitimate")
     .map((r) => ({ values: Float64Array.from(DEMO_FEATURES.map((f) => r[f.name as keyof LedgerRow] as number)), segment: r.channel }));
   const { artifact } = await fitModel(
-    { async *pass() { yield* training; } },
+    {
+      async *pass() {
+        yield* training;
+      },
+    },
     {
       features: DEMO_FEATURES,
       shape: "auto",

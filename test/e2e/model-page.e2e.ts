@@ -113,7 +113,7 @@ describe("the model page in Chromium", () => {
 
   it("moves the cutoff and sees expected flags, precision and recall change without publishing", async () => {
     const before = { flags: await text("expected-flags"), precision: await text("precision"), recall: await text("recall") };
-    const live = Number((await page.getByTestId("cutoff-input").inputValue()));
+    const live = Number(await page.getByTestId("cutoff-input").inputValue());
     expect(live).toBeGreaterThan(0);
     await page.getByTestId("cutoff-input").fill(String(Math.round(live * 0.6 * 100) / 100));
     await page.getByTestId("cutoff-input").press("Enter");

@@ -204,11 +204,12 @@ describe("the review app in Chromium", () => {
       expect(overflow, `width ${width}`).toBeLessThanOrEqual(0);
     }
     // Every form control has an accessible name.
-    const unnamed = await page.evaluate(() =>
-      Array.from(document.querySelectorAll("input, select, textarea, button")).filter((el) => {
-        const labelled = (el as HTMLInputElement).labels?.length || el.getAttribute("aria-label") || (el.textContent ?? "").trim();
-        return !labelled;
-      }).length,
+    const unnamed = await page.evaluate(
+      () =>
+        Array.from(document.querySelectorAll("input, select, textarea, button")).filter((el) => {
+          const labelled = (el as HTMLInputElement).labels?.length || el.getAttribute("aria-label") || (el.textContent ?? "").trim();
+          return !labelled;
+        }).length,
     );
     expect(unnamed).toBe(0);
     await page.setViewportSize({ width: 1280, height: 800 });
@@ -219,7 +220,14 @@ describe("the review app in Chromium", () => {
     // A model whose "web" segment carries a hostile name, so the stored segment is hostile too.
     const rows = [...generateLedger({ rows: 6_000 })].filter((r) => r.label === "legitimate");
     const { artifact } = await fitModel(
-      { async *pass() { yield* rows.map((r) => ({ values: Float64Array.from(DEMO_FEATURES.map((f) => r[f.name as keyof LedgerRow] as number)), segment: r.channel === "web" ? HOSTILE.segment : r.channel })); } },
+      {
+        async *pass() {
+          yield* rows.map((r) => ({
+            values: Float64Array.from(DEMO_FEATURES.map((f) => r[f.name as keyof LedgerRow] as number)),
+            segment: r.channel === "web" ? HOSTILE.segment : r.channel,
+          }));
+        },
+      },
       { features: DEMO_FEATURES, shape: "auto", estimator: "classical", segmentBy: "channel", cutoffRate: 0.01, seed: 3, source: "e2e injection (invented)" },
     );
     expect((await api(`/v1/models`, stack.tokens.admin, artifact)).status).toBe(201);
@@ -228,20 +236,32 @@ describe("the review app in Chromium", () => {
     for (const f of DEMO_FEATURES) features[f.name] = rows[0][f.name as keyof LedgerRow] as number;
     features.amount *= 80;
     features.shipDistanceKm = 9_000;
-    const scored = await api<{ decision: string; segment: string }>("/v1/score", stack.tokens.flow, { transactionId: HOSTILE.transactionId, features, segment: HOSTILE.segment, accountRef: HOSTILE.accountRef });
+    const scored = await api<{ decision: string; segment: string }>("/v1/score", stack.tokens.flow, {
+      transactionId: HOSTILE.transactionId,
+      features,
+      segment: HOSTILE.segment,
+      accountRef: HOSTILE.accountRef,
+    });
     expect(scored.status).toBe(200);
     expect(scored.body).toMatchObject({ decision: "review", segment: HOSTILE.segment });
 
     let id = 0;
-    await until(async () => {
-      const page1 = await api<{ items: { id: number; transactionId: string }[] }>(`/v1/review/items?segment=${encodeURIComponent(HOSTILE.segment)}`, stack.tokens.analyst);
-      id = page1.body.items.find((i) => i.transactionId === HOSTILE.transactionId)?.id ?? 0;
-      return id > 0;
-    }, "the hostile flag in the queue", 15_000);
+    await until(
+      async () => {
+        const page1 = await api<{ items: { id: number; transactionId: string }[] }>(`/v1/review/items?segment=${encodeURIComponent(HOSTILE.segment)}`, stack.tokens.analyst);
+        id = page1.body.items.find((i) => i.transactionId === HOSTILE.transactionId)?.id ?? 0;
+        return id > 0;
+      },
+      "the hostile flag in the queue",
+      15_000,
+    );
     expect((await api(`/v1/review/items/${id}/claim`, stack.tokens.analyst, {})).status).toBe(200);
     expect((await api(`/v1/review/items/${id}/decision`, stack.tokens.analyst, { outcome: "fraud", note: HOSTILE.note })).status).toBe(200);
     // Read back through the API: every string exactly as sent, and the audit table still there.
-    const detail = await api<{ item: { transactionId: string; segment: string; accountRef: string; decision: { note: string } }; events: { note: string | null }[] }>(`/v1/review/items/${id}`, stack.tokens.analyst);
+    const detail = await api<{ item: { transactionId: string; segment: string; accountRef: string; decision: { note: string } }; events: { note: string | null }[] }>(
+      `/v1/review/items/${id}`,
+      stack.tokens.analyst,
+    );
     expect(detail.body.item).toMatchObject({ transactionId: HOSTILE.transactionId, segment: HOSTILE.segment, accountRef: HOSTILE.accountRef, decision: { note: HOSTILE.note } });
     expect(detail.body.events.map((e) => e.note)).toContain(HOSTILE.note);
 
@@ -256,9 +276,7 @@ describe("the review app in Chromium", () => {
     expect(await page.getByTestId("decision-note").innerText()).toBe(HOSTILE.note);
     const shown = await page.evaluate(() => document.body.innerText);
     for (const value of [HOSTILE.transactionId, HOSTILE.accountRef, HOSTILE.segment]) expect(shown).toContain(value);
-    const injected = await page.evaluate(
-      () => document.querySelectorAll("script:not([src]), img[src='x'], svg[onload], iframe, [onerror], [onload], [onclick]").length,
-    );
+    const injected = await page.evaluate(() => document.querySelectorAll("script:not([src]), img[src='x'], svg[onload], iframe, [onerror], [onload], [onclick]").length);
     expect(injected).toBe(0);
     expect(await page.evaluate(() => (window as unknown as { __injected?: string }).__injected)).toBeUndefined();
     expect(dialogs).toBe(0);

@@ -104,7 +104,12 @@ export async function launchDev(stateDir: string, tokens: StackTokens, vars: Rec
     MODEL_REFRESH_SECONDS: "0",
     ...vars,
   };
-  await writeFile(envFile, Object.entries(lines).map(([k, v]) => `${k}=${v}`).join("\n") + "\n");
+  await writeFile(
+    envFile,
+    Object.entries(lines)
+      .map(([k, v]) => `${k}=${v}`)
+      .join("\n") + "\n",
+  );
 
   const port = await freePort();
   const inspector = await freePort();

@@ -152,9 +152,18 @@ describe("isodense fit and score on a ledger", () => {
     await copyFile(referenceDataPath("iris.csv"), join(dir, "iris.csv"));
     const expected = JSON.parse(readReferenceData("expected-values.json")).iris_setosa;
     const run = await isodense([
-      "fit", "iris.csv", "--out", "iris-model.json",
-      "--features", "Sepal.Length,Sepal.Width,Petal.Length,Petal.Width",
-      "--segment-by", "Species", "--min-segment-rows", "50", "--covariance", "full",
+      "fit",
+      "iris.csv",
+      "--out",
+      "iris-model.json",
+      "--features",
+      "Sepal.Length,Sepal.Width,Petal.Length,Petal.Width",
+      "--segment-by",
+      "Species",
+      "--min-segment-rows",
+      "50",
+      "--covariance",
+      "full",
     ]);
     expect(run.code).toBe(0);
     const artifact = await parseArtifact(JSON.parse(await readFile(join(dir, "iris-model.json"), "utf8")));
@@ -280,8 +289,24 @@ describe("bad input is named by file, line and column, with exit 2", () => {
   ];
 
   beforeAll(async () => {
-    await write("spec-log.json", JSON.stringify({ features: [{ name: "amount", transform: "log" }, { name: "items", transform: "none" }] }));
-    await write("spec-unknown.json", JSON.stringify({ features: [{ name: "amount", transform: "log" }, { name: "velocity_1h", transform: "log1p" }] }));
+    await write(
+      "spec-log.json",
+      JSON.stringify({
+        features: [
+          { name: "amount", transform: "log" },
+          { name: "items", transform: "none" },
+        ],
+      }),
+    );
+    await write(
+      "spec-unknown.json",
+      JSON.stringify({
+        features: [
+          { name: "amount", transform: "log" },
+          { name: "velocity_1h", transform: "log1p" },
+        ],
+      }),
+    );
   });
 
   for (const c of cases) {
@@ -347,7 +372,23 @@ describe("usage", () => {
     const run = await isodense(["fit", "--help"]);
     expect(run.code).toBe(0);
     expect(run.stdout).toContain("usage: isodense fit [<ledger>] [options]");
-    for (const flag of ["--out", "--features", "--spec", "--covariance", "--estimator", "--id-column", "--label-column", "--segment-by", "--cutoff-rate", "--seed", "--min-segment-rows", "--table", "--from-sql", "--moments", "--sample"]) {
+    for (const flag of [
+      "--out",
+      "--features",
+      "--spec",
+      "--covariance",
+      "--estimator",
+      "--id-column",
+      "--label-column",
+      "--segment-by",
+      "--cutoff-rate",
+      "--seed",
+      "--min-segment-rows",
+      "--table",
+      "--from-sql",
+      "--moments",
+      "--sample",
+    ]) {
       expect(run.stdout).toContain(flag);
     }
     const score = await isodense(["help", "score"]);

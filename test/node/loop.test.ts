@@ -91,7 +91,11 @@ describe("the loop on the demo ledger through the CLI", () => {
     const col = (name: string): number => ledger.header.indexOf(name);
     const sc = (name: string): number => scores.header.indexOf(name);
     const featureNames = live.features.map((f) => f.name);
-    const lines = [["id", ...featureNames, "model_version", "segment", "selection", "log_density", "mahalanobis_sq", "tail_probability", "outcome", "weight", "decided_at", "decided_by"].join(",")];
+    const lines = [
+      ["id", ...featureNames, "model_version", "segment", "selection", "log_density", "mahalanobis_sq", "tail_probability", "outcome", "weight", "decided_at", "decided_by"].join(
+        ",",
+      ),
+    ];
     const draw = createRandom(20261208);
     confirmedFraud = new Set();
     let flags = 0;
@@ -132,8 +136,36 @@ describe("the loop on the demo ledger through the CLI", () => {
   it("tunes the cutoff with each objective and writes new versions that verify", async () => {
     const runs = await Promise.all([
       isodense(["tune", "labels.csv", "--model", "live.json", "--out", "tuned-f1.json"]),
-      isodense(["tune", "labels.csv", "--model", "live.json", "--out", "tuned-capacity.json", "--objective", "capacity", "--capacity", "10/day", "--daily-payments", String(DAILY_PAYMENTS)]),
-      isodense(["tune", "labels.csv", "--model", "live.json", "--out", "tuned-cost.json", "--objective", "cost", "--costs", "review=3,fraud=120,friction=2", "--daily-payments", String(DAILY_PAYMENTS), "--scored-payments", "60000"]),
+      isodense([
+        "tune",
+        "labels.csv",
+        "--model",
+        "live.json",
+        "--out",
+        "tuned-capacity.json",
+        "--objective",
+        "capacity",
+        "--capacity",
+        "10/day",
+        "--daily-payments",
+        String(DAILY_PAYMENTS),
+      ]),
+      isodense([
+        "tune",
+        "labels.csv",
+        "--model",
+        "live.json",
+        "--out",
+        "tuned-cost.json",
+        "--objective",
+        "cost",
+        "--costs",
+        "review=3,fraud=120,friction=2",
+        "--daily-payments",
+        String(DAILY_PAYMENTS),
+        "--scored-payments",
+        "60000",
+      ]),
     ]);
     for (const run of runs) {
       expect(run.stderr).toBe("");
@@ -161,10 +193,7 @@ describe("the loop on the demo ledger through the CLI", () => {
   it("refits a candidate without the confirmed fraud, and the candidate verifies", async () => {
     // The ledger export of the training window carries no ground truth: outcomes come from the labels.
     const keep = ledger.header.map((_, j) => j).filter((j) => ledger.header[j] !== "label" && ledger.header[j] !== "fraudPattern");
-    await writeFile(
-      join(dir, "window.csv"),
-      [keep.map((j) => ledger.header[j]).join(","), ...ledger.rows.map((r) => keep.map((j) => r[j]).join(","))].join("\n") + "\n",
-    );
+    await writeFile(join(dir, "window.csv"), [keep.map((j) => ledger.header[j]).join(","), ...ledger.rows.map((r) => keep.map((j) => r[j]).join(","))].join("\n") + "\n");
     const run = await isodense(["refit", "window.csv", "--labels", "labels.csv", "--model", "tuned-f1.json", "--out", "candidate.json", "--id-column", "paymentId"]);
     expect(run.stderr).toBe("");
     expect(run.code).toBe(0);
@@ -204,7 +233,11 @@ describe("the loop on the demo ledger through the CLI", () => {
     let used = 0;
     for (const [i, row] of ledger.rows.entries()) {
       if (confirmedFraud.has(row[col("paymentId")])) continue;
-      transformInto(candidate.features, candidate.features.map((f) => Number(derived.rows[i][derived.header.indexOf(f.name)])), x);
+      transformInto(
+        candidate.features,
+        candidate.features.map((f) => Number(derived.rows[i][derived.header.indexOf(f.name)])),
+        x,
+      );
       for (let j = 0; j < n; j++) sum[j] += x[j];
       used++;
     }

@@ -10,7 +10,10 @@ import { parseRecordSpec } from "../../shared-model/src";
 import { naivePerShardTransforms, shardAndMerge } from "../../scripts/shard-moments";
 
 // The generator's own figures of the features the spec derives (equal to the derived ones to 4 decimals).
-const decls = parseRecordSpec(JSON.parse(readFileSync(new URL("../../demo-ledger/spec.json", import.meta.url), "utf8"))).features.map(({ name, transform }) => ({ name, transform }));
+const decls = parseRecordSpec(JSON.parse(readFileSync(new URL("../../demo-ledger/spec.json", import.meta.url), "utf8"))).features.map(({ name, transform }) => ({
+  name,
+  transform,
+}));
 const rows: Float64Array[] = [];
 for (const row of generateLedger({ rows: 20_000 })) {
   if (row.label === "legitimate") rows.push(Float64Array.from(decls, (d) => row[d.name as keyof LedgerRow] as number));

@@ -34,9 +34,7 @@ app.route("/v1/review", reviewRoutes);
 app.route("/v1/insights", insightRoutes);
 app.route("/", openApiRoutes);
 
-app.notFound((c) =>
-  problemResponse(c, 404, "not-found", [{ field: "path", rule: `no route answers ${c.req.method} ${new URL(c.req.url).pathname}; see /openapi.json` }]),
-);
+app.notFound((c) => problemResponse(c, 404, "not-found", [{ field: "path", rule: `no route answers ${c.req.method} ${new URL(c.req.url).pathname}; see /openapi.json` }]));
 
 app.onError((error, c) => {
   if (error instanceof ConfigError) {

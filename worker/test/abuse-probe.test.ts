@@ -73,13 +73,20 @@ describe("spreadsheet formulas in the CSV export", () => {
     for (const [k, id] of items.entries()) expect((await decide(id, k % 2 === 0 ? "fraud" : "legitimate")).status).toBe(200);
 
     const csv = await (await worker.fetch("/v1/review/export?format=csv", { token: tokens.analyst })).text();
-    const firstCells = parseCsvChunks([csv], "export.csv").slice(1).map((record) => record.cells[0]);
+    const firstCells = parseCsvChunks([csv], "export.csv")
+      .slice(1)
+      .map((record) => record.cells[0]);
     expect(firstCells).toEqual([`'${hostileId}`, "'+1-555", "'-2+3", "'@SUM(A1)", "''=quoted", "pay-plain"]);
     // Numbers are not text cells: a negative log-density stays a number.
     expect(csv).toMatch(/,-\d/);
 
     const ndjson = await (await worker.fetch("/v1/review/export?format=ndjson", { token: tokens.analyst })).text();
-    expect(ndjson.trim().split("\n").map((line) => (JSON.parse(line) as { id: string }).id)).toEqual(ids);
+    expect(
+      ndjson
+        .trim()
+        .split("\n")
+        .map((line) => (JSON.parse(line) as { id: string }).id),
+    ).toEqual(ids);
 
     const dir = await mkdtemp(join(tmpdir(), "isodense-probe-"));
     const path = join(dir, "labels.csv");

@@ -127,7 +127,9 @@ describe("role × route", () => {
         const response = await call(method, path, row.body, tokenOf(caller));
         expectApiHeaders(response, what);
         const text = await response.text();
-        const body = (response.headers.get("content-type") ?? "").startsWith("application/json") ? (JSON.parse(text) as { error?: string; problems?: { field: string; rule: string }[] }) : {};
+        const body = (response.headers.get("content-type") ?? "").startsWith("application/json")
+          ? (JSON.parse(text) as { error?: string; problems?: { field: string; rule: string }[] })
+          : {};
         expect(response.status, `${what} answered ${response.status}: ${text.slice(0, 200)}`).toBeLessThan(500);
         if (row.allowed === "public") {
           expect([200], what).toContain(response.status);
@@ -166,7 +168,11 @@ describe("rate limiting of credential failures", () => {
     expect(body.problems[0].rule).toMatch(new RegExp(`^${FAILURE_LIMIT} wrong credentials from this address in the last 60 s; retry after \\d+ s$`));
     expectApiHeaders(limited, "429");
     // A malformed header from the limited address is refused the same way.
-    const malformed = await worker.fetch("/v1/echo", { method: "POST", headers: { authorization: "Basic eDp5", "cf-connecting-ip": client, "content-type": "application/json" }, body: "{}" });
+    const malformed = await worker.fetch("/v1/echo", {
+      method: "POST",
+      headers: { authorization: "Basic eDp5", "cf-connecting-ip": client, "content-type": "application/json" },
+      body: "{}",
+    });
     expect(malformed.status).toBe(429);
     // The payment flow sharing that address (a NAT, a replica with a rotated-out token) still scores.
     for (const token of [worker.tokens.flow, worker.tokens.flow2]) expect((await call("POST", "/v1/score", SCORE_BODY, token, client)).status).toBe(200);

@@ -85,8 +85,18 @@ describe("every answer that comes before the body is read", () => {
   const cases = [
     { why: "no route (404)", status: 404, head: () => "POST /v1/no-such-route HTTP/1.1\r\nContent-Type: application/json\r\n", field: '"field":"path"' },
     { why: "no credential (401)", status: 401, head: () => "POST /v1/score HTTP/1.1\r\nContent-Type: application/json\r\n", field: '"field":"authorization"' },
-    { why: "a role that may not (403)", status: 403, head: () => `POST /v1/models HTTP/1.1\r\nContent-Type: application/json\r\nAuthorization: Bearer ${worker.tokens.flow}\r\n`, field: '"field"' },
-    { why: "the wrong media type (415)", status: 415, head: () => `POST /v1/score HTTP/1.1\r\nContent-Type: text/plain\r\nAuthorization: Bearer ${worker.tokens.flow}\r\n`, field: '"field":"content-type"' },
+    {
+      why: "a role that may not (403)",
+      status: 403,
+      head: () => `POST /v1/models HTTP/1.1\r\nContent-Type: application/json\r\nAuthorization: Bearer ${worker.tokens.flow}\r\n`,
+      field: '"field"',
+    },
+    {
+      why: "the wrong media type (415)",
+      status: 415,
+      head: () => `POST /v1/score HTTP/1.1\r\nContent-Type: text/plain\r\nAuthorization: Bearer ${worker.tokens.flow}\r\n`,
+      field: '"field":"content-type"',
+    },
     { why: "a route that takes no body (GET with one)", status: 200, head: () => "GET /openapi.json HTTP/1.1\r\n", field: '"openapi"' },
   ];
   for (const c of cases) {

@@ -86,7 +86,12 @@ test("traffic as in training leaves every column stable and the model not due fo
   await fireCron();
   const stored = await latestReport();
   expect(stored.status).toBe("ok");
-  const report = JSON.parse(stored.report_json) as { drift: { name: string; level: string; psi: number }[]; refitDue: boolean; reasons: string[]; flagRates: { check: { verdict: string } }[] };
+  const report = JSON.parse(stored.report_json) as {
+    drift: { name: string; level: string; psi: number }[];
+    refitDue: boolean;
+    reasons: string[];
+    flagRates: { check: { verdict: string } }[];
+  };
   expect(report.drift.map((r) => r.level)).toEqual(new Array(artifact.columns.length + 1).fill("stable"));
   expect(report.flagRates[0].check.verdict).toBe("as-expected");
   expect(report.refitDue).toBe(false);
@@ -151,7 +156,11 @@ test("a malformed loop variable never fails a payment, and the weekly report sto
     const model = await fitShopModel({ version: "m20260302-cron02" });
     expect((await misconfigured.post("/v1/models", model, misconfigured.tokens.admin)).status).toBe(201);
     expect((await misconfigured.post(`/v1/models/${model.version}/activate`, {}, misconfigured.tokens.admin)).status).toBe(200);
-    const scored = await misconfigured.post("/v1/score", { transactionId: "tx-misconfigured-1", features: { amount: 42, items: 2, shippingShare: 0.15, accountAgeDays: 300, hourOfDay: 19.5 }, segment: "web" }, misconfigured.tokens.flow);
+    const scored = await misconfigured.post(
+      "/v1/score",
+      { transactionId: "tx-misconfigured-1", features: { amount: 42, items: 2, shippingShare: 0.15, accountAgeDays: 300, hourOfDay: 19.5 }, segment: "web" },
+      misconfigured.tokens.flow,
+    );
     expect(scored.status).toBe(200);
     await (await misconfigured.mf.getWorker()).scheduled({ cron: CRON, scheduledTime: new Date() });
     const row = await (await misconfigured.db()).prepare("SELECT status, report_json FROM model_reports ORDER BY id DESC LIMIT 1").first<{ status: string; report_json: string }>();

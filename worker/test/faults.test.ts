@@ -110,7 +110,10 @@ describe("review decisions under faults", () => {
     for (const [k, id] of ids.entries()) {
       expect((await post(`/v1/review/items/${id}/claim`)).status).toBe(200);
       // The claim ends a few milliseconds from now, while rosa's decision and idris's claim race.
-      await db.prepare("UPDATE review_status SET claim_expires_ms = ?2 WHERE item_id = ?1").bind(id, Date.now() + (k % 4) * 3).run();
+      await db
+        .prepare("UPDATE review_status SET claim_expires_ms = ?2 WHERE item_id = ?1")
+        .bind(id, Date.now() + (k % 4) * 3)
+        .run();
       const [decision, claim] = await Promise.all([
         post<ActionResult & Refusal>(`/v1/review/items/${id}/decision`, { outcome: "legitimate" }),
         post<ActionResult & Refusal>(`/v1/review/items/${id}/claim`, {}, idrisToken),
@@ -204,7 +207,9 @@ describe("worker restart mid-replay", () => {
       await eventually(async () => ((await countRows(db, "review_items")) >= reviewIds.size ? true : undefined), 30_000, 300);
       // Let any redelivery land before looking for duplicates.
       await new Promise((r) => setTimeout(r, 2500));
-      const { results } = await db.prepare("SELECT transaction_id, COUNT(*) AS n FROM review_items GROUP BY transaction_id, model_version").all<{ transaction_id: string; n: number }>();
+      const { results } = await db
+        .prepare("SELECT transaction_id, COUNT(*) AS n FROM review_items GROUP BY transaction_id, model_version")
+        .all<{ transaction_id: string; n: number }>();
       expect(results.map((r) => r.transaction_id).sort()).toEqual([...reviewIds].sort());
       expect(results.filter((r) => r.n !== 1)).toEqual([]);
       // One queue line per item as well (the trigger builds review_status from review_items).
@@ -272,7 +277,16 @@ describe("account history failing or not answering", () => {
   test("in a batch only the payment records are refused; ready features are scored as before", async () => {
     const response = await worker.post(
       "/v1/score/batch",
-      { payments: [{ transactionId: "hb-1", payment: payment("acct-failing") }, { transactionId: "hb-2", features: { amount: 30, paymentsLast24h: 0, hoursSincePrevious: 5, amountVsAccountAverage: 1, accountAgeDays: 90, hourOfDay: 10 }, segment: "web" }] },
+      {
+        payments: [
+          { transactionId: "hb-1", payment: payment("acct-failing") },
+          {
+            transactionId: "hb-2",
+            features: { amount: 30, paymentsLast24h: 0, hoursSincePrevious: 5, amountVsAccountAverage: 1, accountAgeDays: 90, hourOfDay: 10 },
+            segment: "web",
+          },
+        ],
+      },
       worker.tokens.flow,
     );
     expect(response.status).toBe(200);

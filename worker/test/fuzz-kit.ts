@@ -154,7 +154,13 @@ export const notANumber: fc.Arbitrary<unknown> = fc.oneof(
 );
 
 /** Values of every JSON type but string. */
-export const notAString: fc.Arbitrary<unknown> = fc.oneof(fc.double({ noNaN: true, noDefaultInfinity: true }), fc.boolean(), fc.constant(null), fc.array(fc.string({ maxLength: 3 }), { maxLength: 3 }), fc.dictionary(fc.string({ maxLength: 5 }), fc.string({ maxLength: 5 }), { maxKeys: 3 }));
+export const notAString: fc.Arbitrary<unknown> = fc.oneof(
+  fc.double({ noNaN: true, noDefaultInfinity: true }),
+  fc.boolean(),
+  fc.constant(null),
+  fc.array(fc.string({ maxLength: 3 }), { maxLength: 3 }),
+  fc.dictionary(fc.string({ maxLength: 5 }), fc.string({ maxLength: 5 }), { maxKeys: 3 }),
+);
 
 /**
  * Nested arrays or objects up to 3,000 deep, as JSON text (deep nesting attacks). Kept under the
@@ -167,7 +173,9 @@ export const deepNesting: fc.Arbitrary<string> = fc
 
 /** {@link deepNesting} cut to texts of at most `maxBytes` (for routes with small body limits). */
 export function deepNestingUpTo(maxBytes: number): fc.Arbitrary<string> {
-  return deepNesting.map((t) => (t.length <= maxBytes ? t : t.startsWith("[") ? "[".repeat(maxBytes / 2) + "]".repeat(maxBytes / 2) : '{"a":'.repeat(maxBytes / 6) + "1" + "}".repeat(maxBytes / 6)));
+  return deepNesting.map((t) =>
+    t.length <= maxBytes ? t : t.startsWith("[") ? "[".repeat(maxBytes / 2) + "]".repeat(maxBytes / 2) : '{"a":'.repeat(maxBytes / 6) + "1" + "}".repeat(maxBytes / 6),
+  );
 }
 
 /** Numbers written so that JSON.parse gives ±Infinity, or integers past 2^53. */
@@ -246,11 +254,13 @@ export function jsonHeaders(token: string, contentType: string | null = "applica
  */
 export function transportBreakers(method: string, path: fc.Arbitrary<string>, token: string, validText: string, limitBytes: number): fc.Arbitrary<FuzzRequest> {
   return fc.oneof(
-    fc.record({ path, type: wrongContentType }).map(({ path: p, type }) => ({ method, path: p, headers: jsonHeaders(token, type), body: validText, broke: `content-type ${type}` })),
+    fc
+      .record({ path, type: wrongContentType })
+      .map(({ path: p, type }) => ({ method, path: p, headers: jsonHeaders(token, type), body: validText, broke: `content-type ${type}` })),
     fc.record({ path, bytes: invalidUtf8 }).map(({ path: p, bytes }) => ({ method, path: p, headers: jsonHeaders(token), body: bytes, broke: "invalid UTF-8" })),
     path.map((p) => ({ method, path: p, headers: jsonHeaders(token), body: "", broke: "empty body" })),
     fc.record({ path, text: truncated(validText) }).map(({ path: p, text }) => ({ method, path: p, headers: jsonHeaders(token), body: text, broke: "truncated JSON" })),
-    fc.record({ path, text: fc.constantFrom("{'a':1}", "NaN", "undefined", "{a:1}", "[1,]", "{\"a\":1,}", "\u0000", "tru", "{\"a\" 1}", "0x10") }).map(({ path: p, text }) => ({
+    fc.record({ path, text: fc.constantFrom("{'a':1}", "NaN", "undefined", "{a:1}", "[1,]", '{"a":1,}', "\u0000", "tru", '{"a" 1}', "0x10") }).map(({ path: p, text }) => ({
       method,
       path: p,
       headers: jsonHeaders(token),

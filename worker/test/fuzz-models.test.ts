@@ -85,14 +85,27 @@ function uploadRequests(token: string): fc.Arbitrary<FuzzRequest> {
     { weight: 2, arbitrary: removed },
     { weight: 1, arbitrary: added },
     { weight: 1, arbitrary: withProtoKey(candidate).map((text) => at(text, "__proto__ key")) },
-    { weight: 1, arbitrary: fc.oneof(fc.jsonValue({ maxDepth: 2 }).filter((v) => typeof v !== "object" || v === null || Array.isArray(v)), deepNesting).map((v) => at(typeof v === "string" && v.startsWith("[") ? v : JSON.stringify(v), "not an artifact object")) },
+    {
+      weight: 1,
+      arbitrary: fc
+        .oneof(
+          fc.jsonValue({ maxDepth: 2 }).filter((v) => typeof v !== "object" || v === null || Array.isArray(v)),
+          deepNesting,
+        )
+        .map((v) => at(typeof v === "string" && v.startsWith("[") ? v : JSON.stringify(v), "not an artifact object")),
+    },
     { weight: 2, arbitrary: transportBreakers("POST", fc.constant("/v1/models"), token, candidateText, 5 * 1024 * 1024 - candidateText.length + 2) },
   );
 }
 
 /** A version that is not stored: hostile strings, over-long, path tricks, unknown plain ones. */
 const unknownVersion: fc.Arbitrary<string> = fc
-  .oneof(hostileString, fc.string({ minLength: 1, maxLength: 200 }), fc.stringMatching(/^m[a-z0-9-]{1,20}$/), fc.constantFrom("..", ".", "%2e%2e", "pointer:active", "model:mfuzz-live", " mfuzz-live", "mfuzz-live "))
+  .oneof(
+    hostileString,
+    fc.string({ minLength: 1, maxLength: 200 }),
+    fc.stringMatching(/^m[a-z0-9-]{1,20}$/),
+    fc.constantFrom("..", ".", "%2e%2e", "pointer:active", "model:mfuzz-live", " mfuzz-live", "mfuzz-live "),
+  )
   .filter((v) => v.length > 0 && !STORED.has(v));
 
 function versionPathRequests(method: string, suffix: string, token: string): fc.Arbitrary<FuzzRequest> {
@@ -111,7 +124,10 @@ function shadowRequests(token: string): fc.Arbitrary<FuzzRequest> {
     unknownVersion.map((v) => at(JSON.stringify({ version: v }), "unknown version")),
     notAString.filter((v) => v !== null).map((v) => at(JSON.stringify({ version: v }), "version not a string")),
     fc.constant(at(JSON.stringify({ version: "mfuzz-live" }), "the live version")),
-    fc.string({ minLength: 1, maxLength: 10 }).filter((k) => k !== "version").map((k) => at(JSON.stringify({ version: null, [k]: 1 }), "unknown key")),
+    fc
+      .string({ minLength: 1, maxLength: 10 })
+      .filter((k) => k !== "version")
+      .map((k) => at(JSON.stringify({ version: null, [k]: 1 }), "unknown key")),
     fc.constant(at("{}", "version missing")),
     withProtoKey({ version: null }).map((text) => at(text, "__proto__ key")),
     deepNestingUpTo(3_800).map((text) => at(`{"version":${text}}`, "deeply nested version")),
@@ -120,22 +136,37 @@ function shadowRequests(token: string): fc.Arbitrary<FuzzRequest> {
 }
 
 function rollbackRequests(token: string): fc.Arbitrary<FuzzRequest> {
-  return fc.record({ body: fc.option(fc.oneof(fc.jsonValue({ maxDepth: 2 }).map((v) => JSON.stringify(v)), deepNesting)), query: fc.array(hostileQueryPair, { maxLength: 2 }) }).map(({ body, query }) => ({
-    method: "POST",
-    path: `/v1/models/rollback${queryString(query)}`,
-    headers: jsonHeaders(token),
-    body: body ?? undefined,
-    broke: "rollback with no earlier version",
-  }));
+  return fc
+    .record({
+      body: fc.option(
+        fc.oneof(
+          fc.jsonValue({ maxDepth: 2 }).map((v) => JSON.stringify(v)),
+          deepNesting,
+        ),
+      ),
+      query: fc.array(hostileQueryPair, { maxLength: 2 }),
+    })
+    .map(({ body, query }) => ({
+      method: "POST",
+      path: `/v1/models/rollback${queryString(query)}`,
+      headers: jsonHeaders(token),
+      body: body ?? undefined,
+      broke: "rollback with no earlier version",
+    }));
 }
 
 function listRequests(token: string): fc.Arbitrary<FuzzRequest> {
-  return fc.record({ cursor: fc.option(fc.oneof(hostileString, fc.string({ maxLength: 40 }), fc.stringMatching(/^[A-Za-z0-9]{1,40}$/))), query: fc.array(hostileQueryPair, { maxLength: 3 }) }).map(({ cursor, query }) => ({
-    method: "GET",
-    path: `/v1/models${queryString(cursor === null ? query : [["cursor", cursor], ...query])}`,
-    headers: jsonHeaders(token),
-    broke: "hostile list query",
-  }));
+  return fc
+    .record({
+      cursor: fc.option(fc.oneof(hostileString, fc.string({ maxLength: 40 }), fc.stringMatching(/^[A-Za-z0-9]{1,40}$/))),
+      query: fc.array(hostileQueryPair, { maxLength: 3 }),
+    })
+    .map(({ cursor, query }) => ({
+      method: "GET",
+      path: `/v1/models${queryString(cursor === null ? query : [["cursor", cursor], ...query])}`,
+      headers: jsonHeaders(token),
+      broke: "hostile list query",
+    }));
 }
 
 const okOr4xx = (s: number) => s === 200 || (s >= 400 && s < 500);

@@ -67,25 +67,79 @@ function queryBreaker(keys: string[]): fc.Arbitrary<{ pairs: [string, string][];
   const has = (k: string) => keys.includes(k);
   const options: fc.Arbitrary<{ pairs: [string, string][]; broke: string }>[] = [
     hostileQueryPair.filter(([k]) => !keys.includes(k) && k !== "").map((p) => ({ pairs: [p], broke: `unknown parameter ${p[0]}` })),
-    fc.constantFrom(...keys).chain((k) => fc.tuple(fc.string({ maxLength: 10 }), fc.string({ maxLength: 10 })).map(([a, b]) => ({ pairs: [[k, a], [k, b]] as [string, string][], broke: `repeated ${k}` }))),
+    fc.constantFrom(...keys).chain((k) =>
+      fc.tuple(fc.string({ maxLength: 10 }), fc.string({ maxLength: 10 })).map(([a, b]) => ({
+        pairs: [
+          [k, a],
+          [k, b],
+        ] as [string, string][],
+        broke: `repeated ${k}`,
+      })),
+    ),
   ];
-  if (has("state")) options.push(fc.string({ maxLength: 12 }).filter((v) => !["open", "claimed", "decided"].includes(v)).map((v) => ({ pairs: [["state", v]], broke: "state" })));
+  if (has("state"))
+    options.push(
+      fc
+        .string({ maxLength: 12 })
+        .filter((v) => !["open", "claimed", "decided"].includes(v))
+        .map((v) => ({ pairs: [["state", v]], broke: "state" })),
+    );
   if (has("sort")) options.push(hostileString.filter((v) => !["priority", "tail", "amount", "age"].includes(v)).map((v) => ({ pairs: [["sort", v]], broke: "sort" })));
-  if (has("direction")) options.push(fc.string({ maxLength: 6 }).filter((v) => v !== "asc" && v !== "desc").map((v) => ({ pairs: [["direction", v]], broke: "direction" })));
+  if (has("direction"))
+    options.push(
+      fc
+        .string({ maxLength: 6 })
+        .filter((v) => v !== "asc" && v !== "desc")
+        .map((v) => ({ pairs: [["direction", v]], broke: "direction" })),
+    );
   if (has("limit"))
     options.push(
       fc
-        .oneof(fc.integer({ min: -1e6, max: 0 }).map(String), fc.integer({ min: 201, max: 1e9 }).map(String), fc.constantFrom("1e2", "0x10", "20.5", " 20", "", "NaN", "Infinity", "１２"), hostileString)
+        .oneof(
+          fc.integer({ min: -1e6, max: 0 }).map(String),
+          fc.integer({ min: 201, max: 1e9 }).map(String),
+          fc.constantFrom("1e2", "0x10", "20.5", " 20", "", "NaN", "Infinity", "１２"),
+          hostileString,
+        )
         .map((v) => ({ pairs: [["limit", v]], broke: "limit" })),
     );
-  if (has("cursor")) options.push(fc.oneof(fc.string({ minLength: 1, maxLength: 60 }), fc.base64String({ minLength: 4, maxLength: 60 }), fc.string({ minLength: 513, maxLength: 700 })).map((v) => ({ pairs: [["cursor", v]], broke: "cursor" })));
-  if (has("selection")) options.push(fc.string({ maxLength: 10 }).filter((v) => v !== "flagged" && v !== "audit").map((v) => ({ pairs: [["selection", v]], broke: "selection" })));
+  if (has("cursor"))
+    options.push(
+      fc
+        .oneof(fc.string({ minLength: 1, maxLength: 60 }), fc.base64String({ minLength: 4, maxLength: 60 }), fc.string({ minLength: 513, maxLength: 700 }))
+        .map((v) => ({ pairs: [["cursor", v]], broke: "cursor" })),
+    );
+  if (has("selection"))
+    options.push(
+      fc
+        .string({ maxLength: 10 })
+        .filter((v) => v !== "flagged" && v !== "audit")
+        .map((v) => ({ pairs: [["selection", v]], broke: "selection" })),
+    );
   if (has("from")) options.push(notDate.map((v) => ({ pairs: [["from", v]], broke: "from" })));
   if (has("to")) options.push(notDate.map((v) => ({ pairs: [["to", v]], broke: "to" })));
-  if (has("to")) options.push(fc.constant({ pairs: [["from", "2026-12-02"], ["to", "2026-12-01"]] as [string, string][], broke: "to before from" }));
+  if (has("to"))
+    options.push(
+      fc.constant({
+        pairs: [
+          ["from", "2026-12-02"],
+          ["to", "2026-12-01"],
+        ] as [string, string][],
+        broke: "to before from",
+      }),
+    );
   if (has("segment")) options.push(fc.oneof(fc.constant(""), fc.string({ minLength: 65, maxLength: 100 })).map((v) => ({ pairs: [["segment", v]], broke: "segment length" })));
-  if (has("modelVersion")) options.push(fc.oneof(fc.constant(""), fc.string({ minLength: 129, maxLength: 200 })).map((v) => ({ pairs: [["modelVersion", v]], broke: "modelVersion length" })));
-  if (has("format")) options.push(fc.option(fc.string({ maxLength: 10 }).filter((v) => v !== "csv" && v !== "ndjson"), { nil: undefined }).map((v) => ({ pairs: v === undefined ? [] : ([["format", v]] as [string, string][]), broke: "format" })));
+  if (has("modelVersion"))
+    options.push(fc.oneof(fc.constant(""), fc.string({ minLength: 129, maxLength: 200 })).map((v) => ({ pairs: [["modelVersion", v]], broke: "modelVersion length" })));
+  if (has("format"))
+    options.push(
+      fc
+        .option(
+          fc.string({ maxLength: 10 }).filter((v) => v !== "csv" && v !== "ndjson"),
+          { nil: undefined },
+        )
+        .map((v) => ({ pairs: v === undefined ? [] : ([["format", v]] as [string, string][]), broke: "format" })),
+    );
   return fc.oneof(...options);
 }
 
@@ -119,14 +173,31 @@ function idRequests(method: string, suffix: string, token: string, body?: fc.Arb
 function decisionRequests(token: string): fc.Arbitrary<FuzzRequest> {
   const at = (body: string, broke: string): FuzzRequest => ({ method: "POST", path: "/v1/review/items/1/decision", headers: jsonHeaders(token), body, broke });
   return fc.oneof(
-    fc.oneof(hostileString, fc.string({ maxLength: 12 })).filter((o) => o !== "fraud" && o !== "legitimate").map((o) => at(JSON.stringify({ outcome: o }), "outcome")),
+    fc
+      .oneof(hostileString, fc.string({ maxLength: 12 }))
+      .filter((o) => o !== "fraud" && o !== "legitimate")
+      .map((o) => at(JSON.stringify({ outcome: o }), "outcome")),
     notAString.map((o) => at(JSON.stringify({ outcome: o }), "outcome type")),
-    fc.constantFrom("fraud", "legitimate").chain((o) => fc.oneof(notAString.filter((n) => n !== undefined), fc.string({ minLength: 2001, maxLength: 2100 })).map((n) => at(JSON.stringify({ outcome: o, note: n }), "note"))),
-    fc.string({ minLength: 1, maxLength: 10 }).filter((k) => k !== "outcome" && k !== "note").map((k) => at(JSON.stringify({ outcome: "fraud", [k]: 1 }), "unknown key")),
+    fc.constantFrom("fraud", "legitimate").chain((o) =>
+      fc
+        .oneof(
+          notAString.filter((n) => n !== undefined),
+          fc.string({ minLength: 2001, maxLength: 2100 }),
+        )
+        .map((n) => at(JSON.stringify({ outcome: o, note: n }), "note")),
+    ),
+    fc
+      .string({ minLength: 1, maxLength: 10 })
+      .filter((k) => k !== "outcome" && k !== "note")
+      .map((k) => at(JSON.stringify({ outcome: "fraud", [k]: 1 }), "unknown key")),
     withProtoKey({ outcome: "fraud" }).map((t) => at(t, "__proto__ key")),
     // Text that can mislead a reader: controls, bidirectional overrides and isolates, lone surrogates.
     fc
-      .tuple(fc.string({ maxLength: 20 }), fc.constantFrom("\u0000", "\u001b", "\u007f", "\u0085", "\u202a", "\u202e", "\u2066", "\u2069", "\uD800", "\uDFFF"), fc.string({ maxLength: 20 }))
+      .tuple(
+        fc.string({ maxLength: 20 }),
+        fc.constantFrom("\u0000", "\u001b", "\u007f", "\u0085", "\u202a", "\u202e", "\u2066", "\u2069", "\uD800", "\uDFFF"),
+        fc.string({ maxLength: 20 }),
+      )
       .filter(([a, , b]) => !/[\uD800-\uDFFF]/.test(a + b))
       .map(([a, bad, b]) => at(JSON.stringify({ outcome: "fraud", note: `${a}${bad}${b}` }), "note with a misleading character")),
     deepNestingUpTo(15_000).map((t) => at(`{"outcome":"fraud","note":${t}}`, "deeply nested note")),
@@ -142,7 +213,13 @@ function inputless(method: string, path: string, token: string | null): fc.Arbit
   return fc
     .record({
       query: fc.array(hostileQueryPair, { maxLength: 3 }),
-      body: fc.option(fc.oneof(fc.jsonValue({ maxDepth: 2 }).map((v) => JSON.stringify(v)), deepNestingUpTo(8_000), hostileString)),
+      body: fc.option(
+        fc.oneof(
+          fc.jsonValue({ maxDepth: 2 }).map((v) => JSON.stringify(v)),
+          deepNestingUpTo(8_000),
+          hostileString,
+        ),
+      ),
       accept: fc.constantFrom("*/*", "text/html", "application/xml", "", "application/json; q=0"),
       method: fc.constantFrom(method, method, method, "POST", "PUT", "DELETE", "PATCH"),
     })
@@ -163,11 +240,19 @@ describe("fuzzing the review API and the public routes", { timeout: 600_000 }, (
   });
 
   test("GET /v1/review/counts refuses every broken query", async () => {
-    await fuzzEndpoint(worker, "GET /v1/review/counts", queryRequests("/v1/review/counts", COUNT_KEYS, worker.tokens.analyst, fc.constantFrom<[string, string]>(["selection", "audit"], ["segment", "app"])));
+    await fuzzEndpoint(
+      worker,
+      "GET /v1/review/counts",
+      queryRequests("/v1/review/counts", COUNT_KEYS, worker.tokens.analyst, fc.constantFrom<[string, string]>(["selection", "audit"], ["segment", "app"])),
+    );
   });
 
   test("GET /v1/review/export refuses every broken query", async () => {
-    await fuzzEndpoint(worker, "GET /v1/review/export", queryRequests("/v1/review/export", EXPORT_KEYS, worker.tokens.analyst, fc.constantFrom<[string, string]>(["modelVersion", "mfuzz-review"])));
+    await fuzzEndpoint(
+      worker,
+      "GET /v1/review/export",
+      queryRequests("/v1/review/export", EXPORT_KEYS, worker.tokens.analyst, fc.constantFrom<[string, string]>(["modelVersion", "mfuzz-review"])),
+    );
   });
 
   test("GET /v1/review/items/{id} refuses malformed and unknown ids", async () => {
@@ -177,7 +262,10 @@ describe("fuzzing the review API and the public routes", { timeout: 600_000 }, (
   test("GET /v1/review/items/{id}/events refuses malformed and unknown ids and every broken page query", async () => {
     const pages = queryRequests("/v1/review/items/1/events", ["before", "limit"], worker.tokens.analyst, fc.constantFrom<[string, string]>(["limit", "5"]));
     const badBefore = fc
-      .oneof(fc.constantFrom("0", "-1", "01", "1.5", "1e3", "99999999999999999", ""), hostileString.filter((v) => !/^[1-9]\d{0,15}$/.test(v)))
+      .oneof(
+        fc.constantFrom("0", "-1", "01", "1.5", "1e3", "99999999999999999", ""),
+        hostileString.filter((v) => !/^[1-9]\d{0,15}$/.test(v)),
+      )
       .map((v): FuzzRequest => ({ method: "GET", path: `/v1/review/items/1/events${queryString([["before", v]])}`, headers: jsonHeaders(worker.tokens.analyst), broke: "before" }));
     await fuzzEndpoint(worker, "GET /v1/review/items/{id}/events", fc.oneof(idRequests("GET", "/events", worker.tokens.analyst), pages, badBefore));
   });

@@ -11,18 +11,7 @@
 import fc from "fast-check";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { fitShopModel, shopPayments } from "./fixtures";
-import {
-  deepNesting,
-  fuzzEndpoint,
-  hostileString,
-  hugeNumberText,
-  jsonHeaders,
-  notANumber,
-  notAString,
-  transportBreakers,
-  withProtoKey,
-  type FuzzRequest,
-} from "./fuzz-kit";
+import { deepNesting, fuzzEndpoint, hostileString, hugeNumberText, jsonHeaders, notANumber, notAString, transportBreakers, withProtoKey, type FuzzRequest } from "./fuzz-kit";
 import { publishModel, startWorker, type RunningWorker } from "./harness";
 import { storedCounts } from "./stored-counts";
 
@@ -52,14 +41,16 @@ const feature = fc.constantFrom(...FEATURE_NAMES);
 
 /** One payment broken in exactly one definite way; returns JSON text. */
 const brokenPayment: fc.Arbitrary<{ text: string; broke: string }> = fc.oneof(
-  fc.record({ p: base, name: feature, value: notANumber }).map(({ p, name, value }) => ({ text: JSON.stringify({ ...p, features: { ...p.features, [name]: value } }), broke: `features.${name} not a number` })),
+  fc
+    .record({ p: base, name: feature, value: notANumber })
+    .map(({ p, name, value }) => ({ text: JSON.stringify({ ...p, features: { ...p.features, [name]: value } }), broke: `features.${name} not a number` })),
   fc.record({ p: base, name: feature, huge: hugeNumberText }).map(({ p, name, huge }) => ({
     text: JSON.stringify({ ...p, features: { ...p.features, [name]: 0.5 } }).replace(`"${name}":0.5`, `"${name}":${huge}`),
     broke: `features.${name} huge`,
   })),
-  fc.record({ p: base, name: fc.constantFrom(...Object.keys(DOMAIN_BREAKS)) }).chain(({ p, name }) =>
-    DOMAIN_BREAKS[name].map((v) => ({ text: JSON.stringify({ ...p, features: { ...p.features, [name]: v } }), broke: `features.${name} out of domain` })),
-  ),
+  fc
+    .record({ p: base, name: fc.constantFrom(...Object.keys(DOMAIN_BREAKS)) })
+    .chain(({ p, name }) => DOMAIN_BREAKS[name].map((v) => ({ text: JSON.stringify({ ...p, features: { ...p.features, [name]: v } }), broke: `features.${name} out of domain` }))),
   fc.record({ p: base, name: feature }).map(({ p, name }) => {
     const features: Record<string, number> = { ...p.features };
     delete features[name];
@@ -69,28 +60,67 @@ const brokenPayment: fc.Arbitrary<{ text: string; broke: string }> = fc.oneof(
     text: JSON.stringify({ ...p, features: { ...p.features, [extra]: 1 } }),
     broke: "unknown feature",
   })),
-  fc.record({ p: base, key: fc.string({ minLength: 1, maxLength: 20 }).filter((k) => !["transactionId", "features", "segment", "accountRef"].includes(k)), value: fc.jsonValue({ maxDepth: 2 }) }).map(({ p, key, value }) => ({
-    text: JSON.stringify({ ...p, [key]: value }),
-    broke: "unknown top-level key",
-  })),
+  fc
+    .record({
+      p: base,
+      key: fc.string({ minLength: 1, maxLength: 20 }).filter((k) => !["transactionId", "features", "segment", "accountRef"].includes(k)),
+      value: fc.jsonValue({ maxDepth: 2 }),
+    })
+    .map(({ p, key, value }) => ({
+      text: JSON.stringify({ ...p, [key]: value }),
+      broke: "unknown top-level key",
+    })),
   base.chain((p) => withProtoKey(p).map((text) => ({ text, broke: "__proto__ key" }))),
-  fc.record({ p: base, id: fc.oneof(notAString, fc.constant(""), fc.string({ minLength: 129, maxLength: 300 }), hostileString.filter((s) => !/^[\x21-\x7e]{1,128}$/.test(s))) }).map(({ p, id }) => ({
-    text: JSON.stringify({ ...p, transactionId: id }),
-    broke: "transactionId",
-  })),
+  fc
+    .record({
+      p: base,
+      id: fc.oneof(
+        notAString,
+        fc.constant(""),
+        fc.string({ minLength: 129, maxLength: 300 }),
+        hostileString.filter((s) => !/^[\x21-\x7e]{1,128}$/.test(s)),
+      ),
+    })
+    .map(({ p, id }) => ({
+      text: JSON.stringify({ ...p, transactionId: id }),
+      broke: "transactionId",
+    })),
   fc.record({ p: base }).map(({ p }) => {
     const { transactionId: _gone, ...rest } = p;
     return { text: JSON.stringify(rest), broke: "transactionId missing" };
   }),
-  fc.record({ p: base, s: fc.oneof(notAString.filter((v) => v !== null), fc.string({ minLength: 65, maxLength: 200 })) }).map(({ p, s }) => ({ text: JSON.stringify({ ...p, segment: s }), broke: "segment" })),
-  fc.record({ p: base, a: fc.oneof(notAString.filter((v) => v !== null), fc.string({ minLength: 129, maxLength: 300 })) }).map(({ p, a }) => ({ text: JSON.stringify({ ...p, accountRef: a }), broke: "accountRef" })),
+  fc
+    .record({
+      p: base,
+      s: fc.oneof(
+        notAString.filter((v) => v !== null),
+        fc.string({ minLength: 65, maxLength: 200 }),
+      ),
+    })
+    .map(({ p, s }) => ({ text: JSON.stringify({ ...p, segment: s }), broke: "segment" })),
+  fc
+    .record({
+      p: base,
+      a: fc.oneof(
+        notAString.filter((v) => v !== null),
+        fc.string({ minLength: 129, maxLength: 300 }),
+      ),
+    })
+    .map(({ p, a }) => ({ text: JSON.stringify({ ...p, accountRef: a }), broke: "accountRef" })),
   fc.record({ p: base, nest: deepNesting, where: fc.constantFrom("features", "feature", "top") }).map(({ p, nest, where }) => {
     if (where === "features") return { text: JSON.stringify({ ...p, features: "@@" }).replace('"@@"', nest), broke: "deeply nested features" };
     if (where === "feature") return { text: JSON.stringify({ ...p, features: { ...p.features, amount: "@@" } }).replace('"@@"', nest), broke: "deeply nested feature" };
     return { text: nest, broke: "deeply nested body" };
   }),
-  fc.oneof(fc.jsonValue({ maxDepth: 2 }).filter((v) => typeof v !== "object" || v === null || Array.isArray(v)), fc.constant(null)).map((v) => ({ text: JSON.stringify(v), broke: "body not an object" })),
-  fc.record({ p: base, features: notANumber.filter((v) => typeof v !== "object" || v === null || Array.isArray(v)) }).map(({ p, features }) => ({ text: JSON.stringify({ ...p, features }), broke: "features not an object" })),
+  fc
+    .oneof(
+      fc.jsonValue({ maxDepth: 2 }).filter((v) => typeof v !== "object" || v === null || Array.isArray(v)),
+      fc.constant(null),
+    )
+    .map((v) => ({ text: JSON.stringify(v), broke: "body not an object" })),
+  fc
+    .record({ p: base, features: notANumber.filter((v) => typeof v !== "object" || v === null || Array.isArray(v)) })
+    .map(({ p, features }) => ({ text: JSON.stringify({ ...p, features }), broke: "features not an object" })),
 );
 
 function scoreRequest(token: string): fc.Arbitrary<FuzzRequest> {
@@ -104,10 +134,21 @@ function scoreRequest(token: string): fc.Arbitrary<FuzzRequest> {
 function batchRequest(token: string): fc.Arbitrary<FuzzRequest> {
   const at = (text: string, broke: string): FuzzRequest => ({ method: "POST", path: "/v1/score/batch", headers: jsonHeaders(token), body: text, broke });
   return fc.oneof(
-    { weight: 4, arbitrary: fc.array(brokenPayment, { minLength: 1, maxLength: 8 }).map((items) => at(`{"payments":[${items.map((i) => i.text).join(",")}]}`, `items: ${items.map((i) => i.broke).join("; ")}`)) },
+    {
+      weight: 4,
+      arbitrary: fc
+        .array(brokenPayment, { minLength: 1, maxLength: 8 })
+        .map((items) => at(`{"payments":[${items.map((i) => i.text).join(",")}]}`, `items: ${items.map((i) => i.broke).join("; ")}`)),
+    },
     { weight: 1, arbitrary: fc.oneof(notANumber, fc.constant([])).map((v) => at(JSON.stringify({ payments: v }), "payments not a list or empty")) },
     { weight: 1, arbitrary: fc.integer({ min: 101, max: 400 }).map((n) => at(JSON.stringify({ payments: Array.from({ length: n }, () => ({})) }), "more than MAX_BATCH")) },
-    { weight: 1, arbitrary: fc.string({ minLength: 1, maxLength: 10 }).filter((k) => k !== "payments").map((k) => at(JSON.stringify({ payments: [BASE[0]], [k]: 1 }), "unknown envelope key")) },
+    {
+      weight: 1,
+      arbitrary: fc
+        .string({ minLength: 1, maxLength: 10 })
+        .filter((k) => k !== "payments")
+        .map((k) => at(JSON.stringify({ payments: [BASE[0]], [k]: 1 }), "unknown envelope key")),
+    },
     { weight: 1, arbitrary: withProtoKey({ payments: [] }).map((text) => at(text, "__proto__ envelope")) },
     { weight: 1, arbitrary: deepNesting.map((text) => at(`{"payments":${text}}`, "deeply nested payments")) },
     { weight: 1, arbitrary: transportBreakers("POST", fc.constant("/v1/score/batch"), token, JSON.stringify({ payments: [BASE[0]] }), 1024 * 1024) },
@@ -123,7 +164,8 @@ function everyItemRefused(status: number, body: unknown): string | null {
   for (const r of results) {
     if (r.outcome !== "refused") return `item ${r.index} was ${r.outcome}`;
     if (!r.status || r.status < 400 || r.status >= 500) return `item ${r.index} refused with ${r.status}`;
-    if (!r.problems?.length || r.problems.some((p) => !p.field.startsWith(`payments[${r.index}]`) || p.rule === "")) return `item ${r.index} problems do not name payments[${r.index}]`;
+    if (!r.problems?.length || r.problems.some((p) => !p.field.startsWith(`payments[${r.index}]`) || p.rule === ""))
+      return `item ${r.index} problems do not name payments[${r.index}]`;
   }
   return null;
 }

@@ -175,9 +175,7 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
   const standIn = options.historyStandIn
     ? [{ name: HISTORY_STAND_IN, modules: true, script: options.historyStandIn, compatibilityDate: (workerOptions as { compatibilityDate?: string }).compatibilityDate }]
     : [];
-  const mf = new Miniflare(
-    (standIn.length > 0 ? { ...shared, workers: [isodense, ...standIn] } : { ...isodense, ...shared }) as ConstructorParameters<typeof Miniflare>[0],
-  );
+  const mf = new Miniflare((standIn.length > 0 ? { ...shared, workers: [isodense, ...standIn] } : { ...isodense, ...shared }) as ConstructorParameters<typeof Miniflare>[0]);
   await mf.ready;
   const worker: RunningWorker = {
     mf,
@@ -237,7 +235,10 @@ export async function eventually<T>(check: () => Promise<T | undefined>, timeout
 
 /** Counts rows of a table. */
 export async function countRows(db: D1Like, table: string, where = "1 = 1", ...values: unknown[]): Promise<number> {
-  const row = await db.prepare(`SELECT COUNT(*) AS n FROM ${table} WHERE ${where}`).bind(...values).first<{ n: number }>();
+  const row = await db
+    .prepare(`SELECT COUNT(*) AS n FROM ${table} WHERE ${where}`)
+    .bind(...values)
+    .first<{ n: number }>();
   return Number(row?.n ?? 0);
 }
 

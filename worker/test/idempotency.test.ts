@@ -83,7 +83,10 @@ describe("a transaction id names one payment on every isolate", () => {
     expect(rows.map((r) => r.transaction_id)).toEqual(["idem-flagged", "idem-passing", "idem-passing"]);
     expect(JSON.parse(rows[0].features_json).amount).toBe(12.5);
     // The review store keeps the first, flagged version, and its payment view shows the conflict.
-    const item = await db.prepare("SELECT id, features_json FROM review_items WHERE transaction_id = ?1").bind(flagged.transactionId).first<{ id: number; features_json: string }>();
+    const item = await db
+      .prepare("SELECT id, features_json FROM review_items WHERE transaction_id = ?1")
+      .bind(flagged.transactionId)
+      .first<{ id: number; features_json: string }>();
     expect(JSON.parse(item!.features_json).amount).toBe(UNUSUAL_PAYMENT.amount);
     const detail = (await (await worker.fetch(`/v1/review/items/${item!.id}`, { token: tokens.analyst })).json()) as ItemDetail;
     expect(detail.conflicts).toHaveLength(1);

@@ -78,13 +78,19 @@ describe("traffic counts", () => {
   it("are flushed through the queue once enough payments are scored, bucketed on the artifact's reference edges", async () => {
     for (const a of await scoreBatch("tx-loop", 40, 31, 8)) answers.set(a.transactionId, a);
     await eventually(async () => ((await volumeScored()) === 48 ? true : undefined), 15_000);
-    const volume = await db.prepare("SELECT day, SUM(scored) AS scored, SUM(flagged) AS flagged FROM daily_volume WHERE model_version = ?1 GROUP BY day").bind(live.version).all<{ day: string; scored: number; flagged: number }>();
+    const volume = await db
+      .prepare("SELECT day, SUM(scored) AS scored, SUM(flagged) AS flagged FROM daily_volume WHERE model_version = ?1 GROUP BY day")
+      .bind(live.version)
+      .all<{ day: string; scored: number; flagged: number }>();
     const flagged = [...answers.values()].filter((a) => a.decision === "review").length;
     expect(volume.results).toEqual([{ day: today, scored: 48, flagged }]);
     // Independent bucketing of the answers' d² and of ln(amount) (the first model column).
     const expectedScore = new Array(10).fill(0);
     for (const a of answers.values()) expectedScore[bucketIndex(live.reference.scoreEdges, a.mahalanobisSq)]++;
-    const stored = await db.prepare("SELECT bucket, SUM(count) AS n FROM drift_counts WHERE model_version = ?1 AND name = 'mahalanobisSq' GROUP BY bucket").bind(live.version).all<{ bucket: number; n: number }>();
+    const stored = await db
+      .prepare("SELECT bucket, SUM(count) AS n FROM drift_counts WHERE model_version = ?1 AND name = 'mahalanobisSq' GROUP BY bucket")
+      .bind(live.version)
+      .all<{ bucket: number; n: number }>();
     const storedScore = new Array(10).fill(0);
     for (const r of stored.results) storedScore[r.bucket] = r.n;
     expect(storedScore).toEqual(expectedScore);
@@ -106,11 +112,7 @@ describe("traffic counts", () => {
       buckets: [["web", "mahalanobisSq", 0, scored]],
     });
     // A redelivery of an already counted flush, a new flush sent twice in one batch, and a sentinel.
-    await queue.sendBatch([
-      { body: message(flushed.results[0].flush_id, 48) },
-      { body: message("redelivery-test-0001", 7) },
-      { body: message("redelivery-test-0001", 7) },
-    ]);
+    await queue.sendBatch([{ body: message(flushed.results[0].flush_id, 48) }, { body: message("redelivery-test-0001", 7) }, { body: message("redelivery-test-0001", 7) }]);
     await queue.send(message("redelivery-sentinel-0002", 5));
     await eventually(async () => ((await countRows(db, "count_flushes", "flush_id = ?1", "redelivery-sentinel-0002")) === 1 ? true : undefined), 15_000);
     await eventually(async () => ((await countRows(db, "count_flushes", "flush_id = ?1", "redelivery-test-0001")) === 1 ? true : undefined), 15_000);
@@ -146,14 +148,21 @@ describe("the labelled operating table", () => {
     const { status, body } = await get<{
       labels: { labelled: number; fraudCount: number; fraud: number[]; weight: number[] };
       traffic: { scored: number; scoredPerDay: number };
-      atCutoff: { point: { truePositives: number; falsePositives: number; falseNegatives: number; precision: number; recall: number; flagRate: number }; estimates: { recall: { value: number; low: number; high: number }; tooFewLabels: boolean; reasons: string[] }; expectedFlagsPerDay: number };
+      atCutoff: {
+        point: { truePositives: number; falsePositives: number; falseNegatives: number; precision: number; recall: number; flagRate: number };
+        estimates: { recall: { value: number; low: number; high: number }; tooFewLabels: boolean; reasons: string[] };
+        expectedFlagsPerDay: number;
+      };
     }>(`/v1/insights/operating?cutoff=${cutoff}`);
     expect(status).toBe(200);
     expect(body.labels.labelled).toBe(reviewed.length);
     expect(body.labels.fraudCount).toBe(7);
     expect(body.labels.fraud.reduce((a, b) => a + b, 0)).toBe(7);
     // By hand: weight 1 for flags, 1 / 0.25 = 4 for audit draws.
-    let tp = 0, fp = 0, fn = 0, total = 0;
+    let tp = 0,
+      fp = 0,
+      fn = 0,
+      total = 0;
     for (const a of reviewed) {
       const w = a.decision === "review" ? 1 : 4;
       const fraud = outcomes.get(a.transactionId) === "fraud";
@@ -186,16 +195,26 @@ describe("the labelled operating table", () => {
 
 describe("shadow comparison and histogram", () => {
   it("shows both models' flag rates and their agreement on the traffic scored so far", async () => {
-    const set = await worker.fetch("/v1/models/shadow", { method: "PUT", headers: { "content-type": "application/json" }, body: JSON.stringify({ version: shadowModel.version }), token: worker.tokens.admin });
+    const set = await worker.fetch("/v1/models/shadow", {
+      method: "PUT",
+      headers: { "content-type": "application/json" },
+      body: JSON.stringify({ version: shadowModel.version }),
+      token: worker.tokens.admin,
+    });
     expect(set.status).toBe(200);
     const scored = await scoreBatch("tx-shadow", 30, 47, 3);
     await eventually(async () => ((await countRows(db, "shadow_scores", "shadow_version = ?1", shadowModel.version)) === 33 ? true : undefined), 15_000);
-    const { status, body } = await get<{ comparison: { payments: number; liveFlags: number; shadowFlags: number; bothFlags: number; agreement: number; liveFlagRate: number } }>("/v1/insights/shadow");
+    const { status, body } = await get<{ comparison: { payments: number; liveFlags: number; shadowFlags: number; bothFlags: number; agreement: number; liveFlagRate: number } }>(
+      "/v1/insights/shadow",
+    );
     expect(status).toBe(200);
     const c = body.comparison;
     expect(c.payments).toBe(33);
     expect(c.liveFlags).toBe(scored.filter((a) => a.decision === "review").length);
-    const rows = await db.prepare("SELECT live_flagged, shadow_flagged FROM shadow_scores WHERE shadow_version = ?1").bind(shadowModel.version).all<{ live_flagged: number; shadow_flagged: number }>();
+    const rows = await db
+      .prepare("SELECT live_flagged, shadow_flagged FROM shadow_scores WHERE shadow_version = ?1")
+      .bind(shadowModel.version)
+      .all<{ live_flagged: number; shadow_flagged: number }>();
     const same = rows.results.filter((r) => r.live_flagged === r.shadow_flagged).length;
     expect(c.agreement).toBeCloseTo(same / 33, 12);
     expect(c.shadowFlags).toBe(rows.results.filter((r) => r.shadow_flagged === 1).length);
@@ -232,7 +251,9 @@ describe("publishing a cutoff and rolling back", () => {
     expect(tuned.cutoff.mahalanobisSq).toBe(newCutoff);
     expect(tuned.cutoff.basis).toBe("manual");
     expect(tuned.segments).toEqual(live.segments);
-    const events = await db.prepare("SELECT actor, action, from_version, to_version, detail FROM model_events ORDER BY id DESC LIMIT 2").all<{ actor: string; action: string; from_version: string | null; to_version: string; detail: string }>();
+    const events = await db
+      .prepare("SELECT actor, action, from_version, to_version, detail FROM model_events ORDER BY id DESC LIMIT 2")
+      .all<{ actor: string; action: string; from_version: string | null; to_version: string; detail: string }>();
     expect(events.results.map((e) => [e.actor, e.action, e.to_version])).toEqual([
       ["ops-ana", "activate", body.version],
       ["ops-ana", "upload", body.version],

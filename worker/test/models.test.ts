@@ -131,9 +131,7 @@ describe("admin routes", () => {
     expect((await scoreVersion(worker, "adm-3")).version).toBe("mkv-1");
 
     const db = await worker.db();
-    const { results } = await db
-      .prepare("SELECT actor, action, from_version, to_version, outcome FROM model_events ORDER BY id")
-      .all<Record<string, string | null>>();
+    const { results } = await db.prepare("SELECT actor, action, from_version, to_version, outcome FROM model_events ORDER BY id").all<Record<string, string | null>>();
     expect(results.map((r) => [r.action, r.from_version, r.to_version])).toEqual([
       ["upload", null, "mkv-1"],
       ["activate", null, "mkv-1"],
@@ -200,7 +198,10 @@ describe("KV failures with a cached model", () => {
     const activation = await worker.post("/v1/models/mkv-evil/activate", {}, worker.tokens.admin);
     expect(activation.status).toBe(422);
     // Logged once, however many requests saw the failure.
-    const output = worker.logs.filter((l) => l.level === "stderr" || l.level === "stdout").map((l) => l.message).join("");
+    const output = worker.logs
+      .filter((l) => l.level === "stderr" || l.level === "stdout")
+      .map((l) => l.message)
+      .join("");
     expect(output.split('"event":"model-load-failed"').length - 1).toBe(1);
     expect(output).toContain("model:mkv-evil does not verify");
   });

@@ -216,7 +216,10 @@ describe("claims", () => {
     expect((await post<Refusal>(`/v1/review/items/${id}/claim`, {}, idrisToken)).status).toBe(409);
 
     // Let the claim run out: move its end into the past in D1, as 15 minutes of waiting would.
-    await db.prepare("UPDATE review_status SET claim_expires_ms = ?2 WHERE item_id = ?1").bind(id, Date.now() - 1).run();
+    await db
+      .prepare("UPDATE review_status SET claim_expires_ms = ?2 WHERE item_id = ?1")
+      .bind(id, Date.now() - 1)
+      .run();
     expect((await get<ItemDetail>(`/v1/review/items/${id}`)).body.item.state).toBe("open");
     const late = await post<Refusal>(`/v1/review/items/${id}/decision`, { outcome: "fraud" });
     expect(late.status).toBe(409);
@@ -308,7 +311,10 @@ describe("decisions and the audit trail", () => {
     const [id] = await flagPayments(1);
     await step(`/v1/review/items/${id}/claim`);
     await step(`/v1/review/items/${id}/decision`, { outcome: "fraud" });
-    await db.prepare("UPDATE review_status SET undo_until_ms = ?2 WHERE item_id = ?1").bind(id, Date.now() - 1).run();
+    await db
+      .prepare("UPDATE review_status SET undo_until_ms = ?2 WHERE item_id = ?1")
+      .bind(id, Date.now() - 1)
+      .run();
     const late = await post<Refusal>(`/v1/review/items/${id}/undo`);
     expect(late.status).toBe(409);
     expect(late.body.problems[0].rule).toContain("last 5 minutes");
@@ -448,9 +454,7 @@ describe("paging, order and filters", () => {
     const rows: QueueRow[] = [];
     let cursor: string | null = null;
     for (let pages = 0; pages < 100; pages++) {
-      const { status, body }: { status: number; body: QueuePage } = await get<QueuePage>(
-        `/v1/review/items?${query}&limit=${limit}${cursor ? `&cursor=${cursor}` : ""}`,
-      );
+      const { status, body }: { status: number; body: QueuePage } = await get<QueuePage>(`/v1/review/items?${query}&limit=${limit}${cursor ? `&cursor=${cursor}` : ""}`);
       expect(status).toBe(200);
       expect(body.items.length).toBeLessThanOrEqual(limit);
       rows.push(...body.items);
@@ -474,7 +478,10 @@ describe("paging, order and filters", () => {
         const rows = await walk(`${filter}&sort=${sort}&direction=${direction}`, 17);
         const sign = direction === "asc" ? 1 : -1;
         const expected = [...mine].sort((p, q) => sign * (key[sort](p) - key[sort](q)) || sign * (p.id - q.id)).map((r) => r.id);
-        expect(rows.map((r) => r.id), `${sort} ${direction}`).toEqual(expected);
+        expect(
+          rows.map((r) => r.id),
+          `${sort} ${direction}`,
+        ).toEqual(expected);
       }
     }
   });
@@ -521,7 +528,14 @@ describe("paging, order and filters", () => {
 
   it("reads every page along its own index, never sorting the queue in a temporary b-tree", async () => {
     const plan = async (sql: string, params: unknown[]) =>
-      (await db.prepare(`EXPLAIN QUERY PLAN ${sql}`).bind(...params).all<{ detail: string }>()).results.map((r) => r.detail).join(" | ");
+      (
+        await db
+          .prepare(`EXPLAIN QUERY PLAN ${sql}`)
+          .bind(...params)
+          .all<{ detail: string }>()
+      ).results
+        .map((r) => r.detail)
+        .join(" | ");
     const now = Date.now();
     for (const sort of ["priority", "tail", "amount", "age"] as const) {
       for (const state of ["open", "decided"] as const) {
@@ -632,12 +646,29 @@ describe("the labelled-set export", () => {
     const records = parseCsvChunks([text], "export.csv");
     const header = records[0].cells;
     const features = SHOP_FEATURES.map((f) => f.name);
-    expect(header).toEqual(["id", ...features, "model_version", "segment", "selection", "log_density", "mahalanobis_sq", "tail_probability", "outcome", "weight", "decided_at", "decided_by"]);
+    expect(header).toEqual([
+      "id",
+      ...features,
+      "model_version",
+      "segment",
+      "selection",
+      "log_density",
+      "mahalanobis_sq",
+      "tail_probability",
+      "outcome",
+      "weight",
+      "decided_at",
+      "decided_by",
+    ]);
     const rows = records.slice(1).map((r) => Object.fromEntries(header.map((h, k) => [h, r.cells[k]])));
-    const decided = (await db
-      .prepare("SELECT s.transaction_id, s.outcome, s.decided_by, i.features_json FROM review_status s JOIN review_items i ON i.id = s.item_id WHERE s.decided = 1 AND s.model_version = ?1")
-      .bind(modelVersion)
-      .all<{ transaction_id: string; outcome: string; decided_by: string; features_json: string }>()).results;
+    const decided = (
+      await db
+        .prepare(
+          "SELECT s.transaction_id, s.outcome, s.decided_by, i.features_json FROM review_status s JOIN review_items i ON i.id = s.item_id WHERE s.decided = 1 AND s.model_version = ?1",
+        )
+        .bind(modelVersion)
+        .all<{ transaction_id: string; outcome: string; decided_by: string; features_json: string }>()
+    ).results;
     expect(rows).toHaveLength(decided.length);
     for (const d of decided) {
       const row = rows.find((r) => r.id === d.transaction_id)!;
@@ -662,7 +693,10 @@ describe("the labelled-set export", () => {
 
     const nd = await worker.fetch(`/v1/review/export?format=ndjson&modelVersion=${modelVersion}`, { token: tokens.analyst });
     expect(nd.headers.get("content-type")).toContain("application/x-ndjson");
-    const lines = (await nd.text()).trim().split("\n").map((l) => JSON.parse(l) as Record<string, unknown>);
+    const lines = (await nd.text())
+      .trim()
+      .split("\n")
+      .map((l) => JSON.parse(l) as Record<string, unknown>);
     expect(lines.map((l) => l.id)).toEqual(rows.map((r) => r.id));
     expect(lines[0]).toMatchObject({ outcome: rows[0].outcome, weight: 1, amount: Number(rows[0].amount) });
   });

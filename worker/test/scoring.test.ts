@@ -197,10 +197,7 @@ describe("audit sample", () => {
     }
     expect(expectedAudit).toBeGreaterThan(30);
     const db = await worker.db();
-    await eventually(
-      async () => ((await countRows(db, "review_items", "transaction_id LIKE 'aud-%' AND selection = 'audit'")) === expectedAudit ? true : undefined),
-      20_000,
-    );
+    await eventually(async () => ((await countRows(db, "review_items", "transaction_id LIKE 'aud-%' AND selection = 'audit'")) === expectedAudit ? true : undefined), 20_000);
     expect(await countRows(db, "review_items", "transaction_id LIKE 'aud-%' AND selection = 'audit' AND inclusion_probability = 0.05")).toBe(expectedAudit);
     const { results } = await db.prepare("SELECT transaction_id FROM review_items WHERE transaction_id LIKE 'aud-%' AND selection = 'audit'").all<{ transaction_id: string }>();
     expect(results.map((r) => r.transaction_id).sort()).toEqual([...auditIds].sort());
@@ -226,10 +223,7 @@ describe("shadow model", () => {
     const shadowScorer = new Scorer(compileModel(await parseArtifact(shadowArtifact)));
     const expectedShadow = shadowScorer.score(rawOf(payment.features), payment.channel);
     const db = await worker.db();
-    const row = await eventually(
-      async () => (await db.prepare("SELECT * FROM shadow_scores WHERE transaction_id = 'shadow-1'").first<Record<string, any>>()) ?? undefined,
-      15_000,
-    );
+    const row = await eventually(async () => (await db.prepare("SELECT * FROM shadow_scores WHERE transaction_id = 'shadow-1'").first<Record<string, any>>()) ?? undefined, 15_000);
     expect(row).toMatchObject({ live_version: "mshop-live", shadow_version: "mshop-shadow", shadow_segment: "*", shadow_flagged: expectedShadow.flagged ? 1 : 0 });
     expectClose(row.shadow_mahalanobis_sq, expectedShadow.mahalanobisSq, "shadow d²");
     const cleared = await worker.fetch("/v1/models/shadow", {

@@ -40,7 +40,8 @@ const rejectedIds = new Set<string>();
 
 async function expectRefused(body: unknown, status: number, error: string, problems: { field: string; rule: string | RegExp }[]): Promise<void> {
   const text = typeof body === "string" ? body : JSON.stringify(body);
-  const id = typeof body === "object" && body !== null && typeof (body as { transactionId?: unknown }).transactionId === "string" ? (body as { transactionId: string }).transactionId : null;
+  const id =
+    typeof body === "object" && body !== null && typeof (body as { transactionId?: unknown }).transactionId === "string" ? (body as { transactionId: string }).transactionId : null;
   if (id) rejectedIds.add(id);
   const answer = await sendRaw(text);
   // Every failure names the request that caused it.
@@ -58,9 +59,7 @@ async function expectRefused(body: unknown, status: number, error: string, probl
 describe("features", () => {
   test("a missing feature is named with the rule that it is required", async () => {
     const { hourOfDay: _dropped, ...rest } = UNUSUAL_PAYMENT;
-    await expectRefused({ transactionId: "v-missing", features: rest }, 400, "invalid-request", [
-      { field: "features.hourOfDay", rule: /^is required/ },
-    ]);
+    await expectRefused({ transactionId: "v-missing", features: rest }, 400, "invalid-request", [{ field: "features.hourOfDay", rule: /^is required/ }]);
   });
 
   test("an unknown feature is named, with the model's feature names", async () => {
@@ -90,9 +89,7 @@ describe("features", () => {
   });
 
   test("a value outside its transform's domain is refused with the transform's rule", async () => {
-    await expectRefused({ transactionId: "v-domain", features: { ...UNUSUAL_PAYMENT, amount: 0 } }, 400, "invalid-request", [
-      { field: "features.amount", rule: /log/ },
-    ]);
+    await expectRefused({ transactionId: "v-domain", features: { ...UNUSUAL_PAYMENT, amount: 0 } }, 400, "invalid-request", [{ field: "features.amount", rule: /log/ }]);
   });
 
   test("a __proto__ key inside features is an unknown feature, and at the top level an unknown field", async () => {
@@ -122,15 +119,11 @@ describe("envelope", () => {
 
   test("transactionId must be 1–128 printable characters without spaces", async () => {
     await expectRefused({ transactionId: "", features: UNUSUAL_PAYMENT }, 400, "invalid-request", [{ field: "transactionId", rule: /^must be 1 to 128 characters/ }]);
-    await expectRefused({ transactionId: "a".repeat(129), features: UNUSUAL_PAYMENT }, 400, "invalid-request", [
-      { field: "transactionId", rule: /^must be 1 to 128 characters/ },
-    ]);
+    await expectRefused({ transactionId: "a".repeat(129), features: UNUSUAL_PAYMENT }, 400, "invalid-request", [{ field: "transactionId", rule: /^must be 1 to 128 characters/ }]);
     await expectRefused({ transactionId: "pay 1\n", features: UNUSUAL_PAYMENT }, 400, "invalid-request", [
       { field: "transactionId", rule: /^must be printable ASCII without spaces/ },
     ]);
-    await expectRefused({ transactionId: 42, features: UNUSUAL_PAYMENT }, 400, "invalid-request", [
-      { field: "transactionId", rule: "must be a string. Actual: number 42" },
-    ]);
+    await expectRefused({ transactionId: 42, features: UNUSUAL_PAYMENT }, 400, "invalid-request", [{ field: "transactionId", rule: "must be a string. Actual: number 42" }]);
   });
 
   test("accountRef over 128 characters is refused", async () => {

@@ -49,8 +49,7 @@ export async function prepareWorker(repoRoot: string, outDir: string): Promise<P
     const empty = join(outDir, "empty-assets");
     await mkdir(empty, { recursive: true });
     console.warn(`worker tests: the assets folder of wrangler.toml is missing (npm run build:ui builds it); serving an empty ${empty} instead`);
-    workerOptions = wrangler.unstable_getMiniflareWorkerOptions(config, undefined, { overrides: { assets: { directory: empty } } })
-      .workerOptions as Record<string, unknown>;
+    workerOptions = wrangler.unstable_getMiniflareWorkerOptions(config, undefined, { overrides: { assets: { directory: empty } } }).workerOptions as Record<string, unknown>;
   }
   // wrangler also reads .dev.vars (demo credentials) into the bindings; tests bring their own.
   const bindings = { ...((workerOptions.bindings as Record<string, unknown> | undefined) ?? {}) };
@@ -58,8 +57,6 @@ export async function prepareWorker(repoRoot: string, outDir: string): Promise<P
   workerOptions = { ...workerOptions, bindings };
   const dir = join(repoRoot, "worker/migrations");
   const files = (await readdir(dir)).filter((f) => /^\d{4}_.+\.sql$/.test(f)).sort();
-  const migrations = await Promise.all(
-    files.map(async (name) => ({ name, statements: wrangler.unstable_splitSqlQuery(await readFile(join(dir, name), "utf8")) })),
-  );
+  const migrations = await Promise.all(files.map(async (name) => ({ name, statements: wrangler.unstable_splitSqlQuery(await readFile(join(dir, name), "utf8")) })));
   return { scriptPath, workerOptions: JSON.parse(JSON.stringify(workerOptions)) as Record<string, unknown>, migrations };
 }

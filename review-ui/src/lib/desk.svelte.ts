@@ -5,16 +5,7 @@
  */
 import * as api from "./api";
 import type { ListQuery } from "./api";
-import type {
-  DaySummary,
-  Facets,
-  ItemDetail,
-  Outcome,
-  QueueRow,
-  SortDirection,
-  SortKey,
-  StateCounts,
-} from "../../../worker/src/review/contract";
+import type { DaySummary, Facets, ItemDetail, Outcome, QueueRow, SortDirection, SortKey, StateCounts } from "../../../worker/src/review/contract";
 
 export type Filters = Pick<ListQuery, "state" | "segment" | "modelVersion" | "selection" | "from" | "to">;
 
@@ -133,11 +124,19 @@ export class Desk {
   }
 
   claim(id: number): Promise<void> {
-    return this.act(id, () => api.claimItem(id), (row) => `Payment ${row.transactionId} is yours until ${clock(row.claim?.until)}.`);
+    return this.act(
+      id,
+      () => api.claimItem(id),
+      (row) => `Payment ${row.transactionId} is yours until ${clock(row.claim?.until)}.`,
+    );
   }
 
   release(id: number): Promise<void> {
-    return this.act(id, () => api.releaseItem(id), (row) => `Payment ${row.transactionId} is back in the queue.`);
+    return this.act(
+      id,
+      () => api.releaseItem(id),
+      (row) => `Payment ${row.transactionId} is back in the queue.`,
+    );
   }
 
   /** Records a decision, taking the item first when the analyst does not hold a live claim on it. */
@@ -166,7 +165,11 @@ export class Desk {
     // Back to the undone payment, so the next key acts on it.
     const index = this.rows.findIndex((r) => r.id === last.id);
     if (index >= 0) this.selected = index;
-    return this.act(last.id, () => api.undoDecision(last.id), (row) => `Decision on ${row.transactionId} undone; it is yours to decide again.`);
+    return this.act(
+      last.id,
+      () => api.undoDecision(last.id),
+      (row) => `Decision on ${row.transactionId} undone; it is yours to decide again.`,
+    );
   }
 
   private holds(id: number): boolean {
@@ -175,12 +178,7 @@ export class Desk {
     return !!claim && claim.by === this.me() && Date.parse(claim.until) > Date.now() + 5_000;
   }
 
-  private async act(
-    id: number,
-    call: () => Promise<{ item: QueueRow }>,
-    success: (row: QueueRow) => string,
-    advance = false,
-  ): Promise<void> {
+  private async act(id: number, call: () => Promise<{ item: QueueRow }>, success: (row: QueueRow) => string, advance = false): Promise<void> {
     if (this.busy) {
       // One change at a time, so two quick keys cannot race each other on the server.
       this.notice = { text: "One moment: the last change is still being saved.", tone: "info" };

@@ -1,20 +1,7 @@
 /**
  * The keyboard map, in one list so the help overlay and the handler cannot drift apart.
  */
-export type Command =
-  | "down"
-  | "up"
-  | "open"
-  | "back"
-  | "claim"
-  | "release"
-  | "fraud"
-  | "legitimate"
-  | "note"
-  | "undo"
-  | "help"
-  | "next-page"
-  | "previous-page";
+export type Command = "down" | "up" | "open" | "back" | "claim" | "release" | "fraud" | "legitimate" | "note" | "undo" | "help" | "next-page" | "previous-page";
 
 export interface KeyBinding {
   keys: string[];

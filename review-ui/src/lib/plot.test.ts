@@ -29,7 +29,14 @@ describe("equal-density ellipses", () => {
   });
 
   it("close the ring: the last point is the first", () => {
-    const ring = ellipsePoints([0, 0], [[1, 0], [0, 4]], 0.9);
+    const ring = ellipsePoints(
+      [0, 0],
+      [
+        [1, 0],
+        [0, 4],
+      ],
+      0.9,
+    );
     expect(ring).toHaveLength(97);
     expect(ring[96][0]).toBeCloseTo(ring[0][0], 12);
     expect(ring[96][1]).toBeCloseTo(ring[0][1], 12);
@@ -55,7 +62,14 @@ describe("axis ticks in raw units", () => {
   });
 
   it("pad the domain around the outer ellipse and the payment", () => {
-    const [lo, hi] = pairDomain([[0, 0], [10, 1]], [20, 0], 0);
+    const [lo, hi] = pairDomain(
+      [
+        [0, 0],
+        [10, 1],
+      ],
+      [20, 0],
+      0,
+    );
     expect(lo).toBeLessThan(0);
     expect(hi).toBeGreaterThan(20);
   });

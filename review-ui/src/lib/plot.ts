@@ -55,15 +55,16 @@ export interface Tick {
 export function rawTicks(feature: FittedFeature, domain: Point, minGap = 0.14): Tick[] {
   const [lo, hi] = domain;
   if (feature.transform === "none") {
-    return scaleLinear().domain(domain).ticks(5).map((v) => ({ model: v, raw: v }));
+    return scaleLinear()
+      .domain(domain)
+      .ticks(5)
+      .map((v) => ({ model: v, raw: v }));
   }
   const rawLo = inverseTransform(feature, lo);
   const rawHi = inverseTransform(feature, hi);
   if (!Number.isFinite(rawLo) || !Number.isFinite(rawHi)) return [];
   const candidates = roundValuesBetween(Math.min(rawLo, rawHi), Math.max(rawLo, rawHi));
-  const ticks = candidates
-    .map((raw) => ({ raw, model: toModelUnits(feature, raw) }))
-    .filter((t) => Number.isFinite(t.model) && t.model >= lo && t.model <= hi);
+  const ticks = candidates.map((raw) => ({ raw, model: toModelUnits(feature, raw) })).filter((t) => Number.isFinite(t.model) && t.model >= lo && t.model <= hi);
   // Roundest first (0, then 1·10ᵏ, 5·10ᵏ, 2·10ᵏ), each kept only with room around it.
   ticks.sort((a, b) => roundness(a.raw) - roundness(b.raw));
   const kept: Tick[] = [];

@@ -26,7 +26,11 @@ describe("prSteps", () => {
     // the trapezoid through the same points (what a straight-line plot shows) is larger.
     const y = [1, 0, 1, 1, 0, 0, 1, 0, 0, 0];
     const s = [0.9, 0.8, 0.7, 0.6, 0.55, 0.54, 0.53, 0.52, 0.51, 0.505];
-    const table = operatingPoints(s, y, y.map(() => 1));
+    const table = operatingPoints(
+      s,
+      y,
+      y.map(() => 1),
+    );
     expect(pathArea(prSteps(table.points))).toBeCloseTo(0.7470238095238095, 14);
     const straight = table.points.filter((p) => p.precision !== null).map((p) => [p.recall, p.precision!] as [number, number]);
     expect(Math.abs(pathArea([[0, straight[0][1]], ...straight]) - 0.7470238095238095)).toBeGreaterThan(0.01);

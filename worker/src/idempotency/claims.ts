@@ -127,11 +127,7 @@ export async function rememberAnswers(env: IdempotencyEnv, requests: readonly Re
  * @example
  * await contentHash({ amount: 1, items: 2 }, "web", null) === await contentHash({ items: 2, amount: 1 }, "web", null) // → true
  */
-export async function contentHash(
-  features: Readonly<Record<string, unknown>>,
-  segment: string | null,
-  accountRef: string | null,
-): Promise<string> {
+export async function contentHash(features: Readonly<Record<string, unknown>>, segment: string | null, accountRef: string | null): Promise<string> {
   const names = Object.keys(features).sort();
   const text = JSON.stringify([names.map((name) => [name, features[name]]), segment, accountRef]);
   const digest = new Uint8Array(await crypto.subtle.digest("SHA-256", new TextEncoder().encode(text)));

@@ -63,9 +63,7 @@ export class IdempotencyObject extends DurableObject<unknown> {
   async claim(requests: ClaimRequest[], nowMs: number, windowMs: number): Promise<ClaimVerdict[]> {
     const verdicts = this.ctx.storage.transactionSync(() =>
       requests.map((request): ClaimVerdict => {
-        const row = this.sql
-          .exec<SeenRow>("SELECT content_hash, first_seen_ms, answer_json FROM seen WHERE transaction_id = ?", request.transactionId)
-          .toArray()[0];
+        const row = this.sql.exec<SeenRow>("SELECT content_hash, first_seen_ms, answer_json FROM seen WHERE transaction_id = ?", request.transactionId).toArray()[0];
         if (row && row.first_seen_ms > nowMs - windowMs) {
           if (row.content_hash === request.contentHash) return { kind: "repeat", answer: row.answer_json };
           this.sql.exec("UPDATE seen SET conflicts = conflicts + 1 WHERE transaction_id = ?", request.transactionId);
@@ -89,12 +87,7 @@ export class IdempotencyObject extends DurableObject<unknown> {
   async remember(requests: RememberRequest[]): Promise<void> {
     this.ctx.storage.transactionSync(() => {
       for (const r of requests) {
-        this.sql.exec(
-          "UPDATE seen SET answer_json = ? WHERE transaction_id = ? AND content_hash = ? AND answer_json IS NULL",
-          r.answer,
-          r.transactionId,
-          r.contentHash,
-        );
+        this.sql.exec("UPDATE seen SET answer_json = ? WHERE transaction_id = ? AND content_hash = ? AND answer_json IS NULL", r.answer, r.transactionId, r.contentHash);
       }
     });
   }

@@ -9,7 +9,6 @@ import type { BucketTotals, DayVolume } from "./traffic-queries";
 import type { DayFlagRate, DriftEntry } from "./contract";
 export type { DayFlagRate, DriftEntry };
 
-
 /**
  * PSI and alert level per model column and for d² (alert levels 0.1 and 0.25, see `drift.ts`).
  * A column without traffic, or whose reference edges are all equal, gets a null PSI and a note

@@ -4,17 +4,10 @@
  * operating point and the Horvitz–Thompson estimates of precision, recall and prevalence with
  * intervals. The review app recomputes the same figures in the browser as its cutoff moves.
  */
-import {
-  EstimateInputError,
-  estimateRates,
-  operatingPoints,
-  pointAtCutoff,
-  TuningInputError,
-} from "../../../shared-model/src";
+import { EstimateInputError, estimateRates, operatingPoints, pointAtCutoff, TuningInputError } from "../../../shared-model/src";
 import type { LabelledRows } from "./traffic-queries";
 import type { CutoffFigures } from "./contract";
 export type { CutoffFigures };
-
 
 /**
  * Figures of `rows` at `cutoff`, or a sentence saying why they cannot be computed (no labels, or no

@@ -22,11 +22,8 @@ export interface PublishCutoffInput {
   confirm: "publish";
 }
 
-
 /** Outcome: the new version, or a refusal for the route to answer. */
-export type PublishOutcome =
-  | { ok: true; value: PublishedCutoff }
-  | { ok: false; status: 404 | 409 | 422 | 503; error: string; problems: Problem[]; retryable?: boolean };
+export type PublishOutcome = { ok: true; value: PublishedCutoff } | { ok: false; status: 404 | 409 | 422 | 503; error: string; problems: Problem[]; retryable?: boolean };
 
 /** Two cutoffs closer than this are the same cutoff (a new version would change nothing). */
 const SAME_CUTOFF = 1e-9;
@@ -46,7 +43,12 @@ export async function publishCutoff(env: Env, actor: string, input: PublishCutof
     return refuse(409, "no-active-model", "fromVersion", "no model is live; a cutoff is retuned from the live model");
   }
   if (pointer.version !== input.fromVersion) {
-    return refuse(409, "live-version-changed", "fromVersion", `must be the live version ${pointer.version} (another change went live since the page was loaded; reload it). Actual: ${input.fromVersion}`);
+    return refuse(
+      409,
+      "live-version-changed",
+      "fromVersion",
+      `must be the live version ${pointer.version} (another change went live since the page was loaded; reload it). Actual: ${input.fromVersion}`,
+    );
   }
   let live: ModelArtifact;
   try {
@@ -69,7 +71,12 @@ export async function publishCutoff(env: Env, actor: string, input: PublishCutof
     throw error;
   }
   if ((await readArtifactText(env, tuned.version)) !== null) {
-    return refuse(409, "version-exists", "cutoffMahalanobisSq", `the retuned version ${tuned.version} is already stored; activate it with POST /v1/models/${tuned.version}/activate`);
+    return refuse(
+      409,
+      "version-exists",
+      "cutoffMahalanobisSq",
+      `the retuned version ${tuned.version} is already stored; activate it with POST /v1/models/${tuned.version}/activate`,
+    );
   }
   const why = `cutoff d² ${fromCutoff} → ${tuned.cutoff.mahalanobisSq} (${input.basis}) from ${live.version}; reason: ${input.reason}`;
   const stored = await withEvent(env, { actor, action: "upload", fromVersion: null, toVersion: tuned.version, detail: `${tuned.checksum}; ${why}` }, () =>
@@ -86,7 +93,13 @@ export async function publishCutoff(env: Env, actor: string, input: PublishCutof
     value: {
       version: tuned.version,
       fromVersion: live.version,
-      cutoff: { fromMahalanobisSq: fromCutoff, toMahalanobisSq: tuned.cutoff.mahalanobisSq, tailProbability: tuned.cutoff.tailProbability, flagRate: tuned.cutoff.flagRate, basis: tuned.cutoff.basis },
+      cutoff: {
+        fromMahalanobisSq: fromCutoff,
+        toMahalanobisSq: tuned.cutoff.mahalanobisSq,
+        tailProbability: tuned.cutoff.tailProbability,
+        flagRate: tuned.cutoff.flagRate,
+        basis: tuned.cutoff.basis,
+      },
       pointer: next,
       publishedBy: actor,
     },

@@ -6,7 +6,6 @@ import type { Env } from "../env";
 import type { ShadowComparison } from "./contract";
 export type { ShadowComparison };
 
-
 /**
  * Reads the comparison of `shadowVersion` against `liveVersion` from `shadow_scores`.
  *
@@ -41,7 +40,13 @@ export async function shadowComparison(env: Pick<Env, "DB">, liveVersion: string
     agreement: payments > 0 ? (payments - (liveFlags - bothFlags) - (shadowFlags - bothFlags)) / payments : null,
     flagOverlap: either > 0 ? bothFlags / either : null,
     firstScoredAt: results.length > 0 ? results.map((r) => r.first).sort()[0] : null,
-    lastScoredAt: results.length > 0 ? results.map((r) => r.last).sort().at(-1)! : null,
+    lastScoredAt:
+      results.length > 0
+        ? results
+            .map((r) => r.last)
+            .sort()
+            .at(-1)!
+        : null,
     days,
   };
 }

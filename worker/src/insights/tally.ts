@@ -62,13 +62,7 @@ export class TrafficTally {
    * @param scoredAt ISO-8601 time; its UTC day keys the counts
    * @param nowMs clock for the age-based flush (default now)
    */
-  record(
-    model: TallyModel,
-    raw: ArrayLike<number>,
-    result: { segment: string; mahalanobisSq: number; flagged: boolean },
-    scoredAt: string,
-    nowMs = Date.now(),
-  ): void {
+  record(model: TallyModel, raw: ArrayLike<number>, result: { segment: string; mahalanobisSq: number; flagged: boolean }, scoredAt: string, nowMs = Date.now()): void {
     const group = this.groupFor(model, scoredAt.slice(0, 10));
     let seg = group.segments.get(result.segment);
     if (!seg) {

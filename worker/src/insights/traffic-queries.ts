@@ -27,9 +27,7 @@ export interface BucketTotals {
  * const totals = await bucketTotals(env, live, "2026-11-24", "2026-11-30");
  */
 export async function bucketTotals(env: Pick<Env, "DB">, model: TallyModel, fromDay: string, toDay: string): Promise<BucketTotals> {
-  const { results } = await env.DB.prepare(
-    "SELECT name, bucket, SUM(count) AS n FROM drift_counts WHERE model_version = ?1 AND day >= ?2 AND day <= ?3 GROUP BY name, bucket",
-  )
+  const { results } = await env.DB.prepare("SELECT name, bucket, SUM(count) AS n FROM drift_counts WHERE model_version = ?1 AND day >= ?2 AND day <= ?3 GROUP BY name, bucket")
     .bind(model.version, fromDay, toDay)
     .all<{ name: string; bucket: number; n: number }>();
   const edges = model.artifact.reference.columnEdges;
@@ -42,7 +40,6 @@ export async function bucketTotals(env: Pick<Env, "DB">, model: TallyModel, from
   }
   return { columns, score, payments: score.reduce((a, b) => a + b, 0) };
 }
-
 
 /**
  * Daily scored/flagged totals of `version` (all segments) for days in [fromDay, toDay], oldest first.
@@ -58,7 +55,6 @@ export async function dailyVolumes(env: Pick<Env, "DB">, version: string, fromDa
     .all<{ day: string; scored: number; flagged: number }>();
   return results.map((r) => ({ day: r.day, scored: Number(r.scored), flagged: Number(r.flagged) }));
 }
-
 
 /**
  * Counts the review items of `version` scored at or after `sinceMs`, by selection and outcome
@@ -86,9 +82,7 @@ export async function labelCounts(env: Pick<Env, "DB">, version: string, sinceMs
  * await liveSince(env, "m20261201-1f3a9c2e") // "2026-12-01T09:30:00.000Z"
  */
 export async function liveSince(env: Pick<Env, "DB">, version: string): Promise<string | null> {
-  const row = await env.DB.prepare(
-    "SELECT at FROM model_events WHERE to_version = ?1 AND action IN ('activate', 'rollback') AND outcome = 'applied' ORDER BY id DESC LIMIT 1",
-  )
+  const row = await env.DB.prepare("SELECT at FROM model_events WHERE to_version = ?1 AND action IN ('activate', 'rollback') AND outcome = 'applied' ORDER BY id DESC LIMIT 1")
     .bind(version)
     .first<{ at: string }>();
   return row?.at ?? null;

@@ -7,7 +7,6 @@ import type { Env } from "../env";
 import type { VersionSummary } from "./contract";
 export type { VersionSummary };
 
-
 /**
  * Summarises a verified artifact and reads its refit-due mark.
  *

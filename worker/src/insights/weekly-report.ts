@@ -18,8 +18,6 @@ export type { FailedReport, WeeklyReport };
 /** Days covered by the drift window (today included). */
 export const REPORT_WINDOW_DAYS = 7;
 
-
-
 /**
  * Computes and stores the report; returns what was stored (never throws).
  *
@@ -61,11 +59,7 @@ export async function computeReport(env: Env, version: string, shadowVersion: st
   const live = await modelCache.model(env, version);
   const fromDay = dayBefore(now, REPORT_WINDOW_DAYS - 1);
   const toDay = dayBefore(now, 0);
-  const [totals, volumes, since] = await Promise.all([
-    bucketTotals(env, live, fromDay, toDay),
-    dailyVolumes(env, version, fromDay, toDay),
-    liveSince(env, version),
-  ]);
+  const [totals, volumes, since] = await Promise.all([bucketTotals(env, live, fromDay, toDay), dailyVolumes(env, version, fromDay, toDay), liveSince(env, version)]);
   const counts = await labelCounts(env, version, since ? Date.parse(since) : 0);
   const drift = driftEntries(live, totals);
   const expected = live.artifact.cutoff.flagRate;
@@ -90,9 +84,7 @@ export async function computeReport(env: Env, version: string, shadowVersion: st
 }
 
 async function storeReport(env: Env, runBy: string, report: WeeklyReport): Promise<number> {
-  const row = await env.DB.prepare(
-    "INSERT INTO model_reports (created_at, run_by, model_version, status, refit_due, report_json) VALUES (?1, ?2, ?3, 'ok', ?4, ?5) RETURNING id",
-  )
+  const row = await env.DB.prepare("INSERT INTO model_reports (created_at, run_by, model_version, status, refit_due, report_json) VALUES (?1, ?2, ?3, 'ok', ?4, ?5) RETURNING id")
     .bind(report.createdAt, runBy, report.modelVersion, report.refitDue ? 1 : 0, JSON.stringify(report))
     .first<{ id: number }>();
   if (!row) throw new Error("model_reports insert returned no row id");

@@ -41,9 +41,7 @@ describe("CredentialTable", () => {
 
   test("refuses a token used by two entries, even across roles", async () => {
     const error = (await CredentialTable.fromEnv({ FLOW_CREDENTIALS: `checkout:${FLOW}`, ADMIN_CREDENTIALS: `ops-ana:${FLOW}` }).catch((e: unknown) => e)) as ConfigError;
-    expect(error.problems).toEqual([
-      { field: "ADMIN_CREDENTIALS", rule: "entry 1 (user ops-ana) reuses the token of FLOW_CREDENTIALS entry 1; every token must be unique" },
-    ]);
+    expect(error.problems).toEqual([{ field: "ADMIN_CREDENTIALS", rule: "entry 1 (user ops-ana) reuses the token of FLOW_CREDENTIALS entry 1; every token must be unique" }]);
   });
 });
 

@@ -25,9 +25,7 @@ export interface Actor {
   nowMs: number;
 }
 
-export type ActionResult =
-  | { ok: true; row: StatusRow }
-  | { ok: false; status: 404 | 409 | 429; error: string; problems: Problem[]; claim?: ClaimView; retryAfterSeconds?: number };
+export type ActionResult = { ok: true; row: StatusRow } | { ok: false; status: 404 | 409 | 429; error: string; problems: Problem[]; claim?: ClaimView; retryAfterSeconds?: number };
 
 const EVENT_COLUMNS = "(item_id, at, actor, action, from_outcome, to_outcome, note, model_version)";
 const LIVE_CLAIM_BY_OTHER = (row: StatusRow, actor: Actor) =>

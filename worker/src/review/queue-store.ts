@@ -106,13 +106,8 @@ export function toQueueRow(row: StatusRow, nowMs: number): QueueRow {
     state,
     // A decided item can be claimed again to change the decision, so the claim stands on its own.
     claim:
-      row.claimed_by !== null && row.claim_expires_ms !== null && row.claim_expires_ms > nowMs
-        ? { by: row.claimed_by, until: new Date(row.claim_expires_ms).toISOString() }
-        : null,
-    decision:
-      row.decided === 1
-        ? { outcome: row.outcome!, by: row.decided_by!, at: new Date(row.decided_ms!).toISOString(), note: row.note }
-        : null,
+      row.claimed_by !== null && row.claim_expires_ms !== null && row.claim_expires_ms > nowMs ? { by: row.claimed_by, until: new Date(row.claim_expires_ms).toISOString() } : null,
+    decision: row.decided === 1 ? { outcome: row.outcome!, by: row.decided_by!, at: new Date(row.decided_ms!).toISOString(), note: row.note } : null,
   };
 }
 
@@ -153,9 +148,7 @@ export function buildPageQuery(request: PageRequest, nowMs: number): { sql: stri
   params.push(...filters.params);
   // Claimed lines are few (live claims only): find them by the claim column, then sort them.
   const index = request.state === "claimed" ? "INDEXED BY review_status_counts" : `INDEXED BY review_status_by_${request.sort}`;
-  const sql =
-    `SELECT ${STATUS_COLUMNS} FROM review_status ${index} WHERE ${where}${filters.sql} ` +
-    `ORDER BY ${column} ${order}, item_id ${order} LIMIT ?3`;
+  const sql = `SELECT ${STATUS_COLUMNS} FROM review_status ${index} WHERE ${where}${filters.sql} ` + `ORDER BY ${column} ${order}, item_id ${order} LIMIT ?3`;
   return { sql, params };
 }
 
@@ -165,7 +158,9 @@ export function buildPageQuery(request: PageRequest, nowMs: number): { sql: stri
  */
 export async function listPage(env: Pick<Env, "DB">, request: PageRequest, nowMs: number): Promise<{ rows: QueueRow[]; nextCursor: string | null }> {
   const { sql, params } = buildPageQuery(request, nowMs);
-  const { results } = await env.DB.prepare(sql).bind(...params).all<StatusRow>();
+  const { results } = await env.DB.prepare(sql)
+    .bind(...params)
+    .all<StatusRow>();
   const more = results.length > request.limit;
   const page = more ? results.slice(0, request.limit) : results;
   const last = page[page.length - 1];
@@ -212,7 +207,9 @@ export function buildCountQuery(filters: QueueFilters, nowMs: number): { sql: st
  */
 export async function countStates(env: Pick<Env, "DB">, filters: QueueFilters, nowMs: number): Promise<StateCounts> {
   const { sql, params } = buildCountQuery(filters, nowMs);
-  const row = await env.DB.prepare(sql).bind(...params).first<StateCounts>();
+  const row = await env.DB.prepare(sql)
+    .bind(...params)
+    .first<StateCounts>();
   return { open: row?.open ?? 0, claimed: row?.claimed ?? 0, decided: row?.decided ?? 0 };
 }
 
@@ -232,8 +229,7 @@ export async function listFacets(env: Pick<Env, "DB">): Promise<Facets> {
 export async function daySummary(env: Pick<Env, "DB">, user: string, nowMs: number, capacityPerAnalyst: number): Promise<DaySummary> {
   const dayStart = utcDayStart(nowMs);
   const today = await env.DB.prepare(
-    "SELECT count(*) AS decided, coalesce(sum(decided_by = ?2), 0) AS mine FROM review_status INDEXED BY review_status_by_decision " +
-      "WHERE decided = 1 AND decided_ms >= ?1",
+    "SELECT count(*) AS decided, coalesce(sum(decided_by = ?2), 0) AS mine FROM review_status INDEXED BY review_status_by_decision " + "WHERE decided = 1 AND decided_ms >= ?1",
   )
     .bind(dayStart, user)
     .first<{ decided: number; mine: number }>();

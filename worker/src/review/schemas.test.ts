@@ -14,7 +14,8 @@ describe("review inputs", () => {
 
   it("knows which days exist: month 1 to 12, the month's own length, 29 February in leap years only", () => {
     for (const day of ["2026-01-31", "2026-02-28", "2024-02-29", "2000-02-29", "2026-04-30", "2026-12-31", "2026-12-01T10:00:00Z"]) expect(isCalendarDay(day), day).toBe(true);
-    for (const day of ["2026-13-45", "2026-02-30", "2026-00-10", "2026-04-31", "2025-02-29", "1900-02-29", "2026-01-00", "20260101", "tomorrow"]) expect(isCalendarDay(day), day).toBe(false);
+    for (const day of ["2026-13-45", "2026-02-30", "2026-00-10", "2026-04-31", "2025-02-29", "1900-02-29", "2026-01-00", "20260101", "tomorrow"])
+      expect(isCalendarDay(day), day).toBe(false);
   });
 
   it("refuses an impossible day or instant in from and to, which Date.parse would roll over or make NaN", () => {

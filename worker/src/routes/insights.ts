@@ -149,7 +149,6 @@ insightRoutes.post("/publish-cutoff", allow("admin"), jsonBody(BODY_LIMITS.small
   return problemResponse(c, outcome.status, outcome.error, outcome.problems, outcome.retryable ? { retryable: true } : {});
 });
 
-
 function noActiveModel(c: InsightsContext): Response {
   return problemResponse(c, 409, "no-active-model", [{ field: "pointer", rule: "no model has been activated yet; publish and activate one first" }]);
 }

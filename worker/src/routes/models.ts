@@ -11,15 +11,7 @@ import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
 import { changePointer, loadModel, ModelLoadError } from "../scoring/model-cache";
-import {
-  activatedPointer,
-  listVersions,
-  readArtifactText,
-  readPointer,
-  storeArtifact,
-  type ModelPointer,
-  type VersionPage,
-} from "../storage/model-store";
+import { activatedPointer, listVersions, readArtifactText, readPointer, storeArtifact, type ModelPointer, type VersionPage } from "../storage/model-store";
 import { markModelEventFailed, recordModelEvent, type ModelEventAction } from "../storage/review-store";
 import { shadowRequestSchema, versionParamSchema } from "./schemas";
 
@@ -39,7 +31,12 @@ modelRoutes.post("/models", jsonBody(BODY_LIMITS.artifact), async (c) => {
     artifact = await parseArtifact(body);
   } catch (error) {
     if (error instanceof ArtifactError) {
-      return problemResponse(c, 422, "artifact-refused", error.problems.map((p) => ({ field: p.path, rule: p.rule })));
+      return problemResponse(
+        c,
+        422,
+        "artifact-refused",
+        error.problems.map((p) => ({ field: p.path, rule: p.rule })),
+      );
     }
     throw error;
   }
@@ -91,9 +88,7 @@ modelRoutes.get("/models", async (c) => {
 modelRoutes.post("/models/rollback", async (c) => {
   const pointer = await readPointer(c.env);
   if (pointer === null || pointer.previous.length === 0) {
-    return problemResponse(c, 409, "no-previous-version", [
-      { field: "pointer.previous", rule: "there is no earlier active version to roll back to" },
-    ]);
+    return problemResponse(c, 409, "no-previous-version", [{ field: "pointer.previous", rule: "there is no earlier active version to roll back to" }]);
   }
   const [target, ...rest] = pointer.previous;
   const unusable = await verifyStored(c, target, "pointer.previous[0]");
@@ -177,13 +172,9 @@ async function changeWithEvent(
     eventId = await recordModelEvent(c.env, { ...event, actor: c.get("principal").user, at: new Date().toISOString() });
   } catch (error) {
     console.error(JSON.stringify({ event: "model-event-write-failed", action: event.action, error: String(error) }));
-    return problemResponse(
-      c,
-      503,
-      "event-log-unavailable",
-      [{ field: "model_events", rule: "the change could not be recorded in the review store, so it was not made; retry" }],
-      { retryable: true },
-    );
+    return problemResponse(c, 503, "event-log-unavailable", [{ field: "model_events", rule: "the change could not be recorded in the review store, so it was not made; retry" }], {
+      retryable: true,
+    });
   }
   try {
     return await change();

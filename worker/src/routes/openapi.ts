@@ -65,13 +65,22 @@ function queryParameters(schema: z.ZodObject): Record<string, unknown>[] {
 
 const itemParameter = { name: "id", in: "path", required: true, schema: { type: "string", pattern: "^[1-9][0-9]{0,15}$" } };
 const READ_ONLY = (summary: string, description: string, parameters: Record<string, unknown>[] = []) => ({
-  get: operation(summary, { description, parameters, responses: { "200": { description: "JSON answer.", ...ANY_OBJECT }, "400": error("A query parameter breaks its rule."), ...AUTH_ERRORS } }),
+  get: operation(summary, {
+    description,
+    parameters,
+    responses: { "200": { description: "JSON answer.", ...ANY_OBJECT }, "400": error("A query parameter breaks its rule."), ...AUTH_ERRORS },
+  }),
 });
 const ITEM_ACTION = (summary: string, description: string) => ({
   post: operation(summary, {
     description,
     parameters: [itemParameter],
-    responses: { "200": { description: "The item after the change.", ...ANY_OBJECT }, ...AUTH_ERRORS, "404": error("No such item."), "409": error("Someone else holds the item, or its state does not allow the change.") },
+    responses: {
+      "200": { description: "The item after the change.", ...ANY_OBJECT },
+      ...AUTH_ERRORS,
+      "404": error("No such item."),
+      "409": error("Someone else holds the item, or its state does not allow the change."),
+    },
   }),
 });
 
@@ -104,7 +113,10 @@ export function openApiDocument() {
         "Roles: flow (score), analyst (review queue), admin (models; may do everything).",
     },
     servers: [{ url: "/" }],
-    components: { securitySchemes: { bearer: { type: "http", scheme: "bearer", description: "Per-user token from FLOW_CREDENTIALS, ANALYST_CREDENTIALS or ADMIN_CREDENTIALS." } }, schemas },
+    components: {
+      securitySchemes: { bearer: { type: "http", scheme: "bearer", description: "Per-user token from FLOW_CREDENTIALS, ANALYST_CREDENTIALS or ADMIN_CREDENTIALS." } },
+      schemas,
+    },
     paths: {
       "/v1/score": {
         post: operation("Score one payment", {
@@ -212,7 +224,9 @@ export function openApiDocument() {
             "200": { description: "Erased; counts per store.", ...json("ErasureAnswer") },
             "400": error("accountRef breaks its rule."),
             ...AUTH_ERRORS,
-            "503": error("The erasure could not be logged (nothing erased: `erasure-log-unavailable`) or the history store did not confirm it (`history-unavailable`, logged as failed); `retryable: true`."),
+            "503": error(
+              "The erasure could not be logged (nothing erased: `erasure-log-unavailable`) or the history store did not confirm it (`history-unavailable`, logged as failed); `retryable: true`.",
+            ),
           },
         }),
       },
@@ -238,7 +252,10 @@ export function openApiDocument() {
       },
       "/v1/review/items/{id}/claim": ITEM_ACTION("Take an item", "Roles analyst, admin. A claim lasts 15 minutes; the loser of a race gets 409 naming the holder."),
       "/v1/review/items/{id}/release": ITEM_ACTION("Give a claimed item back", "Roles analyst, admin. Only the holder may release."),
-      "/v1/review/items/{id}/undo": ITEM_ACTION("Undo your last decision", "Roles analyst, admin. Within 5 minutes; audited; 429 with Retry-After past ten decisions or undos of yours on the item within the hour."),
+      "/v1/review/items/{id}/undo": ITEM_ACTION(
+        "Undo your last decision",
+        "Roles analyst, admin. Within 5 minutes; audited; 429 with Retry-After past ten decisions or undos of yours on the item within the hour.",
+      ),
       "/v1/review/items/{id}/decision": {
         post: operation("Confirm as fraud or dismiss as legitimate", {
           description: "Roles analyst, admin. Needs your live claim; every change is appended to the audit trail.",
@@ -267,9 +284,16 @@ export function openApiDocument() {
       "/v1/insights/histogram": READ_ONLY("Score histogram of recent traffic", "Roles analyst, admin.", queryParameters(windowQuerySchema)),
       "/v1/insights/publish-cutoff": {
         post: operation("Publish a new cutoff as a new version and make it live", {
-          description: "Role admin. Same parameters, new cutoff; audited with who and why; needs `confirm: \"publish\"`.",
+          description: 'Role admin. Same parameters, new cutoff; audited with who and why; needs `confirm: "publish"`.',
           requestBody: { required: true, ...json("PublishCutoffRequest") },
-          responses: { "201": { description: "The new version and pointer.", ...ANY_OBJECT }, ...BODY_ERRORS, ...AUTH_ERRORS, "404": error("The version is not stored."), "409": error("No live model, or the live version changed since the page was loaded."), "422": error("The stored artifact does not verify.") },
+          responses: {
+            "201": { description: "The new version and pointer.", ...ANY_OBJECT },
+            ...BODY_ERRORS,
+            ...AUTH_ERRORS,
+            "404": error("The version is not stored."),
+            "409": error("No live model, or the live version changed since the page was loaded."),
+            "422": error("The stored artifact does not verify."),
+          },
         }),
       },
       "/openapi.json": {

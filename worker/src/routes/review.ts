@@ -198,10 +198,16 @@ async function act(c: ReviewContext, run: (env: AppEnv["Bindings"], id: number, 
     // The state change and its audit row are one D1 batch (one transaction): when D1 fails,
     // neither was written, so the analyst may simply try again.
     console.error(JSON.stringify({ event: "review-store-unavailable", path: new URL(c.req.url).pathname, error: String(error) }));
-    return problemResponse(c, 503, "review-store-unavailable", [{ field: "id", rule: `item ${id} was not changed: the review store could not be written; nothing was recorded, try again` }], {
-      retryable: true,
-      headers: { "retry-after": "2" },
-    });
+    return problemResponse(
+      c,
+      503,
+      "review-store-unavailable",
+      [{ field: "id", rule: `item ${id} was not changed: the review store could not be written; nothing was recorded, try again` }],
+      {
+        retryable: true,
+        headers: { "retry-after": "2" },
+      },
+    );
   }
   if (!result.ok) {
     const body: Record<string, unknown> = { error: result.error, problems: result.problems };
@@ -228,7 +234,6 @@ function itemId(c: ReviewContext): number | Response {
   }
   return id;
 }
-
 
 /** `from` and `to` as a half-open ms range, refusing a range that ends before it starts. */
 function checkedRange(c: ReviewContext, from: string | undefined, to: string | undefined): { fromMs?: number; toMs?: number } | Response {

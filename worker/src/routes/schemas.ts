@@ -8,16 +8,14 @@ import { z } from "zod";
 const PRINTABLE = /^[\x21-\x7e]+$/;
 
 /** A plain JSON object (not an array, not null). The routes pass the object itself on untouched. */
-const plainObject = z.custom<Record<string, unknown>>(
-  (value) => typeof value === "object" && value !== null && !Array.isArray(value),
-  { error: "must be an object keyed by feature name" },
-);
+const plainObject = z.custom<Record<string, unknown>>((value) => typeof value === "object" && value !== null && !Array.isArray(value), {
+  error: "must be an object keyed by feature name",
+});
 
 /** A plain JSON object holding a payment record's fields. */
-const plainPaymentObject = z.custom<Record<string, unknown>>(
-  (value) => typeof value === "object" && value !== null && !Array.isArray(value),
-  { error: "must be an object keyed by ledger column name" },
-);
+const plainPaymentObject = z.custom<Record<string, unknown>>((value) => typeof value === "object" && value !== null && !Array.isArray(value), {
+  error: "must be an object keyed by ledger column name",
+});
 
 /** Body of `POST /v1/score` and one item of a batch. Unknown keys are refused. */
 export const scoreRequestSchema = z
@@ -77,13 +75,15 @@ export const scoreAnswerSchema = z
     logDensity: z.number().describe("Natural-log density under the segment's Gaussian."),
     mahalanobisSq: z.number().describe("Squared Mahalanobis distance d²."),
     tailProbability: z.number().describe("P(χ²ₙ > d²), comparable across segments and models; 0 once it underflows a double."),
-    log10TailProbability: z
-      .number()
-      .describe("log₁₀ P(χ²ₙ > d²) from the log of the incomplete gamma function: finite where `tailProbability` underflows; sort by this."),
+    log10TailProbability: z.number().describe("log₁₀ P(χ²ₙ > d²) from the log of the incomplete gamma function: finite where `tailProbability` underflows; sort by this."),
     cutoff: z.object({ mahalanobisSq: z.number(), tailProbability: z.number(), logDensity: z.number() }),
     modelVersion: z.string(),
     segment: z.string().describe("Segment key that scored the payment (`*` = pooled model)."),
-    reasons: z.array(reasonSchema).describe("Features whose conditional residuals are least likely, rarest first (by the tail probability of the residual, so one- and two-column features rank on one scale)."),
+    reasons: z
+      .array(reasonSchema)
+      .describe(
+        "Features whose conditional residuals are least likely, rarest first (by the tail probability of the residual, so one- and two-column features rank on one scale).",
+      ),
     auditSample: z.boolean().describe("True when a passing payment was also sent to review as part of the audit sample."),
     derived: z
       .record(z.string(), z.number())
@@ -222,8 +222,6 @@ export const erasureAnswerSchema = z
   .object({
     eventId: z.number().int().describe("Row of the erasure log (erasure_events), which keeps only a SHA-256 digest of the account reference."),
     at: z.string(),
-    erased: z
-      .record(z.string(), z.record(z.string(), z.number()))
-      .describe("Per store erased (`account-history`), counts of what went; never the data."),
+    erased: z.record(z.string(), z.record(z.string(), z.number())).describe("Per store erased (`account-history`), counts of what went; never the data."),
   })
   .describe("An account's data erased on request.");

@@ -33,9 +33,7 @@ scoreRoutes.post("/score/batch", authenticate(), allow("flow"), jsonBody(BODY_LI
   if (!envelope.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(envelope.error, body, "", ["payments"]));
   const payments = envelope.data.payments;
   if (payments.length < 1 || payments.length > call.settings.MAX_BATCH) {
-    return problemResponse(c, 400, "invalid-request", [
-      { field: "payments", rule: `must hold 1 to ${call.settings.MAX_BATCH} payments (MAX_BATCH). Actual: ${payments.length}` },
-    ]);
+    return problemResponse(c, 400, "invalid-request", [{ field: "payments", rule: `must hold 1 to ${call.settings.MAX_BATCH} payments (MAX_BATCH). Actual: ${payments.length}` }]);
   }
   const results = await scoreMany(call, payments, (index) => `payments[${index}].`);
   const counts = { scored: 0, refused: 0, review: 0, auditSample: 0 };
@@ -62,11 +60,8 @@ async function scoringCall(c: Context<AppEnv>): Promise<ScoringCall | Response> 
 /** 503 when no model has ever loaded in this isolate: the flow applies its fail-open/closed policy. */
 function noModel(c: Context<AppEnv>, settings: ScoringCall["settings"]): Response {
   const retryAfter = String(Math.max(1, Math.ceil(settings.MODEL_REFRESH_SECONDS)));
-  return problemResponse(
-    c,
-    503,
-    "no-model",
-    [{ field: "model", rule: "no model is loaded: none has been activated, or KV cannot be read; retry after the Retry-After seconds" }],
-    { retryable: true, headers: { "retry-after": retryAfter } },
-  );
+  return problemResponse(c, 503, "no-model", [{ field: "model", rule: "no model is loaded: none has been activated, or KV cannot be read; retry after the Retry-After seconds" }], {
+    retryable: true,
+    headers: { "retry-after": retryAfter },
+  });
 }

@@ -4,7 +4,10 @@ import { chunkForSend } from "./handoff";
 
 describe("chunkForSend", () => {
   test("keeps every sendBatch within 100 messages", () => {
-    const chunks = chunkForSend(Array.from({ length: 250 }, (_, i) => i), () => 10);
+    const chunks = chunkForSend(
+      Array.from({ length: 250 }, (_, i) => i),
+      () => 10,
+    );
     expect(chunks.map((c) => c.length)).toEqual([100, 100, 50]);
     expect(chunks.flat()).toEqual(Array.from({ length: 250 }, (_, i) => i));
   });

@@ -163,10 +163,16 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
       .map((e) => ({ index: e.index, transactionId: e.payment.transactionId, review: e.scored!.review! })),
     ...entries.flatMap((e) => (e.state === "remembered" && e.review ? [{ index: e.index, transactionId: e.answer.transactionId, review: e.review }] : [])),
   ];
-  const accepted = await sendReviewItems(env.FLAGS, withReview.map((e) => e.review));
+  const accepted = await sendReviewItems(
+    env.FLAGS,
+    withReview.map((e) => e.review),
+  );
   withReview.forEach((entry, i) => {
     if (accepted[i]) return;
-    const problem = { field: `${prefixOf(entry.index)}transactionId`, rule: `the review hand-off of ${JSON.stringify(entry.transactionId)} could not be enqueued; send the same request again` };
+    const problem = {
+      field: `${prefixOf(entry.index)}transactionId`,
+      rule: `the review hand-off of ${JSON.stringify(entry.transactionId)} could not be enqueued; send the same request again`,
+    };
     entries[entry.index] = { index: entry.index, state: "refused", refusal: refusal(entry.index, 503, "handoff-failed", [problem], true) };
   });
   const fresh = stillValid();
@@ -187,7 +193,12 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
     );
   }
   if (conflicts.length > 0) await sendConflicts(env.FLAGS, conflicts);
-  countScored(env, executionCtx, snapshot.live, fresh.map((e) => ({ raw: e.payment.raw, answer: e.scored!.answer, scoredAt })));
+  countScored(
+    env,
+    executionCtx,
+    snapshot.live,
+    fresh.map((e) => ({ raw: e.payment.raw, answer: e.scored!.answer, scoredAt })),
+  );
 
   return entries.map((entry) => {
     const resolved = entry.state === "same-as" ? entries[entry.of] : entry;
@@ -262,7 +273,14 @@ function conflictRefusal(index: number, prefix: string, transactionId: string, f
   ]);
 }
 
-function conflictMessage(payment: ValidPayment | PendingPayment, contentHash: string, firstContentHash: string, firstSeenMs: number, nowMs: number, modelVersion: string): ConflictMessage {
+function conflictMessage(
+  payment: ValidPayment | PendingPayment,
+  contentHash: string,
+  firstContentHash: string,
+  firstSeenMs: number,
+  nowMs: number,
+  modelVersion: string,
+): ConflictMessage {
   return {
     kind: "conflict",
     transactionId: payment.transactionId,

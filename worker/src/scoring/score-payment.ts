@@ -116,14 +116,7 @@ export interface ScoredPayment {
  * @example
  * const scored = scorePayment(snapshot, payment, await auditPosition(payment.transactionId), 0.002, new Date().toISOString());
  */
-export function scorePayment(
-  snapshot: ModelSnapshot,
-  payment: ValidPayment,
-  auditPosition: number,
-  auditRate: number,
-  scoredAt: string,
-  prefix = "",
-): Checked<ScoredPayment> {
+export function scorePayment(snapshot: ModelSnapshot, payment: ValidPayment, auditPosition: number, auditRate: number, scoredAt: string, prefix = ""): Checked<ScoredPayment> {
   const { live } = snapshot;
   let result: ScoreResult;
   let reasons: ReturnType<typeof toWireReasons>;
@@ -136,8 +129,7 @@ export function scorePayment(
   }
   const artifact = live.artifact;
   const segmentModel = live.compiled.segments.get(result.segment) ?? live.compiled.pooled;
-  const cutoffLogDensity =
-    artifact.cutoff.logDensity[result.segment] ?? segmentModel.logNormalizer - 0.5 * live.compiled.cutoffMahalanobisSq;
+  const cutoffLogDensity = artifact.cutoff.logDensity[result.segment] ?? segmentModel.logNormalizer - 0.5 * live.compiled.cutoffMahalanobisSq;
   const audited = !result.flagged && isAudited(auditPosition, auditRate);
   const answer: ScoreAnswer = {
     transactionId: payment.transactionId,

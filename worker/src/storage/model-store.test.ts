@@ -2,11 +2,23 @@ import { describe, expect, test } from "vitest";
 import { activatedPointer, MAX_PREVIOUS_VERSIONS, type ModelPointer } from "./model-store";
 
 const at = new Date("2026-12-04T10:00:00.000Z");
-const pointer = (version: string, shadow: string | null, previous: string[]): ModelPointer => ({ version, shadow, previous, updatedAt: "2026-12-01T00:00:00.000Z", updatedBy: "ops-ana" });
+const pointer = (version: string, shadow: string | null, previous: string[]): ModelPointer => ({
+  version,
+  shadow,
+  previous,
+  updatedAt: "2026-12-01T00:00:00.000Z",
+  updatedBy: "ops-ana",
+});
 
 describe("activatedPointer", () => {
   test("puts the version that was live at the head of the rollback list and records who and when", () => {
-    expect(activatedPointer(pointer("m2", null, ["m1"]), "m3", "rosa", at)).toEqual({ version: "m3", shadow: null, previous: ["m2", "m1"], updatedAt: "2026-12-04T10:00:00.000Z", updatedBy: "rosa" });
+    expect(activatedPointer(pointer("m2", null, ["m1"]), "m3", "rosa", at)).toEqual({
+      version: "m3",
+      shadow: null,
+      previous: ["m2", "m1"],
+      updatedAt: "2026-12-04T10:00:00.000Z",
+      updatedBy: "rosa",
+    });
   });
 
   test("starts an empty rollback list for the first activation", () => {

@@ -117,9 +117,7 @@ export interface ModelEvent {
  * const id = await recordModelEvent(env, { actor: "ops-ana", action: "activate", fromVersion: "m1", toVersion: "m2", at: new Date().toISOString() });
  */
 export async function recordModelEvent(env: Pick<Env, "DB">, event: ModelEvent): Promise<number> {
-  const row = await env.DB.prepare(
-    "INSERT INTO model_events (at, actor, action, from_version, to_version, detail) VALUES (?1, ?2, ?3, ?4, ?5, ?6) RETURNING id",
-  )
+  const row = await env.DB.prepare("INSERT INTO model_events (at, actor, action, from_version, to_version, detail) VALUES (?1, ?2, ?3, ?4, ?5, ?6) RETURNING id")
     .bind(event.at, event.actor, event.action, event.fromVersion, event.toVersion, event.detail ?? null)
     .first<{ id: number }>();
   if (!row) throw new Error("model_events insert returned no row id");
