@@ -94,6 +94,12 @@ const segmentSchema = z.strictObject({
   precision: matrix,
   logDet: finite,
   details: detailsSchema,
+  /**
+   * The law its payments' tail probabilities are read from (`tail-law.ts`): `predictive` where the
+   * cutoff was chosen by a new point's predictive law; absent in artifacts written before it was
+   * stored, which read χ².
+   */
+  tailLaw: z.enum(["chi-square", "predictive"]).optional(),
 });
 
 const diagnosticSchema = z.strictObject({
@@ -131,6 +137,8 @@ export const modelArtifactSchema = z.strictObject({
     logDensity: z.record(z.string().min(1), finite),
     basis: z.enum(["flag-rate", "f1", "capacity", "cost", "manual"]),
     flagRate: finite.min(0).max(1).nullable(),
+    /** How the fit chose a flag-rate cutoff (`cutoff-law.ts`); absent in older artifacts and after retuning. */
+    law: z.enum(["deleted-distance", "predictive", "in-sample"]).optional(),
   }),
   training: z.strictObject({
     rowsRead: count,
@@ -647,6 +655,9 @@ function checkSemantics(a: ModelArtifact, problems: ArtifactProblem[]): void {
 function checkSegment(a: ModelArtifact, key: string, n: number, add: (path: string, rule: string) => void): void {
   const seg = a.segments[key];
   const base = joinFieldPath("segments", key);
+  if (seg.tailLaw === "predictive" && seg.rows <= n) {
+    add(`${base}.tailLaw`, `"predictive" needs more training rows than model columns (${n}). Actual rows: ${seg.rows}`);
+  }
   if (seg.details.estimator !== a.estimator) {
     add(`${base}.details.estimator`, `must match the artifact's estimator "${a.estimator}". Actual: "${seg.details.estimator}"`);
   }

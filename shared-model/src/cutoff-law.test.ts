@@ -1,11 +1,13 @@
 import { describe, expect, it } from "vitest";
 import { cutoffForFlagRate } from "./cutoff";
-import { deletedDistance, outOfSampleCutoff, predictiveTail } from "./cutoff-law";
+import { deletedDistance, outOfSampleCutoff } from "./cutoff-law";
+import { predictiveTail } from "./tail-law";
+import { correlatedGaussianRows, rowSource } from "./test-support";
 import { fSurvival, fUpperQuantile, regularizedBeta } from "./distributions";
-import { fitModel, type FitRow, type RowSource } from "./fit";
+import { fitModel } from "./fit";
 import { fromRows } from "./linalg";
 import { compileModel, mahalanobisSq, Scorer } from "./score";
-import { mulberry32, type SeededStream } from "./seeded-stream";
+import { mulberry32 } from "./seeded-stream";
 
 function expectClose(actual: number, expected: number, tolerance: number, label: string): void {
   const diff = Math.abs(actual - expected) / Math.max(1e-300, Math.abs(expected));
@@ -14,26 +16,6 @@ function expectClose(actual: number, expected: number, tolerance: number, label:
 
 const N_COLUMNS = 8;
 const features = Array.from({ length: N_COLUMNS }, (_, j) => ({ name: `x${j}`, transform: "none" as const }));
-
-/** m rows of a correlated 8-column Gaussian (x = L·z, L fixed lower-triangular). */
-function gaussianRows(stream: SeededStream, m: number): Float64Array[] {
-  return Array.from({ length: m }, () => {
-    const z = Array.from({ length: N_COLUMNS }, () => stream.normal());
-    return Float64Array.from({ length: N_COLUMNS }, (_, i) => {
-      let v = 0;
-      for (let k = 0; k <= i; k++) v += (k === i ? 1 : 0.3) * z[k];
-      return v;
-    });
-  });
-}
-
-function source(rows: Float64Array[]): RowSource {
-  return {
-    async *pass(): AsyncGenerator<FitRow> {
-      for (const values of rows) yield { values, segment: null };
-    },
-  };
-}
 
 describe("F distribution and incomplete beta", () => {
   it("match SciPy's F survival function and upper quantile", () => {
@@ -63,12 +45,12 @@ describe("F distribution and incomplete beta", () => {
 
 describe("deletedDistance", () => {
   it("equals the distance to a classical fit without the row (Sherman–Morrison), checked by refitting", async () => {
-    const rows = gaussianRows(mulberry32(11), 60);
-    const { artifact } = await fitModel(source(rows), { features, shape: "full", estimator: "classical", segmentBy: null, cutoffRate: 0.05, createdAt: "2026-12-04T00:00:00Z" });
+    const rows = correlatedGaussianRows(mulberry32(11), 60);
+    const { artifact } = await fitModel(rowSource(rows), { features, shape: "full", estimator: "classical", segmentBy: null, cutoffRate: 0.05, createdAt: "2026-12-04T00:00:00Z" });
     const seg = artifact.segments["*"];
     for (const i of [0, 7, 33]) {
       const inSample = mahalanobisSq(fromRows(seg.precision), Float64Array.from(seg.mean), rows[i], N_COLUMNS, new Float64Array(N_COLUMNS));
-      const without = await fitModel(source(rows.filter((_, k) => k !== i)), {
+      const without = await fitModel(rowSource(rows.filter((_, k) => k !== i)), {
         features,
         shape: "full",
         estimator: "classical",
@@ -106,8 +88,8 @@ describe("outOfSampleCutoff", () => {
       let flaggedOld = 0;
       let law = "";
       for (let f = 0; f < fits; f++) {
-        const rows = gaussianRows(stream, m);
-        const { artifact } = await fitModel(source(rows), {
+        const rows = correlatedGaussianRows(stream, m);
+        const { artifact } = await fitModel(rowSource(rows), {
           features,
           shape: "full",
           estimator: "classical",
@@ -119,7 +101,7 @@ describe("outOfSampleCutoff", () => {
         // The cutoff used before: the in-sample quantile of the training rows' own distances.
         const inSample = Float64Array.from(rows, (r) => scorer.score(r).mahalanobisSq);
         const oldCut = cutoffForFlagRate(inSample, rate, N_COLUMNS).mahalanobisSq;
-        for (const x of gaussianRows(stream, fresh)) {
+        for (const x of correlatedGaussianRows(stream, fresh)) {
           const result = scorer.score(x);
           if (result.flagged) flaggedNew++;
           if (result.mahalanobisSq > oldCut) flaggedOld++;

@@ -21,8 +21,9 @@
  * Other estimators (shrinkage, robust) or the diagonal shape have no closed form here; they keep
  * the in-sample quantile and the fit says so.
  */
-import { chiSquareSurvival, fSurvival } from "./distributions";
+import { chiSquareSurvival } from "./distributions";
 import { cutoffForFlagRate, type FlagRateCutoff } from "./cutoff";
+import { predictiveTail } from "./tail-law";
 
 /** Fewest tail rows (rate × rows of the smallest scoring model) for the empirical deleted-distance quantile. */
 export const MIN_TAIL_ROWS = 10;
@@ -44,6 +45,8 @@ export interface LawCutoff extends FlagRateCutoff {
   law: CutoffLaw;
   /** One sentence: the law and the reason, for the fit output. */
   lawReason: string;
+  /** Keys of the scoring models read with the predictive law; their payments report its tail probability (`tail-law.ts`). */
+  predictiveKeys: string[];
 }
 
 /**
@@ -54,16 +57,6 @@ export interface LawCutoff extends FlagRateCutoff {
 export function deletedDistance(inSampleMahalanobisSq: number, rows: number): number {
   const room = rows - 1 - inSampleMahalanobisSq;
   return room > 0 ? (rows * inSampleMahalanobisSq) / room : Number.MAX_VALUE;
-}
-
-/**
- * P(d²_new > c) for a new point from the model's own Gaussian, against the maximum-likelihood fit
- * of `rows` rows in n columns: P(F(n, m − n) > c·(m − n)/(n(m + 1))). Tends to P(χ²ₙ > c) as m grows.
- * @example predictiveTail(20.09, 8, 300) // ≈ 0.013 (χ²₈ gives 0.01)
- */
-export function predictiveTail(cutoffMahalanobisSq: number, n: number, rows: number): number {
-  if (rows <= n) return chiSquareSurvival(cutoffMahalanobisSq, n);
-  return fSurvival((cutoffMahalanobisSq * (rows - n)) / (n * (rows + 1)), n, rows - n);
 }
 
 /**
@@ -91,6 +84,7 @@ export function outOfSampleCutoff(input: {
     return {
       ...cut,
       law: "in-sample",
+      predictiveKeys: [],
       lawReason:
         "in-sample quantile of the training distances (no closed-form out-of-sample law for this estimator or shape; new payments may be flagged somewhat more often than asked)",
     };
@@ -100,9 +94,10 @@ export function outOfSampleCutoff(input: {
   // Each model's sampled deleted distances, sorted, for its empirical tail.
   const samples = traffic.map((_, k) => Float64Array.from(deleted.filter((_, i) => model[i] === k)).sort());
   const empirical = traffic.map((t) => t.scored > 0 && rate * t.rows >= MIN_TAIL_ROWS);
+  const readsPredictive = traffic.map((_, k) => !empirical[k] || samples[k].length === 0);
   const tailShare = (k: number, c: number): number => {
     const sorted = samples[k];
-    if (!empirical[k] || sorted.length === 0) return predictiveTail(c, n, traffic[k].rows);
+    if (readsPredictive[k]) return predictiveTail(c, n, traffic[k].rows);
     let a = 0;
     let b = sorted.length;
     while (a < b) {
@@ -131,7 +126,8 @@ export function outOfSampleCutoff(input: {
         (predictive.length < traffic.filter((t) => t.scored > 0).length
           ? `; deleted (leave-one-out) distances for the models whose tail holds at least ${MIN_TAIL_ROWS} rows`
           : "");
-  return { mahalanobisSq: c, tailProbability: chiSquareSurvival(c, n), flagRate: expected(c), law, lawReason };
+  const predictiveKeys = traffic.filter((_, k) => readsPredictive[k]).map((t) => t.key);
+  return { mahalanobisSq: c, tailProbability: chiSquareSurvival(c, n), flagRate: expected(c), law, lawReason, predictiveKeys };
 }
 
 function formatRows(x: number): string {

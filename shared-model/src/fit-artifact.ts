@@ -50,8 +50,10 @@ export async function sealFit(input: ArtifactInput): Promise<SealedFit> {
   const fitted = slots.live();
   const logDensity: Record<string, number> = {};
   const segments: Record<string, ArtifactSegment> = {};
+  const predictive = new Set(cut.predictiveKeys);
   for (const slot of fitted) {
-    segments[slot.key] = slot.segment!;
+    // The law its payments' tail probabilities are read from: the one that chose its share of the cutoff.
+    segments[slot.key] = { ...slot.segment!, tailLaw: predictive.has(slot.key) && slot.segment!.rows > n ? "predictive" : "chi-square" };
     logDensity[slot.key] = logDensityAt(n, slot.segment!.logDet, cut.mahalanobisSq);
   }
   const segmentFallbacks: Record<string, string> = {};
@@ -75,6 +77,7 @@ export async function sealFit(input: ArtifactInput): Promise<SealedFit> {
       logDensity,
       basis: "flag-rate",
       flagRate: cut.flagRate,
+      law: cut.law,
     },
     training: { ...input.training, source: options.source ?? null },
     diagnostics,

@@ -19,7 +19,7 @@ export interface ReportInput {
   fallbacks: Map<string, string>;
   segmentCounts: Map<string, number>;
   warnings: Diagnostic[];
-  cut: { mahalanobisSq: number; tailProbability: number; flagRate: number; lawReason?: string };
+  cut: { mahalanobisSq: number; tailProbability: number; flagRate: number; lawReason?: string; predictiveKeys?: string[] };
   logDensity: Record<string, number>;
   n: number;
   minSegmentRows: number;
@@ -91,7 +91,16 @@ export function reportLines(r: ReportInput): string[] {
       .map(([key, value]) => `${key} ${num(value)}`)
       .join(", ")}`,
   );
+  lines.push(tailLawLine(r.cut.predictiveKeys ?? [], r.fitted.length));
   return lines;
+}
+
+/** Which law the reported tail probabilities read, per model (`tail-law.ts`). */
+function tailLawLine(predictiveKeys: readonly string[], models: number): string {
+  if (predictiveKeys.length === 0) return "tail probabilities: P(χ²ₙ > d²) for every model";
+  const named = predictiveKeys.map((k) => `'${k}'`).join(", ");
+  const rest = predictiveKeys.length < models ? "; P(χ²ₙ > d²) for the others" : "";
+  return `tail probabilities: the predictive law of a new payment, P(n(m + 1)/(m − n)·F(n, m − n) > d²), for ${named} (as their cutoff)${rest}`;
 }
 
 function estimatorLine(estimator: EstimatorName, pooled: ModelSlot, seed: number): string {

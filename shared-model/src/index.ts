@@ -16,6 +16,7 @@ export * from "./log-density";
 export * from "./score";
 export * from "./reasons";
 export * from "./cutoff";
+export * from "./tail-law";
 export * from "./fit";
 export * from "./input-error";
 export * from "./tuning";

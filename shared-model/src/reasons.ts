@@ -6,7 +6,8 @@
  * 2005, Gaussian Markov Random Fields, ch. 2, conditional properties of a GMRF). For one column j this is mean
  * μ_j − (1/Λ_jj) Σ_{k≠j} Λ_jk (x_k − μ_k) and variance 1/Λ_jj: O(n) per feature, no inversion.
  */
-import { logChiSquareSurvival, normalQuantile } from "./distributions";
+import { normalQuantile } from "./distributions";
+import { logTailProbability } from "./tail-law";
 import { hourFromCyclic, inverseTransform } from "./features";
 import type { FittedFeature, Reason, SegmentModel } from "./types";
 
@@ -184,7 +185,8 @@ export function conditionalReasons(seg: SegmentModel, features: readonly FittedF
   // Rank on one scale: a column's |z| and a pair's √χ²₂ are not comparable (2.5 for a pair is
   // p ≈ 0.044, 2.4 for a column p ≈ 0.016), their tail probabilities are. Logs keep far-out
   // residuals apart. Array.prototype.sort is stable (ES2019), so ties keep feature order.
-  const order = reasons.map((reason, k) => ({ reason, logTail: logChiSquareSurvival(reason.standardizedResidual ** 2, columnsOf[k]) }));
+  // A small segment read with the predictive law ranks on that law too (k(m + 1)/(m − n)·F(k, m − n)).
+  const order = reasons.map((reason, k) => ({ reason, logTail: logTailProbability(reason.standardizedResidual ** 2, seg, columnsOf[k]) }));
   order.sort((p, q) => p.logTail - q.logTail);
   return order.slice(0, top).map((o) => o.reason);
 }

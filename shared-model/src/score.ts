@@ -2,16 +2,17 @@
  * Scoring: turns a verified artifact into Float64Arrays once, then scores payments with a kernel
  * that allocates nothing. log p(x) = −½ (n ln 2π + ln|Σ| + d²) with d² = (x−μ)ᵀ Λ (x−μ), Λ = Σ⁻¹;
  * P(χ²ₙ > d²) is the calibrated tail probability (Mahalanobis 1936; the χ² law of d² under the
- * Gaussian, e.g. Johnson & Wichern, Applied Multivariate Statistical Analysis, §4.4).
+ * Gaussian, e.g. Johnson & Wichern, Applied Multivariate Statistical Analysis, §4.4), or for a
+ * small segment the predictive law of a new point its cutoff was chosen by (`tail-law.ts`).
  */
 import { InputError } from "./input-error";
 import type { ModelArtifact } from "./artifact";
-import { chiSquareSurvival, log10ChiSquareSurvival } from "./distributions";
 import { checkRawValue, transformInto } from "./features";
 import { fromRows } from "./linalg";
 import { logDensityAt } from "./log-density";
 import { kernelScratch, mahalanobisSqPacked, packQuadraticForm, type PackedQuadraticForm } from "./quadratic-form";
 import { conditionalReasons } from "./reasons";
+import { tailFigures } from "./tail-law";
 import type { FittedFeature, Reason, ScoreResult, SegmentModel } from "./types";
 
 /** A model ready to score: every segment's mean and precision as Float64Arrays, built once. */
@@ -26,7 +27,10 @@ export interface CompiledModel {
   segments: Map<string, SegmentModel>;
   pooled: SegmentModel;
   cutoffMahalanobisSq: number;
+  /** P(χ²ₙ > cutoff), as stored in the artifact. */
   cutoffTailProbability: number;
+  /** The cutoff's tail probability under each segment's own law, by segment key. */
+  cutoffTailBySegment: Map<string, number>;
 }
 
 /**
@@ -55,8 +59,11 @@ export function compileModel(artifact: ModelArtifact): CompiledModel {
       precision: fromRows(s.precision),
       logDet: s.logDet,
       logNormalizer: logDensityAt(n, s.logDet, 0),
+      ...(s.tailLaw === undefined ? {} : { tailLaw: s.tailLaw }),
     });
   }
+  const cutoffTailBySegment = new Map<string, number>();
+  for (const [key, seg] of segments) cutoffTailBySegment.set(key, tailFigures(artifact.cutoff.mahalanobisSq, seg).tailProbability);
   const pooled = segments.get("*");
   if (pooled === undefined) throw new RangeError('segments["*"]: the pooled segment is required (parse the artifact with parseArtifact first)');
   return {
@@ -70,6 +77,7 @@ export function compileModel(artifact: ModelArtifact): CompiledModel {
     pooled,
     cutoffMahalanobisSq: artifact.cutoff.mahalanobisSq,
     cutoffTailProbability: artifact.cutoff.tailProbability,
+    cutoffTailBySegment,
   };
 }
 
@@ -259,15 +267,12 @@ export class Scorer {
   }
 
   private result(d2: number, seg: SegmentModel): ScoreResult {
-    const tail = chiSquareSurvival(d2, seg.n);
-    // While the tail is a normal double its log is exact enough; past that (about 1e-300) the log
-    // comes from the incomplete gamma in log space, so only the rare far-out payment pays twice.
-    const log10Tail = tail > 1e-300 ? Math.log10(tail) : log10ChiSquareSurvival(d2, seg.n);
+    const tail = tailFigures(d2, seg);
     return {
       logDensity: seg.logNormalizer - 0.5 * d2,
       mahalanobisSq: d2,
-      tailProbability: tail,
-      log10TailProbability: log10Tail,
+      tailProbability: tail.tailProbability,
+      log10TailProbability: tail.log10TailProbability,
       flagged: d2 > this.model.cutoffMahalanobisSq,
       segment: seg.key,
     };

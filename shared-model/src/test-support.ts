@@ -10,6 +10,8 @@ import { buildSegment, sealArtifact } from "./artifact";
 import type { ModelArtifact, UnsealedArtifact, ArtifactSegment } from "./artifact";
 import { chiSquareSurvival } from "./distributions";
 import { columnsOf } from "./features";
+import type { FitRow, RowSource } from "./fit";
+import type { SeededStream } from "./seeded-stream";
 import type { CovarianceShape, EstimatorDetails, FittedFeature, TransformKind } from "./types";
 
 /** How deep the randomized and long tests go: `quick` for `npm test`, `thorough` in CI. */
@@ -173,4 +175,28 @@ export function expectRelativelyClose(actual: ArrayLike<number>, wanted: readonl
     }
   }
   expect(worst, `${label}: worst relative difference ${worst} at [${at}]: got ${actual[at]}, expected ${wanted[at]}`).toBeLessThanOrEqual(tolerance);
+}
+
+/**
+ * m rows of a correlated 8-column Gaussian (x = L·z, L fixed lower-triangular with 1 on the diagonal
+ * and 0.3 below), for the out-of-sample simulations of the cutoff and tail laws.
+ */
+export function correlatedGaussianRows(stream: SeededStream, m: number, n = 8): Float64Array[] {
+  return Array.from({ length: m }, () => {
+    const z = Array.from({ length: n }, () => stream.normal());
+    return Float64Array.from({ length: n }, (_, i) => {
+      let v = 0;
+      for (let k = 0; k <= i; k++) v += (k === i ? 1 : 0.3) * z[k];
+      return v;
+    });
+  });
+}
+
+/** A fit's row source over rows held in memory, all in the pooled segment. */
+export function rowSource(rows: readonly Float64Array[]): RowSource {
+  return {
+    async *pass(): AsyncGenerator<FitRow> {
+      for (const values of rows) yield { values, segment: null };
+    },
+  };
 }

@@ -4,6 +4,7 @@
  *
  * Vectors and matrices are row-major `Float64Array`s at run time and `number[]` in JSON.
  */
+import type { TailLaw } from "./tail-law";
 
 /** How a raw feature is mapped before the Gaussian is fitted. */
 export type TransformKind = "none" | "log" | "log1p" | "yeo-johnson" | "cyclic-hour";
@@ -96,6 +97,8 @@ export interface SegmentModel {
   logDet: number;
   /** −½ (n ln 2π + ln|Σ|): add −½ d² to get the log-density. */
   logNormalizer: number;
+  /** The law its tail probabilities read (`tail-law.ts`); absent means χ². */
+  tailLaw?: TailLaw;
 }
 
 /** Outcome of scoring one payment. */
@@ -104,10 +107,13 @@ export interface ScoreResult {
   logDensity: number;
   /** Squared Mahalanobis distance d² = (x−μ)ᵀ Σ⁻¹ (x−μ). */
   mahalanobisSq: number;
-  /** P(χ²ₙ > d²): calibrated, comparable across segments. */
+  /**
+   * P(D > d²) under the segment's tail law: P(χ²ₙ > d²), or for a small segment whose cutoff read the
+   * predictive law, P(n(m + 1)/(m − n)·F(n, m − n) > d²) (`tail-law.ts`). Calibrated for new payments.
+   */
   tailProbability: number;
   /**
-   * log₁₀ P(χ²ₙ > d²), from the log of the incomplete gamma function: finite where
+   * log₁₀ of `tailProbability`, from the log of the incomplete gamma (or beta) function: finite where
    * `tailProbability` underflows to 0 (below about 1e-323), so sorts and "how rare" read it.
    */
   log10TailProbability: number;

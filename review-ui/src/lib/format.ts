@@ -41,7 +41,7 @@ export function formatCount(value: number): string {
 export const RAREST_SHOWN_TAIL = 1e-15;
 
 /**
- * A tail probability P(χ²ₙ > d²) as "1 in N" for small values (easier to weigh than 1.2e-7),
+ * A tail probability (P(χ²ₙ > d²), or a small segment's predictive law; shared-model/src/tail-law.ts) as "1 in N" for small values (easier to weigh than 1.2e-7),
  * capped at {@link RAREST_SHOWN_TAIL}.
  * @example formatTail(0.00021) // "1 in 4,800"; formatTail(2e-10) // "1 in 5.0 × 10⁹"; formatTail(4.4e-17) // "rarer than 1 in 10¹⁵"
  */

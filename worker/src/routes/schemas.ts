@@ -74,8 +74,14 @@ export const scoreAnswerSchema = z
     decision: z.enum(["review", "pass"]).describe("`review`: beyond the cutoff, sent to human review. isodense never declines."),
     logDensity: z.number().describe("Natural-log density under the segment's Gaussian."),
     mahalanobisSq: z.number().describe("Squared Mahalanobis distance d²."),
-    tailProbability: z.number().describe("P(χ²ₙ > d²), comparable across segments and models; 0 once it underflows a double."),
-    log10TailProbability: z.number().describe("log₁₀ P(χ²ₙ > d²) from the log of the incomplete gamma function: finite where `tailProbability` underflows; sort by this."),
+    tailProbability: z
+      .number()
+      .describe(
+        "P(D > d²) for a new payment, comparable across segments and models: P(χ²ₙ > d²), or for a small segment whose cutoff read the predictive law (the model's `tailLaw`), P(n(m + 1)/(m − n)·F(n, m − n) > d²); 0 once it underflows a double.",
+      ),
+    log10TailProbability: z
+      .number()
+      .describe("log₁₀ of `tailProbability` from the log of the incomplete gamma (or beta) function: finite where `tailProbability` underflows; sort by this."),
     cutoff: z.object({ mahalanobisSq: z.number(), tailProbability: z.number(), logDensity: z.number() }),
     modelVersion: z.string(),
     segment: z.string().describe("Segment key that scored the payment (`*` = pooled model)."),

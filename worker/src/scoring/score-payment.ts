@@ -140,7 +140,7 @@ export function scorePayment(snapshot: ModelSnapshot, payment: ValidPayment, aud
     log10TailProbability: result.log10TailProbability,
     cutoff: {
       mahalanobisSq: live.compiled.cutoffMahalanobisSq,
-      tailProbability: live.compiled.cutoffTailProbability,
+      tailProbability: live.compiled.cutoffTailBySegment.get(result.segment) ?? live.compiled.cutoffTailProbability,
       logDensity: cutoffLogDensity,
     },
     modelVersion: live.version,
