@@ -214,6 +214,29 @@ describe("conditionalReasons", () => {
     expect(clipped.standardizedResidual).toBe(unclipped.standardizedResidual);
   });
 
+  it("says the expected range lies below or above training when all of it is past one end, instead of clipping it to a point", () => {
+    // Invented: the same pair; training saw between 3 and 40 payments a day (min 3), and a long gap
+    // since the previous payment predicts fewer than that, so the whole range sits below the minimum.
+    const features = (observed: { min: number; max: number } | undefined): FittedFeature[] => [
+      { ...fitted("payments_24h", "log1p"), ...(observed ? { observed } : {}) },
+      fitted("hours_since_previous", "log1p"),
+    ];
+    const seg = segmentOf([0.2, 4.0], [0.25, -0.4, -0.4, 2.0]);
+    const raw = [0, 2000];
+    const x = Float64Array.of(Math.log1p(0), Math.log1p(2000));
+    const pick = (observed?: { min: number; max: number }) => conditionalReasons(seg, features(observed), raw, x, 2).find((r) => r.feature === "payments_24h")!;
+    const unclipped = pick();
+    expect(unclipped.expected.high).toBeLessThan(3);
+    const below = pick({ min: 3, max: 40 });
+    expect(below.expected).toEqual({ center: 3, low: 3, high: 3, outsideTraining: "below" });
+    // And above: a training maximum just under the range's low end (invented) puts all of it above.
+    expect(unclipped.expected.low).toBeGreaterThan(-1);
+    const above = pick({ min: -1, max: unclipped.expected.low - 1e-6 });
+    expect(above.expected.outsideTraining).toBe("above");
+    // A range that overlaps the training range is clipped and carries no side.
+    expect(pick({ min: 0, max: 40 }).expected.outsideTraining).toBeUndefined();
+  });
+
   it("uses the 2×2 conditional block for a cyclic hour, with the hour of the conditional mean as centre", () => {
     // amount (log) and hour of day (sin, cos): late-night payments tend to be larger.
     const features = [fitted("amount", "log"), fitted("hour", "cyclic-hour")];

@@ -112,6 +112,24 @@ function wrapHour(h: number): number {
 }
 
 /**
+ * A single-column expected range in raw units, clipped to the feature's training range when one
+ * is stored; when the whole range lies past one end of it, clipping would leave a point
+ * ("0.008–0.008"), so the range says on which side it lies instead.
+ */
+function expectedRange(f: FittedFeature, mean: number, sd: number): Reason["expected"] {
+  const center = inverseTransform(f, mean);
+  const low = inverseTransform(f, mean - Z_95 * sd);
+  const high = inverseTransform(f, mean + Z_95 * sd);
+  const range = f.observed;
+  if (range === undefined) return { center, low, high };
+  const clip = (value: number) => (value < range.min ? range.min : value > range.max ? range.max : value);
+  const clipped: Reason["expected"] = { center: clip(center), low: clip(low), high: clip(high) };
+  if (high < range.min) clipped.outsideTraining = "below";
+  else if (low > range.max) clipped.outsideTraining = "above";
+  return clipped;
+}
+
+/**
  * Per-feature reasons for a payment under one segment's Gaussian, rarest first by the tail
  * probability of the residual — P(χ²₁ > r²) for a column, P(χ²₂ > d²) for a cyclic pair, so one-
  * and two-column features are ranked on the same scale (ties keep feature order) — the first
@@ -131,13 +149,6 @@ function wrapHour(h: number): number {
  * @example conditionalReasons(seg, features, [1240, 2], x)[0]
  *   // { feature: "amount", actual: 1240, expected: { center: 96, low: 60, high: 140 }, standardizedResidual: 6.2 }
  */
-/** Clamps a raw value into the feature's training range; the identity when none is stored. */
-function observedClip(f: FittedFeature): (value: number) => number {
-  const range = f.observed;
-  if (range === undefined) return (value) => value;
-  return (value) => (value < range.min ? range.min : value > range.max ? range.max : value);
-}
-
 export function conditionalReasons(seg: SegmentModel, features: readonly FittedFeature[], raw: ArrayLike<number>, x: Float64Array, top = 3): Reason[] {
   if (!Number.isInteger(top) || top < 0) throw new RangeError(`top must be a non-negative integer. Actual: ${top}.`);
   if (raw.length !== features.length) {
@@ -167,15 +178,10 @@ export function conditionalReasons(seg: SegmentModel, features: readonly FittedF
       c += 2;
     } else {
       const { mean, sd } = conditionalColumn(seg, x, c);
-      const clip = observedClip(f);
       reasons.push({
         feature: f.name,
         actual: raw[i],
-        expected: {
-          center: clip(inverseTransform(f, mean)),
-          low: clip(inverseTransform(f, mean - Z_95 * sd)),
-          high: clip(inverseTransform(f, mean + Z_95 * sd)),
-        },
+        expected: expectedRange(f, mean, sd),
         standardizedResidual: (x[c] - mean) / sd,
       });
       columnsOf.push(1);

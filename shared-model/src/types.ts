@@ -128,8 +128,12 @@ export interface Reason {
   feature: string;
   /** The raw value received. */
   actual: number;
-  /** Expected value and central 95 % range given all the other features, in raw units. */
-  expected: { center: number; low: number; high: number };
+  /**
+   * Expected value and central 95 % range given all the other features, in raw units.
+   * `outsideTraining` says the whole range lies below or above every raw value seen in training
+   * (then `low`, `center` and `high` are all clipped to that end, and the range says nothing more).
+   */
+  expected: { center: number; low: number; high: number; outsideTraining?: "below" | "above" };
   /**
    * Standardized conditional residual (x_j − E[x_j | rest]) / sd(x_j | rest) in model units;
    * for a cyclic pair, the non-negative root of the pair's conditional d².

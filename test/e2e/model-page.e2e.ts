@@ -127,7 +127,7 @@ describe("the model page in Chromium", () => {
     // The slider moves the same figures.
     await page.getByTestId("cutoff-slider").fill(String(Math.round(live * 0.8)));
     await until(async () => (await text("expected-flags")) !== lower.flags, "the slider to move the figures");
-    await page.getByTestId("pr-considered").waitFor();
+    await page.getByTestId("pr-trial").waitFor();
     // The whole page in one viewport, so the fixed status line sits at the bottom, not mid-page.
     const height = await page.evaluate(() => document.documentElement.scrollHeight);
     await page.setViewportSize({ width: 1360, height });
@@ -137,7 +137,7 @@ describe("the model page in Chromium", () => {
     expect(await text("version-id")).toBe(liveVersion);
   });
 
-  it("publishes the considered cutoff after a confirmation step, then rolls back to the previous version", async () => {
+  it("publishes the trial cutoff after a confirmation step, then rolls back to the previous version", async () => {
     await page.getByTestId("publish-start").click();
     await page.getByTestId("publish-reason").fill("catch more of the weekend card testing");
     await page.getByTestId("publish-confirm").click();

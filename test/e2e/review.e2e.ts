@@ -58,7 +58,8 @@ async function until(check: () => Promise<boolean>, what: string, timeoutMs = 10
 
 const text = (testId: string, nth = 0) => page.getByTestId(testId).nth(nth).innerText();
 const count = async (state: string) => Number((await text(`count-${state}`)).replace(/,/g, ""));
-const rowStanding = (index: number) => page.getByTestId("queue-row").nth(index).getByTestId("standing").innerText();
+/** The state badge of a queue line: "Open", "Claimed · by you until 14:05", "Decided · fraud by you". */
+const rowBadge = (index: number) => page.getByTestId("queue-row").nth(index).getByTestId("state-badge").innerText();
 
 async function api<T>(path: string, token: string, body?: unknown): Promise<{ status: number; body: T }> {
   const res = await fetch(`${stack.base}${path}`, {
@@ -72,6 +73,7 @@ async function api<T>(path: string, token: string, body?: unknown): Promise<{ st
 describe("the review app in Chromium", () => {
   it("refuses a wrong credential, then signs the analyst in and shows who is signed in", async () => {
     await page.goto(stack.base);
+    expect(await text("sign-in-record")).toContain("recorded under your name");
     await page.getByLabel("Personal credential").fill("not-a-real-credential-000000");
     await page.getByRole("button", { name: "Sign in" }).click();
     await until(async () => (await page.getByRole("alert").count()) > 0, "the refusal");
@@ -80,21 +82,34 @@ describe("the review app in Chromium", () => {
     await page.getByLabel("Personal credential").fill(stack.tokens.analyst);
     await page.getByRole("button", { name: "Sign in" }).click();
     await page.getByTestId("signed-in-user").waitFor();
-    expect(await text("signed-in-user")).toBe("mara");
+    expect(await text("signed-in-user")).toBe("rosa");
     await page.getByTestId("queue-row").first().waitFor();
     expect(await count("open")).toBeGreaterThan(10);
     expect(await page.getByTestId("caution").first().innerText()).toContain("A score is evidence, not a verdict.");
+  });
+
+  it("names the lists, the columns and the reasons in one vocabulary: Open, Claimed, Decided; Reason in queue; Status", async () => {
+    const tabs = await Promise.all(["open", "claimed", "decided"].map(async (state) => (await text(`state-${state}`)).replace(/[\d,\s]+$/, "")));
+    expect(tabs).toEqual(["Open", "Claimed", "Decided"]);
+    const headers = await page.getByTestId("queue-table").locator("thead th").allInnerTexts();
+    expect(headers.map((h) => h.replace(/[^A-Za-z ]/g, "").trim())).toEqual(["Priority", "Payment", "How rare", "Amount", "Segment", "Time in queue", "Reason in queue", "Status"]);
+    // The filter on that column has the same label and the same values as the column shows.
+    const filter = page.getByLabel("Reason in queue");
+    expect(await filter.locator("option").allInnerTexts()).toEqual(["any", "beyond the cutoff", "audit draw"]);
+    const shown = new Set(await page.getByTestId("queue-row").locator("td:nth-child(7)").allInnerTexts());
+    for (const value of shown) expect(["beyond the cutoff", "audit draw"]).toContain(value);
+    expect(new Set(await page.getByTestId("state-badge").allInnerTexts())).toEqual(new Set(["Open"]));
+    expect(await page.getByRole("button", { name: /Keyboard shortcuts/ }).count()).toBe(1);
   });
 
   it("claims and confirms fraud with the keyboard, and the counts and the day's figures move", async () => {
     const open = await count("open");
     const decidedToday = Number(await text("decided-today"));
     await page.keyboard.press("c");
-    await until(async () => (await rowStanding(0)).startsWith("Yours"), "the claim");
-    expect(await text("status-line")).toContain("is yours until");
+    await until(async () => (await rowBadge(0)).startsWith("Claimed · by you until"), "the claim");
+    expect(await text("status-line")).toContain("is claimed by you until");
     await page.keyboard.press("f");
-    await until(async () => (await rowStanding(0)).startsWith("Fraud"), "the decision");
-    expect(await rowStanding(0)).toContain("mara");
+    await until(async () => (await rowBadge(0)) === "Decided · fraud by you", "the decision");
     await until(async () => (await count("open")) === open - 1 && (await count("decided")) === 1, "the counts");
     await until(async () => Number(await text("decided-today")) === decidedToday + 1, "the day's figures");
     // The selection moved on to the next payment.
@@ -104,10 +119,11 @@ describe("the review app in Chromium", () => {
   it("dismisses as legitimate with a note holding markup, which stays inert text", async () => {
     await page.keyboard.press("n");
     await page.getByTestId("note-dialog").waitFor();
+    expect(await text("note-caution")).toMatch(/Do not write card numbers, names, addresses/);
     await page.getByLabel(/Note for the audit trail/).fill(HOSTILE_NOTE);
     expect(await page.getByTestId("note-dialog").getByTestId("caution").innerText()).toContain("evidence, not a verdict");
     await page.getByRole("button", { name: "Dismiss as legitimate" }).click();
-    await until(async () => (await rowStanding(1)).startsWith("Legitimate"), "the dismissal");
+    await until(async () => (await rowBadge(1)) === "Decided · legitimate by you", "the dismissal");
 
     await page.keyboard.press("k");
     await page.keyboard.press("Enter");
@@ -116,7 +132,8 @@ describe("the review app in Chromium", () => {
     expect(await page.getByTestId("audit-note").last().innerText()).toBe(HOSTILE_NOTE);
     expect(await page.locator("[data-testid=decision-note] img, [data-testid=audit-note] img, [data-testid=decision-note] script").count()).toBe(0);
     expect(await page.evaluate(() => (window as unknown as { __injected?: string }).__injected)).toBeUndefined();
-    expect(await text("decision-state")).toContain("Decided legitimate by mara");
+    expect(await text("decision-state")).toContain("Decided legitimate by rosa");
+    expect(await text("state-badge")).toBe("Decided · legitimate by you");
   });
 
   it("shows the evidence: plain-words reasons, residual bars, the pair plot and the audit trail", async () => {
@@ -126,7 +143,17 @@ describe("the review app in Chromium", () => {
     await page.keyboard.press("Enter");
     await page.getByTestId("evidence").waitFor();
     const evidence = await text("evidence");
-    expect(evidence).toMatch(/— expected .+(–| to ).+ given the other features/);
+    expect(evidence).toMatch(/— expected .+ given the other features/);
+    expect(evidence).toMatch(/\d\.\d SD from expected/);
+    expect(evidence).not.toMatch(/expected (\S+)–\1 given/);
+    // The modeller's figures wait in a closed details block; the reasons and how rare come first.
+    expect(await text("how-rare")).toMatch(/^(1 in |rarer than|\d)/);
+    const details = page.getByTestId("model-details");
+    expect(await details.evaluate((el) => (el as HTMLDetailsElement).open)).toBe(false);
+    expect(await details.getByText("Log-density").isVisible()).toBe(false);
+    await details.locator("summary").click();
+    expect(await details.getByText("Log-density").isVisible()).toBe(true);
+    await details.locator("summary").click();
     await page.getByTestId("residual-chart").waitFor();
     expect(await page.getByTestId("residual-chart").locator("rect.bar").count()).toBe(9);
     await page.getByTestId("pair-chart").waitFor();
@@ -145,43 +172,46 @@ describe("the review app in Chromium", () => {
   it("names the colleague who took a payment since the list was loaded when the analyst tries to take it", async () => {
     await page.keyboard.press("Escape");
     await page.getByTestId("queue-table").waitFor();
-    const index = await page.getByTestId("queue-row").evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=standing]")?.textContent?.trim() === "Waiting"));
+    const index = await page
+      .getByTestId("queue-row")
+      .evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=state-badge]")?.getAttribute("data-state") === "open"));
     const id = Number(await page.getByTestId("queue-row").nth(index).getAttribute("data-item-id"));
     // A colleague takes it through the API while this list is on screen.
     expect((await api(`/v1/review/items/${id}/claim`, stack.tokens.analyst2, {})).status).toBe(200);
     await page.getByTestId("queue-row").nth(index).click();
     await page.keyboard.press("c");
-    await until(async () => (await text("status-line")).includes("teodor"), "the refusal naming the holder");
-    expect(await text("status-line")).toMatch(/taken by teodor until/);
+    await until(async () => (await text("status-line")).includes("tomas"), "the refusal naming the holder");
+    expect(await text("status-line")).toMatch(/claimed by tomas until/);
     expect(await page.getByTestId("status-line").getAttribute("class")).toContain("error");
-    await until(async () => (await rowStanding(index)).startsWith("Taken by teodor"), "the line showing the holder");
-    // The Taken list shows it too.
+    await until(async () => (await rowBadge(index)).startsWith("Claimed · by tomas until"), "the line showing the holder");
+    // The Claimed list shows it too.
     await page.getByTestId("state-claimed").click();
-    await until(async () => (await page.getByTestId("queue-row").count()) === 1, "the taken list");
-    expect(await rowStanding(0)).toContain("Taken by teodor");
+    await until(async () => (await page.getByTestId("queue-row").count()) === 1, "the claimed list");
+    expect(await rowBadge(0)).toContain("Claimed · by tomas");
     await page.getByTestId("state-open").click();
     await until(async () => (await page.getByTestId("queue-row").count()) > 1, "the open list");
   });
 
   it("undoes a decision with u", async () => {
-    const index = await page.getByTestId("queue-row").evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=standing]")?.textContent?.trim() === "Waiting"));
+    const index = await page
+      .getByTestId("queue-row")
+      .evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=state-badge]")?.getAttribute("data-state") === "open"));
     await page.getByTestId("queue-row").nth(index).click();
     await page.keyboard.press("l");
-    await until(async () => (await rowStanding(index)).startsWith("Legitimate"), "the dismissal");
+    await until(async () => (await rowBadge(index)).startsWith("Decided · legitimate"), "the dismissal");
     await page.keyboard.press("u");
-    await until(async () => (await rowStanding(index)).startsWith("Yours"), "the undo");
+    await until(async () => (await rowBadge(index)).startsWith("Claimed · by you"), "the undo");
     expect(await text("status-line")).toContain("undone");
     await page.keyboard.press("r");
-    await until(async () => (await rowStanding(index)) === "Waiting", "the release");
+    await until(async () => (await rowBadge(index)) === "Open", "the release");
   });
 
-  it("keeps the decisions after a reload, and the settled list shows them", async () => {
+  it("keeps the decisions after a reload, and the Decided list shows them", async () => {
     await page.reload();
     await page.getByTestId("signed-in-user").waitFor();
     await page.getByTestId("state-decided").click();
-    await until(async () => (await page.getByTestId("queue-row").count()) === 2, "the settled list");
-    const standings = await page.getByTestId("standing").allInnerTexts();
-    expect(standings.map((s) => (s.startsWith("Fraud") ? "Fraud" : s.startsWith("Legitimate") ? "Legitimate" : s)).sort()).toEqual(["Fraud", "Legitimate"]);
+    await until(async () => (await page.getByTestId("queue-row").count()) === 2, "the decided list");
+    expect((await page.getByTestId("state-badge").allInnerTexts()).sort()).toEqual(["Decided · fraud by you", "Decided · legitimate by you"]);
     await page.getByTestId("state-open").click();
     await until(async () => (await page.getByTestId("queue-row").first().getAttribute("data-item-id")) !== null, "the open list");
   });
@@ -190,6 +220,7 @@ describe("the review app in Chromium", () => {
     await page.keyboard.press("?");
     await page.getByTestId("help-overlay").waitFor({ state: "visible" });
     const help = await text("help-overlay");
+    expect(help).toMatch(/^Keyboard shortcuts/);
     for (const word of ["Next payment", "Confirm as fraud", "Dismiss as legitimate", "Write a note", "Undo"]) expect(help).toContain(word);
     await page.keyboard.press("Escape");
     await page.getByTestId("help-overlay").waitFor({ state: "hidden" });

@@ -22,9 +22,9 @@ const QUIET = { WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "fa
 export interface StackTokens {
   flow: string;
   admin: string;
-  /** Analyst "mara". */
+  /** Analyst "rosa" (the demo users of .dev.vars.example, so screenshots and README agree). */
   analyst: string;
-  /** Analyst "teodor". */
+  /** Analyst "tomas". */
   analyst2: string;
 }
 
@@ -87,7 +87,7 @@ export async function startStack(
   if (prepare) await prepare(join(stateDir, "state"));
 
   const t = (who: string) => `e2e-${who}-${randomBytes(18).toString("hex")}`;
-  const tokens: StackTokens = { flow: t("flow"), admin: t("admin"), analyst: t("mara"), analyst2: t("teodor") };
+  const tokens: StackTokens = { flow: t("flow"), admin: t("admin"), analyst: t("rosa"), analyst2: t("tomas") };
   return launchDev(stateDir, tokens, vars);
 }
 
@@ -99,8 +99,8 @@ export async function launchDev(stateDir: string, tokens: StackTokens, vars: Rec
   const envFile = join(stateDir, "dev.env");
   const lines = {
     FLOW_CREDENTIALS: `checkout:${tokens.flow}`,
-    ANALYST_CREDENTIALS: `mara:${tokens.analyst},teodor:${tokens.analyst2}`,
-    ADMIN_CREDENTIALS: `ops-lind:${tokens.admin}`,
+    ANALYST_CREDENTIALS: `rosa:${tokens.analyst},tomas:${tokens.analyst2}`,
+    ADMIN_CREDENTIALS: `ops-ana:${tokens.admin}`,
     MODEL_REFRESH_SECONDS: "0",
     ...vars,
   };

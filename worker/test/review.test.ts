@@ -199,7 +199,7 @@ describe("claims", () => {
       expect(loser.body.error).toBe("claimed-by-another");
       expect(loser.body.claim).toEqual(winner.body.item.claim);
       expect(loser.body.problems[0]).toMatchObject({ field: "id" });
-      expect(loser.body.problems[0].rule).toContain(`is taken by ${holder} until ${winner.body.item.claim!.until}`);
+      expect(loser.body.problems[0].rule).toContain(`is claimed by ${holder} until ${winner.body.item.claim!.until}`);
       const trail = await events(id);
       expect(trail.filter((e) => e.action === "claim")).toHaveLength(1);
       expect(trail[0].actor).toBe(holder);

@@ -127,7 +127,7 @@ export class Desk {
     return this.act(
       id,
       () => api.claimItem(id),
-      (row) => `Payment ${row.transactionId} is yours until ${clock(row.claim?.until)}.`,
+      (row) => `Payment ${row.transactionId} is claimed by you until ${clock(row.claim?.until)}.`,
     );
   }
 
@@ -135,11 +135,11 @@ export class Desk {
     return this.act(
       id,
       () => api.releaseItem(id),
-      (row) => `Payment ${row.transactionId} is back in the queue.`,
+      (row) => `Payment ${row.transactionId} is released and open again.`,
     );
   }
 
-  /** Records a decision, taking the item first when the analyst does not hold a live claim on it. */
+  /** Records a decision, claiming the item first when the analyst does not hold a live claim on it. */
   decide(id: number, outcome: Outcome, note?: string): Promise<void> {
     return this.act(
       id,

@@ -1,10 +1,25 @@
 import { describe, expect, it } from "vitest";
-import { describeReason, formatAge, formatLog10Tail, formatTail, formatValue } from "./format";
+import { describeReason, formatAge, formatDistanceFromExpected, formatLog10Tail, formatTail, formatValue } from "./format";
 
 describe("plain-words formatting", () => {
   it("words a reason the way an analyst reads it", () => {
     const text = describeReason({ feature: "amount", actual: 1240, expected: { center: 95, low: 60.4, high: 140.2 }, standardizedResidual: 6.2 });
     expect(text).toBe("amount 1,240 — expected 60.4–140 given the other features");
+  });
+
+  it("says a range lies below or above anything seen in training instead of showing it clipped to a point", () => {
+    const reason = (outsideTraining?: "below" | "above") =>
+      describeReason({ feature: "shippingShare", actual: 0.41, expected: { center: 0.008, low: 0.008, high: 0.008, outsideTraining }, standardizedResidual: -4.2 });
+    expect(reason("below")).toBe("shippingShare 0.41 — expected below anything seen in training given the other features");
+    expect(reason("above")).toBe("shippingShare 0.41 — expected above anything seen in training given the other features");
+    // Stored before the side was kept: no "0.008–0.008".
+    expect(reason()).toBe("shippingShare 0.41 — expected at the edge of what training saw (0.008) given the other features");
+  });
+
+  it("gives the distance from the expected value in standard deviations, whichever side it lies", () => {
+    expect(formatDistanceFromExpected(5.43)).toBe("5.4 SD from expected");
+    expect(formatDistanceFromExpected(-5.43)).toBe("5.4 SD from expected");
+    expect(formatDistanceFromExpected(null)).toBe("");
   });
 
   it("words a range reaching below zero with 'to' rather than a dash", () => {

@@ -99,8 +99,24 @@ export function formatAge(iso: string, now: number = Date.now()): string {
  * The range is the central 95 % of the feature given all the others, in raw units.
  */
 export function describeReason(reason: Reason): string {
-  const { low, high } = reason.expected;
-  return `${reason.feature} ${formatValue(reason.actual)} — expected ${describeRange(low, high)} given the other features`;
+  const { low, high, outsideTraining } = reason.expected;
+  const expected = outsideTraining
+    ? `expected ${outsideTraining} anything seen in training`
+    : low === high && Number.isFinite(low)
+      ? // Stored before the scorer said which side: a range clipped to one end of the training data.
+        `expected at the edge of what training saw (${formatValue(low)})`
+      : `expected ${describeRange(low, high)}`;
+  return `${reason.feature} ${formatValue(reason.actual)} — ${expected} given the other features`;
+}
+
+/**
+ * How far a value lies from its expected value given the other features, in conditional standard
+ * deviations (the size of the standardized residual; the reason's words say which side).
+ * @example formatDistanceFromExpected(-5.43) // "5.4 SD from expected"
+ */
+export function formatDistanceFromExpected(standardizedResidual: number | null): string {
+  if (standardizedResidual === null || !Number.isFinite(standardizedResidual)) return "";
+  return `${Math.abs(standardizedResidual).toFixed(1)} SD from expected`;
 }
 
 /**

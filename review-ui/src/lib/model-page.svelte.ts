@@ -1,5 +1,5 @@
 /**
- * State of the model page: what the insights API returned, the cutoff being considered and its
+ * State of the model page: what the insights API returned, the trial cutoff and its
  * figures (recomputed in the browser on every move), and the two admin actions.
  */
 import type { OperatingTable } from "../../../shared-model/src/tuning";

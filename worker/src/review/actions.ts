@@ -60,15 +60,17 @@ async function change(
 
 /**
  * Takes an item for CLAIM_TTL_MS (15 min): allowed when nobody holds a live claim on it, or the
- * caller does (a renewal). Decided items can be claimed too, to change the decision.
+ * caller does (a renewal). Decided items can be claimed too, to change the decision, unless
+ * `undecidedOnly` (deciding several together never changes an earlier decision): then a decided
+ * item is refused with 409 `already-decided`.
  */
-export async function claimItem(env: Pick<Env, "DB">, id: number, actor: Actor): Promise<ActionResult> {
+export async function claimItem(env: Pick<Env, "DB">, id: number, actor: Actor, undecidedOnly = false): Promise<ActionResult> {
   const atIso = new Date(actor.nowMs).toISOString();
   const { changed, row } = await change(
     env,
     id,
     actor,
-    "item_id = ?1 AND (claimed_by IS NULL OR claim_expires_ms <= ?2 OR claimed_by = ?3)",
+    `item_id = ?1 AND (claimed_by IS NULL OR claim_expires_ms <= ?2 OR claimed_by = ?3)${undecidedOnly ? " AND decided = 0" : ""}`,
     "SELECT item_id, ?4, ?3, 'claim', NULL, NULL, NULL, model_version",
     "claimed_by = ?3, claim_expires_ms = ?5",
     [atIso, actor.nowMs + CLAIM_TTL_MS],
@@ -76,7 +78,19 @@ export async function claimItem(env: Pick<Env, "DB">, id: number, actor: Actor):
     "NOT coalesce(claimed_by = ?3 AND claim_expires_ms > ?2, 0)",
   );
   if (changed && row) return { ok: true, row };
+  if (undecidedOnly && row?.decided === 1 && !LIVE_CLAIM_BY_OTHER(row, actor)) return alreadyDecided(id, row);
   return refusal(id, row, actor, "claim");
+}
+
+/** The 409 for an item that was decided before the caller got to it (never overwritten unasked). */
+export function alreadyDecided(id: number, row: StatusRow): ActionResult & { ok: false } {
+  const when = row.decided_ms === null ? "" : ` at ${new Date(row.decided_ms).toISOString()}`;
+  return {
+    ok: false,
+    status: 409,
+    error: "already-decided",
+    problems: [{ field: "id", rule: `item ${id} was already decided ${row.outcome} by ${row.decided_by}${when}; open it on its own to change that decision` }],
+  };
 }
 
 /** Hands a claimed item back. The holder may release it; an admin may release anyone's claim. */
@@ -187,12 +201,12 @@ function refusal(id: number, row: StatusRow | null, actor: Actor, action: "claim
   if (!row) return { ok: false, status: 404, error: "not-found", problems: [{ field: "id", rule: `no review item has id ${id}` }] };
   if (LIVE_CLAIM_BY_OTHER(row, actor)) {
     const claim = { by: row.claimed_by!, until: new Date(row.claim_expires_ms!).toISOString() };
-    const verb = { claim: "take", release: "release", decide: "decide", undo: "undo a decision on" }[action];
+    const verb = { claim: "claim", release: "release", decide: "decide", undo: "undo a decision on" }[action];
     return {
       ok: false,
       status: 409,
       error: "claimed-by-another",
-      problems: [{ field: "id", rule: `is taken by ${claim.by} until ${claim.until}; you cannot ${verb} it before then unless they hand it back` }],
+      problems: [{ field: "id", rule: `is claimed by ${claim.by} until ${claim.until}; you cannot ${verb} it before then unless they release it` }],
       claim,
     };
   }

@@ -8,7 +8,7 @@
  * - GET  /items/:id               the payment, its evidence, the account's recent flags, the newest audit events
  * - GET  /items/:id/events        older audit events, a page at a time (newest first, with the count)
  * - POST /items/:id/claim         take the item for 15 minutes (409 names the holder)
- * - POST /items/:id/release       hand it back
+ * - POST /items/:id/release       release your claim
  * - POST /items/:id/decision      { outcome: "fraud" | "legitimate", note? } under your live claim
  *                                  (429 past 10 decisions or undos of yours on the item within an hour)
  * - POST /items/:id/undo          revert your last decision within 5 minutes

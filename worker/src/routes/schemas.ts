@@ -60,7 +60,15 @@ const reasonSchema = z.object({
   feature: z.string(),
   actual: z.number().describe("The raw value received."),
   expected: z
-    .object({ center: z.number().nullable(), low: z.number().nullable(), high: z.number().nullable() })
+    .object({
+      center: z.number().nullable(),
+      low: z.number().nullable(),
+      high: z.number().nullable(),
+      outsideTraining: z
+        .enum(["below", "above"])
+        .optional()
+        .describe("Present when the whole range lies below or above every value seen in training; low, center and high are then that end."),
+    })
     .describe(
       "Expected value and central 95 % range given all the other features, in the feature's own units; null where the range has no finite bound in those units (the inverse transform runs to infinity).",
     ),

@@ -11,7 +11,7 @@ import type { Reason } from "../../../shared-model/src";
 export interface WireReason {
   feature: string;
   actual: number;
-  expected: { center: number | null; low: number | null; high: number | null };
+  expected: { center: number | null; low: number | null; high: number | null; outsideTraining?: "below" | "above" };
   standardizedResidual: number | null;
 }
 
@@ -26,7 +26,12 @@ export function toWireReasons(reasons: readonly Reason[]): WireReason[] {
   return reasons.map((r) => ({
     feature: r.feature,
     actual: r.actual,
-    expected: { center: finiteOrNull(r.expected.center), low: finiteOrNull(r.expected.low), high: finiteOrNull(r.expected.high) },
+    expected: {
+      center: finiteOrNull(r.expected.center),
+      low: finiteOrNull(r.expected.low),
+      high: finiteOrNull(r.expected.high),
+      ...(r.expected.outsideTraining ? { outsideTraining: r.expected.outsideTraining } : {}),
+    },
     standardizedResidual: finiteOrNull(r.standardizedResidual),
   }));
 }
