@@ -34,9 +34,25 @@ export class CsvError extends InputError {
   }
 }
 
+/** Labels of sources whose rows are numbered rather than located by physical line (databases, Parquet). */
+const rowNumberedSources = new Set<string>();
+
+/**
+ * Says that the `line` of errors about `label` is a 1-based row number (a database or Parquet
+ * source read as a table), so messages say "row N" instead of "line N".
+ */
+export function markRowNumbered(label: string): void {
+  rowNumberedSources.add(label);
+}
+
+/** How messages about `file` say where a record is: "line" for CSV files, "row" for database and Parquet sources. */
+export function recordWord(file: string): "line" | "row" {
+  return rowNumberedSources.has(file) ? "row" : "line";
+}
+
 function locate(file: string, line: number | null, column: string | null): string {
   let where = file;
-  if (line !== null) where += ` line ${line}`;
+  if (line !== null) where += ` ${recordWord(file)} ${line}`;
   if (column !== null) where += `, column '${column}'`;
   return where + ": ";
 }

@@ -10,7 +10,9 @@
 import type { FeatureDeclaration } from "../shared-model/src/types";
 import { checkRawValue } from "../shared-model/src/features";
 import { RecordDeriver, type RecordsSpec } from "./records";
-import { CsvError, numberCell, openCsvTable, requireColumn, type CsvReadOptions } from "./csv";
+import { CsvError, numberCell, recordWord, requireColumn, type CsvReadOptions } from "./csv";
+import type { DataSource } from "./sources/source";
+import { openSourceTable } from "./sources/table";
 import { labelCell } from "./ledger";
 import { restoreTextCell } from "../shared-model/src/spreadsheet-cell";
 
@@ -83,14 +85,15 @@ export interface LabelSet {
 }
 
 /**
- * Reads and validates a labelled set.
+ * Reads and validates a labelled set from a CSV path or any source (Parquet, a table or query of a
+ * DuckDB or SQLite database; rows are then named by number).
  * @throws CsvError naming file, line and column: a missing column (listing the header), a feature
  *   cell that is not a number or outside its transform's domain, an outcome that is empty or not
  *   fraud/legitimate/1/0, a weight that is not a number ≥ 1, an empty id, a repeated id
  * @example const labels = await readLabels("labels.csv", { features: artifact.features, segmentCandidates: ["channel", "segment"] });
  */
-export async function readLabels(path: string, request: LabelsRequest, options: CsvReadOptions = {}): Promise<LabelSet> {
-  const table = await openCsvTable(path, options);
+export async function readLabels(source: string | DataSource, request: LabelsRequest, options: CsvReadOptions = {}): Promise<LabelSet> {
+  const table = await openSourceTable(source, options);
   const file = table.file;
   const header = table.header.map(restoreTextCell);
   try {
@@ -157,7 +160,7 @@ export async function readLabels(path: string, request: LabelsRequest, options: 
           record.line,
           idColumn,
           "repeated id",
-          `${file} line ${record.line}: id '${id}' already appears on line ${earlier.line}` +
+          `${file} ${recordWord(file)} ${record.line}: id '${id}' already appears on ${recordWord(file)} ${earlier.line}` +
             (earlier.fraud === isFraud ? "; each payment may be labelled once (export one model version)" : " with the other outcome; resolve the conflict first"),
         );
       }

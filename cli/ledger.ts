@@ -9,8 +9,10 @@
 import type { FeatureDeclaration } from "../shared-model/src/types";
 import { checkRawValue } from "../shared-model/src/features";
 import type { FitRow, RowSource } from "../shared-model/src/fit";
-import { CsvError, numberCell, openCsvTable, requireColumn, type CsvReadOptions } from "./csv";
+import { CsvError, numberCell, requireColumn, type CsvReadOptions } from "./csv";
 import { RecordDeriver, type RecordsSpec } from "./records";
+import type { DataSource } from "./sources/source";
+import { openSourceTable } from "./sources/table";
 
 /** A review outcome: `fraud`, `legitimate`, or `null` when the row was never reviewed. */
 export type Label = "fraud" | "legitimate" | null;
@@ -154,10 +156,12 @@ export interface OpenLedger {
 /**
  * Opens a ledger and streams its validated rows. Every feature cell is parsed strictly and checked
  * against its transform's domain (e.g. `log` needs > 0).
- * @throws CsvError for any problem with the file, the header or a cell, naming file, line and column.
+ * @param source a CSV path, or any source (CSV, Parquet, a table or query of a DuckDB or SQLite database)
+ * @throws CsvError for any problem with the file, the header or a cell, naming file, line (row for
+ *   database and Parquet sources) and column.
  */
-export async function openLedger(path: string, request: LedgerRequest, options: CsvReadOptions = {}): Promise<OpenLedger> {
-  const table = await openCsvTable(path, options);
+export async function openLedger(source: string | DataSource, request: LedgerRequest, options: CsvReadOptions = {}): Promise<OpenLedger> {
+  const table = await openSourceTable(source, options);
   let layout: LedgerLayout;
   try {
     layout = resolveLedgerLayout(table.header, table.file, request);
@@ -227,7 +231,7 @@ export class LedgerRowSource implements RowSource {
   counts: LedgerCounts = { rowsRead: 0, rowsExcludedAsFraud: 0, rowsUsed: 0 };
 
   constructor(
-    private readonly path: string,
+    private readonly path: string | DataSource,
     private readonly request: LedgerRequest,
     private readonly options: CsvReadOptions = {},
   ) {}

@@ -10,7 +10,7 @@ import { emptyHistory, recordPayment, type AccountHistory } from "../shared-mode
 import { RecordInputError, recordColumns, recordFromFields, type PaymentRecord } from "../shared-model/src/records/record";
 import { recordSpecFromArtifact, type ArtifactRecordFields } from "../shared-model/src/records/artifact-spec";
 import { derivesFromRecords, type RecordMapping, type RecordSpec } from "../shared-model/src/records/spec";
-import { CsvError, requireColumn } from "./csv";
+import { CsvError, recordWord, requireColumn } from "./csv";
 
 /** A spec that derives from records. */
 export type RecordsSpec = RecordSpec & { record: RecordMapping };
@@ -81,7 +81,7 @@ export class RecordDeriver {
         this.file,
         line,
         mapping.time,
-        `${new Date(record.timeMs).toISOString()} is before line ${this.lastLine} (${new Date(this.lastTimeMs).toISOString()}): ` +
+        `${new Date(record.timeMs).toISOString()} is before ${recordWord(this.file)} ${this.lastLine} (${new Date(this.lastTimeMs).toISOString()}): ` +
           `a ledger of payment records must be in time order (sort it by ${mapping.time}, or run isodense derive with --sort)`,
       );
     }

@@ -1,5 +1,5 @@
 /**
- * `isodense derive <ledger.csv> --spec spec.json --out features.csv`: turns a ledger of payment
+ * `isodense derive <ledger> --spec spec.json --out features.csv`: turns a ledger of payment
  * records into feature rows with the spec's derivations, the same code the edge runs on every live
  * payment. Streams: memory grows with the number of accounts, not rows (except with --sort).
  */
@@ -7,7 +7,7 @@ import { resolve } from "node:path";
 import { derivesFromRecords } from "../../shared-model/src/records/spec";
 import type { PaymentRecord } from "../../shared-model/src/records/record";
 import { formatHelp, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
-import { formatCsvRow, openCsvTable, requireColumn } from "../csv";
+import { formatCsvRow, requireColumn } from "../csv";
 import { EXIT_OK, InputError, reportFailure } from "../errors";
 import { AtomicLineWriter, checkOutputPath } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
@@ -15,6 +15,8 @@ import { DEFAULT_LABEL_COLUMN } from "../ledger";
 import { formatCount } from "../numbers";
 import { createProgress } from "../progress";
 import { RecordDeriver } from "../records";
+import { SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
+import { openSourceTable } from "../sources/table";
 import { readSpec } from "./fit";
 
 /** Command line of `isodense derive`. */
@@ -23,8 +25,9 @@ export const deriveSpec: CommandSpec = {
   summary:
     "Derives every feature of a record spec from a ledger of payment records and writes one CSV row per payment: " +
     "the record's id, segment and time, the label when the ledger has one, then each feature's raw value (before transforms).",
-  positionals: [{ name: "ledger.csv", description: "payment records in time order, with a header row" }],
+  positionals: [{ name: "ledger", description: `payment records in time order: ${SOURCE_KINDS_TEXT}` }],
   options: [
+    ...SOURCE_OPTIONS,
     { name: "spec", kind: "string", valueName: "spec.json", description: 'record spec: {"record":{"id":…,"time":…,"account":…},"features":[…]} (required; docs/features.md)' },
     { name: "out", kind: "string", valueName: "features.csv", description: "where to write the feature rows (required)" },
     { name: "label-column", kind: "string", valueName: "column", description: "label column copied to the output", defaultText: "label if present" },
@@ -70,7 +73,7 @@ export async function deriveCommand(argv: string[], io: CommandIO = processIO())
     }
     await checkOutputPath(out, "--out");
 
-    const table = await openCsvTable(ledgerPath);
+    const table = await openSourceTable(sourceFromArgs(args, ledgerPath));
     const { file, header } = table;
     let deriver: RecordDeriver;
     let labelIndex: number;

@@ -59,7 +59,7 @@ describe("isodense drift", () => {
   it("explains itself with --help and names a missing model file", async () => {
     const help = await isodense(["drift", "--help"]);
     expect(help.code).toBe(0);
-    expect(help.out).toContain("usage: isodense drift <model.json> <ledger.csv>");
+    expect(help.out).toContain("usage: isodense drift <model.json> <ledger>");
     const missing = await isodense(["drift", join(dir, "none.json"), join(dir, "ledger.csv")]);
     expect(missing.code).toBe(2);
     expect(missing.err).toContain("model file not found");

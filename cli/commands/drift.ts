@@ -1,5 +1,5 @@
 /**
- * `isodense drift <model.json> <ledger.csv> [--out report.json]`: the weekly report's drift table
+ * `isodense drift <model.json> <ledger> [--out report.json]`: the weekly report's drift table
  * for a file of payments. Each payment is bucketed on the model's reference edges exactly as the
  * scoring service counts traffic, and the table is computed by the same function as the weekly
  * report (`driftEntriesFor`), against the training share of each bucket. Run it on a refit's own
@@ -15,6 +15,7 @@ import { EXIT_OK, reportFailure } from "../errors";
 import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { openLedger } from "../ledger";
+import { SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
 import { recordsOfModel } from "../records";
 import { formatCount, formatPercent } from "../numbers";
 import { createProgress } from "../progress";
@@ -29,9 +30,10 @@ export const driftSpec: CommandSpec = {
     "from 0.25 shifted), and the flag rate against the model's expected rate. The same computation as the weekly report.",
   positionals: [
     { name: "model.json", description: "model file written by isodense fit, tune or refit" },
-    { name: "ledger.csv", description: "payments with the model's feature columns" },
+    { name: "ledger", description: `payments with the model's feature columns: ${SOURCE_KINDS_TEXT}` },
   ],
   options: [
+    ...SOURCE_OPTIONS,
     { name: "out", kind: "string", valueName: "report.json", description: "also write the report as JSON" },
     {
       name: "label-column",
@@ -79,7 +81,8 @@ export async function driftCommand(argv: string[], io: CommandIO = processIO()):
     }
     const artifact = await loadArtifact(modelPath);
     const scorer = new Scorer(compileModel(artifact));
-    const ledger = await openLedger(ledgerPath, {
+    const source = sourceFromArgs(args, ledgerPath);
+    const ledger = await openLedger(source, {
       features: artifact.features,
       labelColumn: stringOption(args, "label-column"),
       segmentColumn: artifact.segmentBy,
@@ -110,7 +113,7 @@ export async function driftCommand(argv: string[], io: CommandIO = processIO()):
     const expected = artifact.cutoff.flagRate;
     const report: DriftReport = {
       modelVersion: artifact.version,
-      ledger: ledgerPath,
+      ledger: source.kind === "csv" ? ledgerPath : source.label,
       payments,
       rowsLeftOutAsFraud: leftOut,
       baseline: artifact.reference.columnShares !== undefined ? "training shares" : "equal shares (the model file stores no training shares)",

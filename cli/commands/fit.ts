@@ -1,5 +1,5 @@
 /**
- * `isodense fit <ledger.csv> --out model.json …`: fits the Gaussian model to the normal traffic of
+ * `isodense fit <ledger> --out model.json …`: fits the Gaussian model to the normal traffic of
  * a ledger (rows labelled fraud are left out), prints what it did, and writes the artifact only
  * when everything succeeded.
  */
@@ -17,19 +17,18 @@ import { processIO, writeLines, type CommandIO } from "../io";
 import { LedgerRowSource, type LedgerRequest } from "../ledger";
 import { fitRowSource, fitSource } from "../sources/fit-source";
 import { fitFromMomentsFiles } from "../sources/moments-files";
-import { resolveSource, type DataSource } from "../sources/source";
+import { type DataSource, SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
 import { createProgress } from "../progress";
 
 /** Command line of `isodense fit`. */
 export const fitSpec: CommandSpec = {
   command: "isodense fit",
   summary:
-    "Fits mean and covariance of the normal payments in a ledger (CSV or Parquet file, or a table or query of a DuckDB database) and writes a sealed model file. " +
+    "Fits mean and covariance of the normal payments in a ledger (CSV or Parquet file, or a table or query of a DuckDB or SQLite database) and writes a sealed model file. " +
     "Rows labelled fraud (label fraud or 1) are left out; unlabelled rows are kept.",
-  positionals: [{ name: "ledger", description: "payments, one per row: .csv (header row), .parquet, or a .duckdb database with --table or --from-sql", optional: true }],
+  positionals: [{ name: "ledger", description: `payments, one per row: ${SOURCE_KINDS_TEXT}`, optional: true }],
   options: [
-    { name: "table", kind: "string", valueName: "name", description: "database ledgers: the table or view to read" },
-    { name: "from-sql", kind: "string", valueName: "query", description: "database ledgers: a query to read, e.g. \"SELECT * FROM payments WHERE day >= DATE '2026-11-01'\"" },
+    ...SOURCE_OPTIONS,
     {
       name: "moments",
       kind: "string",
@@ -122,7 +121,7 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
     const { artifact, report } =
       momentsPath !== undefined
         ? await fitFromMomentsFiles(momentsPath, samplePath!, request, { ...options, source: basename(momentsPath) })
-        : await fitLedger(resolveSource(ledgerPath!, { table: stringOption(args, "table"), fromSql: stringOption(args, "from-sql") }), request, options);
+        : await fitLedger(sourceFromArgs(args, ledgerPath!), request, options);
     progress.done();
     await writeFileAtomic(out, JSON.stringify(artifact, null, 2) + "\n");
     writeLines(io.stdout, [...report.lines, `wrote model ${artifact.version} to ${out}`]);
@@ -134,23 +133,17 @@ export async function fitCommand(argv: string[], io: CommandIO = processIO()): P
 }
 
 /**
- * Fits a ledger: through DuckDB when it has the feature columns; a CSV ledger of payment records
- * streams through the record deriver (features depend on each account's earlier rows, in order).
+ * Fits a ledger: through DuckDB when it has the feature columns; a ledger of payment records
+ * streams through the record deriver (features depend on each account's earlier rows, in order),
+ * and a SQLite ledger through the SQLite reader, both into the same accumulator.
  */
 async function fitLedger(source: DataSource, request: LedgerRequest, options: FitOptions): Promise<{ artifact: ModelArtifact; report: FitReport }> {
-  if (request.records === undefined) return fitSource(source, request, options);
-  if (source.kind !== "csv") {
-    throw new InputError(
-      "<ledger>",
-      "records from CSV",
-      `${source.label}: features derived from payment records are read from a CSV ledger; run 'isodense derive' on a CSV export, or give the feature columns`,
-    );
-  }
-  const rows = new LedgerRowSource(source.path, request);
+  if (request.records === undefined && source.kind !== "sqlite") return fitSource(source, request, options);
+  const rows = new LedgerRowSource(source, request);
   // Header and columns are checked before the first pass, so a typo fails at once.
   const layout = await rows.layout();
-  if (layout.records === null) return fitSource(source, request, options);
-  return fitRowSource(rows, () => rows.counts, { ...options, source: source.label });
+  if (layout.records === null && source.kind !== "sqlite") return fitSource(source, request, options);
+  return fitRowSource(rows, () => rows.counts, { ...options, source: source.label }, layout.records === null ? "read through SQLite" : "derived from records");
 }
 
 /**

@@ -1,5 +1,5 @@
 /**
- * `isodense refit <ledger.csv> --labels labels.csv --model live.json --out candidate.json`: the
+ * `isodense refit <ledger> --labels labels.csv --model live.json --out candidate.json`: the
  * weekly refit. Fits a candidate with the live model's spec (features and transforms, covariance
  * shape, estimator, segments, flag rate of the cutoff) on the ledger of the training window,
  * leaving out every payment confirmed as fraud in the labels (joined by id) or labelled fraud in
@@ -19,6 +19,7 @@ import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { EXPORT_SEGMENT_COLUMN, readLabels, type LabelSet } from "../labels";
 import { openLedger, type LedgerRequest } from "../ledger";
+import { type DataSource, resolveSource, SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
 import { recordsOfModel } from "../records";
 import { recordSpecFromArtifact } from "../../shared-model/src/records/artifact-spec";
 import { formatCount, formatForPeople, formatPercent } from "../numbers";
@@ -33,9 +34,10 @@ export const refitSpec: CommandSpec = {
     "Fits a candidate model with the live model's spec on a ledger, leaving out payments confirmed as fraud in the labels " +
     "(joined by id) or labelled fraud in the ledger and keeping dismissed flags as normal; backtests live and candidate on " +
     "the labels (PR-AUC, recall at the live flag rate, flag overlap) and writes the candidate. It does not publish it.",
-  positionals: [{ name: "ledger.csv", description: "payments of the training window, with an id column" }],
+  positionals: [{ name: "ledger", description: `payments of the training window, with an id column: ${SOURCE_KINDS_TEXT}` }],
   options: [
-    { name: "labels", kind: "string", valueName: "labels.csv", description: "the labelled set (review export) (required)" },
+    ...SOURCE_OPTIONS,
+    { name: "labels", kind: "string", valueName: "labels.csv", description: "the labelled set (review export), a .csv or .parquet file (required)" },
     { name: "model", kind: "string", valueName: "live.json", description: "the live model whose spec the candidate copies (required)" },
     { name: "out", kind: "string", valueName: "candidate.json", description: "where to write the candidate (required)" },
     { name: "id-column", kind: "string", valueName: "column", description: "payment id column of the ledger", defaultText: "id if present" },
@@ -93,7 +95,7 @@ export class RefitRowSource implements RowSource {
   confirmedFound = new Set<string>();
 
   constructor(
-    private readonly path: string,
+    private readonly path: string | DataSource,
     private readonly request: LedgerRequest,
     private readonly confirmedFraud: ReadonlySet<string>,
     private readonly dismissed: ReadonlySet<string>,
@@ -160,7 +162,7 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
     }
     await checkOutputPath(out, "--out");
 
-    const labels = await readLabels(labelsPath, {
+    const labels = await readLabels(resolveSource(labelsPath, {}, "--labels"), {
       features: live.features,
       idColumn: stringOption(args, "labels-id-column"),
       labelColumn: stringOption(args, "labels-label-column"),
@@ -190,9 +192,10 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
       segmentColumn: live.segmentBy,
       records: recordsOfModel(live),
     };
-    const source = new RefitRowSource(ledgerPath, request, confirmedFraud, dismissed);
+    const ledgerSource = sourceFromArgs(args, ledgerPath);
+    const source = new RefitRowSource(ledgerSource, request, confirmedFraud, dismissed);
     // Header and columns are checked before the first pass, so a typo fails at once.
-    const probe = await openLedger(ledgerPath, request);
+    const probe = await openLedger(ledgerSource, request);
     await probe.rows.return();
     const layout = probe.layout;
     if (layout.idColumn === null) {
@@ -213,7 +216,7 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
       minSegmentRows: live.minSegmentRows,
       cutoffRate,
       seed: numberOption(args, "seed") ?? liveSeed,
-      source: basename(ledgerPath),
+      source: ledgerSource.label,
       recordSpec: recordSpecFromArtifact(live) ?? undefined,
       get rowsRead() {
         return source.counts.rowsRead;
@@ -225,14 +228,14 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
     });
 
     const backtest = compareOnLabels(live, candidate, labels);
-    const ledgerOverlap = await overlapOnLedger(live, candidate, ledgerPath, request, (rows) => progress.update("overlap", rows));
+    const ledgerOverlap = await overlapOnLedger(live, candidate, ledgerSource, request, (rows) => progress.update("overlap", rows));
     progress.done();
     await writeFileAtomic(out, JSON.stringify(candidate, null, 2) + "\n");
 
     const c = source.counts;
     const notInLedger = confirmedFraud.size - source.confirmedFound.size;
     writeLines(io.stdout, [
-      `ledger: ${formatCount(c.rowsRead)} rows read from ${basename(ledgerPath)}; left out ${formatCount(c.excludedConfirmedFraud)} confirmed fraud ` +
+      `ledger: ${formatCount(c.rowsRead)} rows read from ${ledgerSource.label}; left out ${formatCount(c.excludedConfirmedFraud)} confirmed fraud ` +
         `(labels) and ${formatCount(c.excludedLedgerFraud)} labelled fraud (ledger); kept ${formatCount(c.dismissedKept)} payments reviewed as legitimate as normal traffic`,
       `labels: ${formatCount(labels.rows)} rows from ${basename(labels.file)} (${formatCount(labels.fraudCount)} fraud)` +
         (labels.duplicatesSkipped > 0 ? `, ${formatCount(labels.duplicatesSkipped)} repeated rows merged` : "") +
@@ -360,14 +363,14 @@ export function compareOnLabels(
 }
 
 /** Scores every ledger row with both models and counts the flags of each and of both. */
-async function overlapOnLedger(live: ModelArtifact, candidate: ModelArtifact, ledgerPath: string, request: LedgerRequest, onProgress: (rows: number) => void): Promise<Overlap> {
+async function overlapOnLedger(live: ModelArtifact, candidate: ModelArtifact, ledger: DataSource, request: LedgerRequest, onProgress: (rows: number) => void): Promise<Overlap> {
   const liveScorer = new Scorer(compileModel(live));
   const candidateScorer = new Scorer(compileModel(candidate));
-  const ledger = await openLedger(ledgerPath, request);
+  const opened = await openLedger(ledger, request);
   const overlap: Overlap = { live: 0, candidate: 0, both: 0 };
   let rows = 0;
   try {
-    for await (const row of ledger.rows) {
+    for await (const row of opened.rows) {
       const a = liveScorer.score(row.values, row.segment).flagged;
       const b = candidateScorer.score(row.values, row.segment).flagged;
       if (a) overlap.live++;
@@ -376,7 +379,7 @@ async function overlapOnLedger(live: ModelArtifact, candidate: ModelArtifact, le
       if (++rows % 8192 === 0) onProgress(rows);
     }
   } finally {
-    await ledger.rows.return();
+    await opened.rows.return();
   }
   return overlap;
 }

@@ -1,5 +1,6 @@
 /**
- * `isodense score <model.json> <ledger.csv> --out scores.csv`: backtests a model on a ledger.
+ * `isodense score <model.json> <ledger> --out scores.csv`: backtests a model on a ledger (any
+ * source: CSV, Parquet, a table or query of a DuckDB or SQLite database).
  * Writes one row per payment (log-density, d², tail probability, flag, the segment model used and
  * the strongest reason) and, when the ledger has labels, prints precision, recall, flag rate and
  * the confusion counts.
@@ -15,6 +16,7 @@ import { EXIT_OK, InputError, reportFailure } from "../errors";
 import { AtomicLineWriter, checkOutputPath } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { openLedger } from "../ledger";
+import { SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
 import { recordsOfModel } from "../records";
 import { formatCount, formatForPeople, formatPercent } from "../numbers";
 import { createProgress } from "../progress";
@@ -28,9 +30,13 @@ export const scoreSpec: CommandSpec = {
     "With a label column it also prints precision, recall and flag rate.",
   positionals: [
     { name: "model.json", description: "model file written by isodense fit" },
-    { name: "ledger.csv", description: "payments with the model's feature columns, or payment records in time order when the model derives its features" },
+    {
+      name: "ledger",
+      description: `payments with the model's feature columns, or payment records in time order when the model derives its features: ${SOURCE_KINDS_TEXT}`,
+    },
   ],
   options: [
+    ...SOURCE_OPTIONS,
     { name: "out", kind: "string", valueName: "scores.csv", description: "where to write the scores (required)" },
     { name: "id-column", kind: "string", valueName: "column", description: "id column copied to the output", defaultText: "id if present, else the row number" },
     { name: "label-column", kind: "string", valueName: "column", description: "review labels: fraud/legitimate or 1/0, empty = not reviewed", defaultText: "label if present" },
@@ -77,7 +83,7 @@ export async function scoreCommand(argv: string[], io: CommandIO = processIO()):
     await checkOutputPath(out, "--out");
     const model = compileModel(artifact);
     const scorer = new Scorer(model);
-    const ledger = await openLedger(ledgerPath, {
+    const ledger = await openLedger(sourceFromArgs(args, ledgerPath), {
       features: artifact.features,
       idColumn: stringOption(args, "id-column"),
       labelColumn: stringOption(args, "label-column"),

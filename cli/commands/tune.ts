@@ -1,5 +1,5 @@
 /**
- * `isodense tune <labels.csv> --model model.json --out tuned.json [--objective f1|capacity|cost] …`:
+ * `isodense tune <labels> --model model.json --out tuned.json [--objective f1|capacity|cost] …`:
  * scores the labelled set under the model, prints a compact table of operating points around the
  * chosen cutoff with the PR-AUC, prints Horvitz–Thompson estimates for all traffic with intervals
  * and the too-few-labels verdict, and writes a new model version with the same parameters and the
@@ -33,6 +33,7 @@ import { EXPORT_SEGMENT_COLUMN, readLabels, type LabelSet } from "../labels";
 import { formatCount, formatForPeople, formatPercent, parseStrictNumber } from "../numbers";
 import { loadArtifact } from "./score";
 import { recordsOfModel } from "../records";
+import { SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
 
 /** Command line of `isodense tune`. */
 export const tuneSpec: CommandSpec = {
@@ -41,8 +42,9 @@ export const tuneSpec: CommandSpec = {
     "Chooses a new cutoff for a model from labelled payments (the review export: one row per decided payment with the model's " +
     "features, outcome fraud/legitimate or 1/0, weight = 1/inclusion probability, and the payment id), prints the operating " +
     "points, PR-AUC and estimates for all traffic, and writes a new model version with the chosen cutoff.",
-  positionals: [{ name: "labels.csv", description: "the labelled set (review export)" }],
+  positionals: [{ name: "labels", description: `the labelled set (review export): ${SOURCE_KINDS_TEXT}` }],
   options: [
+    ...SOURCE_OPTIONS,
     { name: "model", kind: "string", valueName: "model.json", description: "model to retune (required)" },
     { name: "out", kind: "string", valueName: "tuned.json", description: "where to write the new model version (required)" },
     { name: "objective", kind: "string", choices: ["f1", "capacity", "cost"], description: "what the cutoff should achieve", defaultText: "f1" },
@@ -94,7 +96,7 @@ export async function tuneCommand(argv: string[], io: CommandIO = processIO()): 
     const artifact = await loadArtifact(modelPath);
     await checkOutputPath(out, "--out");
 
-    const labels = await readLabels(labelsPath, {
+    const labels = await readLabels(sourceFromArgs(args, labelsPath, "<labels>"), {
       features: artifact.features,
       idColumn: stringOption(args, "id-column"),
       labelColumn: stringOption(args, "label-column"),

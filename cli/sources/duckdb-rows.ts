@@ -11,7 +11,8 @@ import { quoteIdentifier } from "../../shared-model/src/sql-moments";
 import { CsvError, openCsvTable } from "../csv";
 import { InputError } from "../errors";
 import { openLedger, parseLabel, resolveLedgerLayout, type Label, type LedgerLayout, type LedgerRequest } from "../ledger";
-import { type DuckEngine, sqlString } from "./duckdb-engine";
+import type { DuckEngine } from "./duckdb-engine";
+import { duckRelation } from "./duckdb-relation";
 import type { DataSource } from "./source";
 
 /** One block of validated rows, column by column. */
@@ -43,51 +44,20 @@ export interface OpenedSource {
  *   cannot open the file
  */
 export async function openSource(engine: DuckEngine, source: DataSource, request: LedgerRequest): Promise<OpenedSource> {
-  let relation: string;
-  let header: string[];
-  try {
-    if (source.kind === "csv") {
-      // The header through the project's reader: the same errors for a missing or broken header.
-      const table = await openCsvTable(source.path);
-      header = table.header;
-      await table.rows.return();
-      const featureNames = new Set(request.features.map((f) => f.name));
-      const columns = header.map((name) => `${sqlString(name)}: '${featureNames.has(name) ? "DOUBLE" : "VARCHAR"}'`);
-      relation = `read_csv(${sqlString(source.path)}, header = true, auto_detect = false, delim = ',', quote = '"', escape = '"', columns = {${columns.join(", ")}})`;
-    } else if (source.kind === "parquet") {
-      relation = `read_parquet(${sqlString(source.path)})`;
-      header = await describe(engine, relation);
-    } else if (source.kind === "duckdb") {
-      await engine.execute(`ATTACH ${sqlString(source.path)} AS ledger_db (READ_ONLY)`);
-      await engine.execute("USE ledger_db");
-      relation = source.table !== undefined ? quoteQualified(source.table) : `(${source.query})`;
-      header = await describe(engine, relation);
-    } else {
-      throw new InputError("<ledger>", "SQLite through DuckDB", `${source.path}: SQLite databases are read by the SQLite reader, not DuckDB`);
-    }
-  } catch (error) {
-    if (error instanceof CsvError || error instanceof InputError) throw error;
-    throw new InputError(source.label, "cannot be read", `${source.label}: ${(error as Error).message}`);
+  let csvColumns: { header: string[]; doubles: Set<string> } | undefined;
+  if (source.kind === "csv") {
+    // The header through the project's reader: the same errors for a missing or broken header.
+    const table = await openCsvTable(source.path);
+    await table.rows.return();
+    csvColumns = { header: table.header, doubles: new Set(request.features.map((f) => f.name)) };
   }
+  const { relation, header } = await duckRelation(engine, source, csvColumns);
   const layout = resolveLedgerLayout(header, source.label, request);
   const select = request.features.map((f, j) => `CAST(${quoteIdentifier(f.name)} AS DOUBLE) AS v_${j}`);
   select.push(layout.labelColumn === null ? "NULL::VARCHAR AS label_text" : `CAST(${quoteIdentifier(layout.labelColumn)} AS VARCHAR) AS label_text`);
   select.push(layout.segmentColumn === null ? "NULL::VARCHAR AS seg" : `CAST(${quoteIdentifier(layout.segmentColumn)} AS VARCHAR) AS seg`);
   select.push(layout.idColumn === null ? "NULL::VARCHAR AS row_id" : `CAST(${quoteIdentifier(layout.idColumn)} AS VARCHAR) AS row_id`);
   return { layout, selection: `(SELECT ${select.join(", ")} FROM ${relation})` };
-}
-
-async function describe(engine: DuckEngine, relation: string): Promise<string[]> {
-  const rows = await engine.rows(`DESCRIBE SELECT * FROM ${relation}`);
-  return rows.map((r) => String(r.column_name));
-}
-
-/** A table name, possibly schema-qualified (`main.payments`), each part quoted. */
-function quoteQualified(name: string): string {
-  return name
-    .split(".")
-    .map((part) => quoteIdentifier(part))
-    .join(".");
 }
 
 /**

@@ -14,6 +14,7 @@ import { needsFittedParameters } from "../../shared-model/src/fit-transforms";
 import { createRandom } from "../../shared-model/src/random";
 import { Reservoir } from "../../shared-model/src/reservoir";
 import type { FeatureDeclaration, FittedFeature } from "../../shared-model/src/types";
+import { CsvError } from "../csv";
 import type { LedgerRequest } from "../ledger";
 import { DuckEngine } from "./duckdb-engine";
 import { type OpenedSource, openSource, readBlocks } from "./duckdb-rows";
@@ -53,7 +54,8 @@ export async function fitSource(source: DataSource, request: LedgerRequest, opti
 }
 
 /**
- * Fits a model to a re-readable row source (a CSV ledger of payment records, derived on the way)
+ * Fits a model to a re-readable row source (a ledger of payment records, derived on the way, or a
+ * SQLite ledger)
  * through the same accumulator as {@link fitSource}, so both give the same model for the same rows.
  * With a Yeo–Johnson feature a first pass draws the seeded sample for λ.
  * @param counts read after the last pass: rows read and rows left out as fraud
@@ -62,6 +64,7 @@ export async function fitRowSource(
   rows: RowSource,
   counts: () => { rowsRead: number; rowsExcludedAsFraud: number },
   options: FitOptions,
+  origin = "derived from records",
 ): Promise<{ artifact: ModelArtifact; report: FitReport }> {
   const seed = options.seed ?? DEFAULT_FIT_SEED;
   let presampled: FitRow[] | null = null;
@@ -82,7 +85,7 @@ export async function fitRowSource(
   const { result, sample } = accumulator.finish();
   const { rowsRead, rowsExcludedAsFraud } = counts();
   result.fraudRows = rowsExcludedAsFraud;
-  return fitFromMoments(result, { rows: presampled ?? sample }, { ...options, rowsRead, rowsExcludedAsFraud }, "derived from records");
+  return fitFromMoments(result, { rows: presampled ?? sample }, { ...options, rowsRead, rowsExcludedAsFraud }, origin);
 }
 
 /**
@@ -100,8 +103,14 @@ async function sampleInSql(engine: DuckEngine, source: DataSource, opened: Opene
     `WHERE label_text IS NULL OR lower(trim(label_text)) NOT IN ('fraud', '1') ` +
     `USING SAMPLE reservoir(${FIT_SAMPLE_ROWS} ROWS) REPEATABLE (${seed})`;
   const rows: FitRow[] = [];
-  for await (const block of readBlocks(engine, source, opened, request, query)) {
-    for (let r = 0; r < block.size; r++) rows.push({ values: Float64Array.from(block.values, (column) => column[r]), segment: block.segments[r] });
+  try {
+    for await (const block of readBlocks(engine, source, opened, request, query)) {
+      for (let r = 0; r < block.size; r++) rows.push({ values: Float64Array.from(block.values, (column) => column[r]), segment: block.segments[r] });
+    }
+  } catch (error) {
+    // Rows of the sample are numbered in the sample: read the source in order to name the first bad row of the source itself.
+    if (error instanceof CsvError) for await (const block of readBlocks(engine, source, opened, request)) void block;
+    throw error;
   }
   return rows;
 }

@@ -5,7 +5,7 @@
  */
 import { existsSync } from "node:fs";
 import { basename, extname } from "node:path";
-import { UsageError } from "../args";
+import { type OptionSpec, type ParsedArgs, stringOption, UsageError } from "../args";
 import { InputError } from "../errors";
 
 /** The kinds of source isodense reads. */
@@ -34,6 +34,33 @@ const EXTENSIONS: Record<string, SourceKind> = {
   ".sqlite3": "sqlite",
   ".db": "sqlite",
 };
+
+/** The options that pick what to read from a database source; every command that reads payments takes them. */
+export const SOURCE_OPTIONS: readonly OptionSpec[] = [
+  { name: "table", kind: "string", valueName: "name", description: "database sources (.duckdb, .sqlite): the table or view to read" },
+  {
+    name: "from-sql",
+    kind: "string",
+    valueName: "query",
+    description: "database sources: a query to read, e.g. \"SELECT * FROM payments WHERE day >= '2026-11-01'\"",
+  },
+];
+
+/** What a source positional accepts, for the help text. */
+export const SOURCE_KINDS_TEXT = ".csv (header row), .parquet, or a .duckdb / .sqlite database with --table or --from-sql";
+
+/**
+ * The source named by a positional and the command's `--table` / `--from-sql`.
+ * @throws as {@link resolveSource}
+ */
+export function sourceFromArgs(args: ParsedArgs, path: string, role = "<ledger>"): DataSource {
+  return resolveSource(path, { table: stringOption(args, "table"), fromSql: stringOption(args, "from-sql") }, role);
+}
+
+/** A path read as a CSV file whatever its name (callers that name a CSV file directly). */
+export function csvSource(path: string): DataSource {
+  return { kind: "csv", path, label: basename(path) };
+}
 
 /**
  * Resolves a positional file and the `--table` / `--from-sql` options into a source.

@@ -393,7 +393,7 @@ describe("usage", () => {
     }
     const score = await isodense(["help", "score"]);
     expect(score.code).toBe(0);
-    expect(score.stdout).toContain("usage: isodense score <model.json> <ledger.csv> [options]");
+    expect(score.stdout).toContain("usage: isodense score <model.json> <ledger> [options]");
   });
 
   it("rejects an unknown command with exit 2 and lists the commands", async () => {
