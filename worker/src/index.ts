@@ -1,8 +1,10 @@
 // Worker entry point: wiring only (HTTP → Hono app, queue batches → review-store writer, cron →
-// weekly drift and label-count report).
+// weekly drift and label-count report, retention run, audit chain check).
 import { app } from "./app";
 import type { Env } from "./env";
 import { runWeeklyReport } from "./insights/weekly-report";
+import { checkAuditChain } from "./audit/audit-chain";
+import { runRetention } from "./retention/retention";
 import { handleHandoffBatch } from "./storage/queue-consumer";
 
 export type { Env } from "./env";
@@ -16,6 +18,7 @@ export default {
   fetch: app.fetch,
   queue: handleHandoffBatch,
   scheduled(controller, env, ctx) {
-    ctx.waitUntil(runWeeklyReport(env, controller.cron, new Date(controller.scheduledTime)));
+    const at = new Date(controller.scheduledTime);
+    ctx.waitUntil(Promise.all([runWeeklyReport(env, controller.cron, at), runRetention(env, controller.cron, at).then(() => checkAuditChain(env))]));
   },
 } satisfies ExportedHandler<Env, unknown>;

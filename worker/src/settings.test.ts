@@ -36,6 +36,7 @@ describe("readSettings", () => {
       IDEMPOTENCY_WINDOW_SECONDS: 86_400,
       PAYMENT_CLOCK_TOLERANCE_SECONDS: 300,
       HISTORY_TIMEOUT_MS: 250,
+      RETENTION_DAYS: 365,
     });
   });
 

@@ -65,6 +65,11 @@ export const settingsSchema = z.object({
   PAYMENT_CLOCK_TOLERANCE_SECONDS: numberSetting({ min: 0, max: 604_800, unit: "seconds" }),
   /** Longest wait for an account's history (Durable Object) before answering 503 retryable. */
   HISTORY_TIMEOUT_MS: numberSetting({ min: 1, max: 30_000, unit: "milliseconds" }),
+  /**
+   * How long personal data is kept: decided review items with their notes and audit content (from
+   * the decision), conflicts and shadow scores (from scoring), and an idle account's history.
+   */
+  RETENTION_DAYS: numberSetting({ min: 1, max: 3650, whole: true, unit: "days" }),
   /** Reviews one analyst can do in a day (the day summary's capacity). */
   ANALYST_DAILY_CAPACITY: numberSetting({ min: 1, max: 100_000, whole: true, unit: "reviews" }),
 });

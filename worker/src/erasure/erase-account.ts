@@ -3,8 +3,9 @@
  * without the data: the `erasure_events` row is written first (actor, time, SHA-256 of the account
  * reference, the stores), then each store erases, then the row says `done` with counts, or `failed`.
  *
- * Each store is an {@link Eraser}; the account history is the first. Another store (review items,
- * say) joins by adding its eraser to the list a route passes.
+ * Each store is an {@link Eraser}: the account history (its Durable Object) here, the review store
+ * (items, notes, audit content, conflicts, shadow scores) in review-store-eraser.ts. A route passes
+ * the list it erases; a store joins by adding its eraser there.
  */
 import { sha256Hex } from "../../../shared-model/src";
 import type { Env } from "../env";

@@ -8,7 +8,8 @@
  *   (a Durable Object runs one event at a time, and SQL calls are synchronous).
  * - A repeat of a payment id already held is derived again (same answer) but not recorded twice.
  * - Expiry: an alarm deletes the whole state once the account has been idle (server clock) for the
- *   spec's retention, the longest span any derivation looks back.
+ *   spec's retention (never shorter than the longest span any derivation looks back), capped by the
+ *   operator's RETENTION_DAYS, which also governs review items (docs/privacy.md).
  * - {@link AccountHistoryObject.erase} deletes it on request (the admin erase route).
  *
  * The history is the shared model's `AccountHistory` (plain JSON, bounded by the payments inside
@@ -16,6 +17,8 @@
  */
 import { DurableObject } from "cloudflare:workers";
 import { deriveInto, emptyHistory, historyHorizonMs, recordPayment, RecordInputError, type AccountHistory, type PaymentRecord, type RecordSpec } from "../../../shared-model/src";
+import type { Env } from "../env";
+import { readSettings } from "../settings";
 import type { HistoryFootprint, HistoryResult } from "./contract";
 
 /** Row layout: one row per object (the account), the history as JSON. */
@@ -32,11 +35,13 @@ interface HistoryRow extends Record<string, SqlStorageValue> {
   last_activity_ms: number;
 }
 
+const DAY_MS = 86_400_000;
+
 /** Specs by key (model version): a spec arrives with every call, this keeps one object per model. */
 const MAX_SPECS = 8;
 
 /** The Durable Object class bound as `ACCOUNT_HISTORY` (wrangler.toml). */
-export class AccountHistoryObject extends DurableObject {
+export class AccountHistoryObject extends DurableObject<Env> {
   private history: AccountHistory | null = null;
   private readonly specs = new Map<string, RecordSpec>();
   /** Time the alarm is set for, as far as this instance knows (null: not known to be set). */
@@ -60,7 +65,7 @@ export class AccountHistoryObject extends DurableObject {
     const results: HistoryResult[] = [];
     let changed = false;
     const now = Date.now();
-    const retentionMs = historyHorizonMs(held);
+    const retentionMs = Math.min(historyHorizonMs(held), this.retentionCapMs());
     try {
       for (const record of records) {
         try {
@@ -111,13 +116,27 @@ export class AccountHistoryObject extends DurableObject {
     this.alarmAtMs = null;
     const row = this.row();
     if (row === null) return;
-    const due = row.last_activity_ms + row.retention_ms;
+    const due = row.last_activity_ms + Math.min(row.retention_ms, this.retentionCapMs());
     if (Date.now() >= due) {
       await this.ctx.storage.deleteAll();
       this.forget();
       return;
     }
     await this.keepAlarm(due);
+  }
+
+  /**
+   * RETENTION_DAYS in ms: no history outlives the operator's retention, whatever the spec says. A
+   * malformed value is logged and leaves the spec's retention in force, because failing every
+   * payment of the account would stop screening, not protect anyone.
+   */
+  private retentionCapMs(): number {
+    try {
+      return readSettings(this.env, ["RETENTION_DAYS"]).RETENTION_DAYS * DAY_MS;
+    } catch (error) {
+      console.error(JSON.stringify({ event: "history-retention-setting-unreadable", error: String(error) }));
+      return Number.POSITIVE_INFINITY;
+    }
   }
 
   private specFor(key: string, spec: RecordSpec): RecordSpec {
@@ -170,12 +189,18 @@ export class AccountHistoryObject extends DurableObject {
 
   /**
    * Makes sure an alarm is set no later than needed. The alarm handler re-reads the last activity
-   * and moves itself on, so one alarm per instance is enough: no storage write on every payment.
+   * and moves itself on, so one alarm per instance is enough: no storage write on every payment
+   * (later payments ask for later times, which the alarm already set covers).
    */
   private async keepAlarm(atMs: number): Promise<void> {
-    if (this.alarmAtMs !== null) return;
+    if (this.alarmAtMs !== null && this.alarmAtMs <= atMs) return;
     const current = await this.ctx.storage.getAlarm();
-    this.alarmAtMs = current ?? atMs;
-    if (current === null) await this.ctx.storage.setAlarm(atMs);
+    if (current !== null && current <= atMs) {
+      this.alarmAtMs = current;
+      return;
+    }
+    // None set, or one later than needed (RETENTION_DAYS was lowered): bring it forward.
+    await this.ctx.storage.setAlarm(atMs);
+    this.alarmAtMs = atMs;
   }
 }

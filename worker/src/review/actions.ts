@@ -7,12 +7,15 @@
  * one item are serialised by D1; the second finds the condition false and gets a 409 naming the
  * holder.
  *
+ * Each audit row is sealed into the trail's hash chain right after its batch (audit/audit-chain.ts).
+ *
  * Two bounds keep one item's trail from growing without limit: renewing a live claim of your own
  * extends it without a new audit row (the row of the claim already says who holds the item), and
  * one analyst may decide or undo on one item at most {@link DECISION_CHANGE_LIMIT} times within
  * {@link DECISION_CHANGE_WINDOW_MS}; past that the change is refused with 429 and the time it may
  * be retried (no state change, no audit row).
  */
+import { sealAuditTrail } from "../audit/audit-chain";
 import type { Env, Problem } from "../env";
 import type { ClaimView, Outcome } from "./contract";
 import { STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
@@ -55,7 +58,21 @@ async function change(
     env.DB.prepare(`SELECT ${STATUS_COLUMNS} FROM review_status WHERE item_id = ?1`).bind(id),
   ]);
   const row = (read.results[0] as StatusRow | undefined) ?? null;
-  return { changed: (updated.meta.changes ?? 0) > 0, row };
+  const changed = (updated.meta.changes ?? 0) > 0;
+  if (changed) await sealQuietly(env);
+  return { changed, row };
+}
+
+/**
+ * Seals the event just written into the audit chain (audit/audit-chain.ts). The change has landed
+ * whatever happens here: a failed seal is logged and the next action, cron run or verify seals it.
+ */
+async function sealQuietly(env: Pick<Env, "DB">): Promise<void> {
+  try {
+    await sealAuditTrail(env);
+  } catch (error) {
+    console.error(JSON.stringify({ event: "audit-seal-failed", error: String(error) }));
+  }
 }
 
 /**

@@ -5,6 +5,10 @@
  * `-`, `@`, tab or carriage return gets an apostrophe in front, see shared-model's
  * spreadsheet-cell.ts, which the CLI's label reader undoes); NDJSON stays verbatim. Streamed in pages of EXPORT_PAGE rows along the decision
  * index, so memory stays flat whatever the size.
+ *
+ * Every export is recorded in `label_exports` (who, when, which version, rows), finished once its
+ * last row has gone out: retention deletes decided items only once a finished export holds them
+ * (retention/retention.ts).
  */
 import type { Env } from "../env";
 import { modelFor } from "./evidence";
@@ -96,11 +100,18 @@ function csvCell(value: string | number | null): string {
  * Streams the labelled set.
  * @example new Response(exportStream(env, "csv", columns, undefined), { headers: { "content-type": "text/csv" } })
  */
-export function exportStream(env: Pick<Env, "DB">, format: ExportFormat, featureColumns: string[], modelVersion: string | undefined): ReadableStream<Uint8Array> {
+export function exportStream(
+  env: Pick<Env, "DB">,
+  format: ExportFormat,
+  featureColumns: string[],
+  modelVersion: string | undefined,
+  onFinished: (rows: number) => Promise<void> = async () => {},
+): ReadableStream<Uint8Array> {
   const encoder = new TextEncoder();
   let after: { decidedMs: number; id: number } | null = null;
   let headerSent = false;
   let done = false;
+  let written = 0;
   return new ReadableStream<Uint8Array>({
     async pull(controller) {
       if (done) return;
@@ -109,10 +120,15 @@ export function exportStream(env: Pick<Env, "DB">, format: ExportFormat, feature
       headerSent = true;
       const rows = await page(env, after, modelVersion);
       for (const row of rows) text += format === "csv" ? csvLine(row, featureColumns) : ndjsonLine(row, featureColumns);
+      written += rows.length;
       if (rows.length < EXPORT_PAGE) done = true;
       else after = { decidedMs: rows[rows.length - 1].decided_ms, id: rows[rows.length - 1].item_id };
       if (text) controller.enqueue(encoder.encode(text));
-      if (done) controller.close();
+      if (done) {
+        // Recorded before the stream ends, so a client that has read to the end finds it recorded.
+        await onFinished(written);
+        controller.close();
+      }
     },
   });
 }
@@ -168,4 +184,36 @@ function ndjsonLine(row: ExportRow, featureColumns: string[]): string {
   featureColumns.forEach((name, k) => (record[name] = features[k]));
   FIXED_COLUMNS.forEach((name, k) => (record[name] = fixed[k]));
   return JSON.stringify(record) + "\n";
+}
+
+/**
+ * Records that an export starts; its time bounds what it holds (every item decided before it).
+ * Returns the id, or null when the record could not be written (the export still runs: retention
+ * then simply does not count it).
+ *
+ * @example const exportId = await recordExportStart(env, "rosa", "csv", undefined, Date.now());
+ */
+export async function recordExportStart(env: Pick<Env, "DB">, actor: string, format: ExportFormat, modelVersion: string | undefined, nowMs: number): Promise<number | null> {
+  try {
+    const row = await env.DB.prepare("INSERT INTO label_exports (started_at, started_ms, actor, format, model_version) VALUES (?1, ?2, ?3, ?4, ?5) RETURNING id")
+      .bind(new Date(nowMs).toISOString(), nowMs, actor, format, modelVersion ?? null)
+      .first<{ id: number }>();
+    return row?.id ?? null;
+  } catch (error) {
+    console.error(JSON.stringify({ event: "label-export-record-failed", stage: "start", error: String(error) }));
+    return null;
+  }
+}
+
+/**
+ * Marks an export finished with its row count (logged, never thrown: the rows already went out).
+ *
+ * @example await recordExportFinish(env, exportId, 211);
+ */
+export async function recordExportFinish(env: Pick<Env, "DB">, exportId: number, rows: number): Promise<void> {
+  try {
+    await env.DB.prepare("UPDATE label_exports SET finished_at = ?2, rows = ?3 WHERE id = ?1").bind(exportId, new Date().toISOString(), rows).run();
+  } catch (error) {
+    console.error(JSON.stringify({ event: "label-export-record-failed", stage: "finish", exportId, error: String(error) }));
+  }
 }

@@ -1,10 +1,14 @@
 /**
- * `DELETE /v1/accounts/{accountRef}/history` (admin): erases one account's payment history on
- * request, audited in `erasure_events` without the data (erasure/erase-account.ts).
+ * Erasure of one account's data on request (admin), audited in `erasure_events` without the data
+ * (erasure/erase-account.ts):
+ * - `DELETE /v1/accounts/{accountRef}` erases it everywhere isodense keeps it: the review store
+ *   (items, notes, audit content, payment conflicts, shadow scores) and the account's history;
+ * - `DELETE /v1/accounts/{accountRef}/history` erases the history alone.
  */
-import { Hono } from "hono";
+import { Hono, type Context } from "hono";
 import type { AppEnv } from "../app-env";
-import { accountHistoryEraser, eraseAccount, ERASURE_SETTINGS } from "../erasure/erase-account";
+import { accountHistoryEraser, eraseAccount, ERASURE_SETTINGS, type Eraser } from "../erasure/erase-account";
+import { reviewStoreEraser } from "../erasure/review-store-eraser";
 import { readSettings } from "../settings";
 import { allow, authenticate } from "../middleware/auth";
 import { describeValue, problemResponse } from "../problems";
@@ -13,21 +17,40 @@ import { accountRefParamSchema } from "./schemas";
 /** Account routes, mounted under `/v1`. */
 export const accountRoutes = new Hono<AppEnv>();
 
-accountRoutes.delete("/accounts/:accountRef/history", authenticate(), allow("admin"), async (c) => {
+/** The error code when a store fails mid-erasure. */
+const UNAVAILABLE: Record<string, string> = { "account-history": "history-unavailable", "review-store": "review-store-unavailable" };
+
+accountRoutes.delete("/accounts/:accountRef", authenticate(), allow("admin"), (c) => erase(c, [reviewStoreEraser, accountHistoryEraser]));
+accountRoutes.delete("/accounts/:accountRef/history", authenticate(), allow("admin"), (c) => erase(c, [accountHistoryEraser]));
+
+async function erase(c: Context<AppEnv>, erasers: readonly Eraser[]): Promise<Response> {
   const raw = c.req.param("accountRef");
   const parsed = accountRefParamSchema.safeParse(raw);
   if (!parsed.success) {
     return problemResponse(c, 400, "invalid-request", [{ field: "accountRef", rule: `${parsed.error.issues[0].message}. Actual: ${describeValue(raw)}` }]);
   }
   const settings = readSettings(c.env, ERASURE_SETTINGS);
-  const outcome = await eraseAccount(c.env, settings, c.get("principal").user, parsed.data, [accountHistoryEraser]);
-  if (outcome.ok) return c.json({ eventId: outcome.eventId, at: outcome.at, erased: outcome.erased });
+  const outcome = await eraseAccount(c.env, settings, c.get("principal").user, parsed.data, erasers);
+  if (outcome.ok) return c.json({ eventId: outcome.eventId, at: outcome.at, erased: outcome.erased, ...beyondReach(outcome.erased) });
   if (outcome.stage === "log") {
     console.error(JSON.stringify({ event: "erasure-log-unavailable", error: String(outcome.error) }));
     const rule = "the erasure could not be recorded in the review store, so nothing was erased; send the same request again";
     return problemResponse(c, 503, "erasure-log-unavailable", [{ field: "erasure_events", rule }], { retryable: true, headers: { "retry-after": "1" } });
   }
   console.error(JSON.stringify({ event: "erasure-failed", eventId: outcome.eventId, scope: outcome.scope, error: String(outcome.error) }));
-  const rule = `the ${outcome.scope} store did not answer in time or failed (erasure event ${outcome.eventId}, marked failed); send the same request again`;
-  return problemResponse(c, 503, "history-unavailable", [{ field: "accountRef", rule }], { retryable: true, headers: { "retry-after": "1" } });
-});
+  const rule =
+    `the ${outcome.scope} store did not answer in time or failed (erasure event ${outcome.eventId}, marked failed, with what was erased before it); ` +
+    "send the same request again: stores already erased find nothing and the rest are erased";
+  return problemResponse(c, 503, UNAVAILABLE[outcome.scope] ?? "erasure-incomplete", [{ field: "accountRef", rule }], { retryable: true, headers: { "retry-after": "1" } });
+}
+
+/** What the erasure could not reach, said rather than left out (only when it applies). */
+function beyondReach(erased: Record<string, Record<string, number>>): { outsideIsodense?: string } {
+  const exported = erased["review-store"]?.labelsInFinishedExports ?? 0;
+  if (exported === 0) return {};
+  return {
+    outsideIsodense:
+      `${exported} of the account's labels were in label exports taken before this erasure (GET /v1/review/export, recorded in label_exports); ` +
+      "isodense cannot reach those copies: erase the account's rows from them and from any model training set built on them",
+  };
+}

@@ -84,6 +84,20 @@ const ITEM_ACTION = (summary: string, description: string) => ({
   }),
 });
 
+/** An erasure route (DELETE on an account): its summary, what it erases, and its 503s. */
+const ERASURE = (summary: string, description: string, unavailable: string) => ({
+  delete: operation(summary, {
+    description,
+    parameters: [{ name: "accountRef", in: "path", required: true, schema: { type: "string", minLength: 1, maxLength: 128 } }],
+    responses: {
+      "200": { description: "Erased; counts per store.", ...json("ErasureAnswer") },
+      "400": error("accountRef breaks its rule."),
+      ...AUTH_ERRORS,
+      "503": error(unavailable),
+    },
+  }),
+});
+
 const versionParameter = { name: "version", in: "path", required: true, schema: { type: "string", maxLength: 200 } };
 
 function operation(summary: string, extra: Record<string, unknown>, secured = true) {
@@ -215,18 +229,32 @@ export function openApiDocument() {
           },
         }),
       },
-      "/v1/accounts/{accountRef}/history": {
-        delete: operation("Erase one account's payment history", {
+      "/v1/accounts/{accountRef}/history": ERASURE(
+        "Erase one account's payment history",
+        "Role admin. Deletes what the account-history store holds for the account (its payments and expiry alarm). Audited in erasure_events without the data: actor, time, SHA-256 of the account reference, stores and counts.",
+        "The erasure could not be logged (nothing erased: `erasure-log-unavailable`) or the history store did not confirm it (`history-unavailable`, logged as failed); `retryable: true`.",
+      ),
+      "/v1/accounts/{accountRef}": ERASURE(
+        "Erase one account's data everywhere isodense keeps it",
+        "Role admin. Deletes the account's review items with their notes, its payment conflicts, the shadow scores of its payments, and its payment history; the audit events of its items become tombstones (content gone, hash-chain digests kept, so GET /v1/audit/verify still verifies). Whole items at a time: a decision racing the erasure lands before it (and is erased) or finds no item (404). Audited in erasure_events without the data (actor, time, SHA-256 of the account reference, counts per store). `outsideIsodense` names labels already exported, which isodense cannot reach.",
+        "The erasure could not be logged (nothing erased: `erasure-log-unavailable`), or a store failed part-way (`review-store-unavailable`, `history-unavailable`; logged as failed with what went before); send it again. `retryable: true`.",
+      ),
+      "/v1/audit/verify": READ_ONLY(
+        "Verify the review audit trail's hash chain",
+        "Role admin. Seals pending events, then checks every event's digest and link from the first: `ok`, counts of events and tombstones (erased content, digests kept), the head (`eventId`, `chain`: keep it outside D1 to compare later) and `firstBroken` (the first event that does not verify, the kind of break and what it means). 200 either way.",
+      ),
+      "/v1/retention/runs": READ_ONLY(
+        "Latest retention runs",
+        "Role admin. Newest first: counts deleted per kind, items kept because no finished label export holds them, and why.",
+      ),
+      "/v1/retention/run": {
+        post: operation("Run retention now", {
           description:
-            "Role admin. Deletes what the account-history store holds for the account (its payments and expiry alarm). Audited in erasure_events without the data: actor, time, SHA-256 of the account reference, stores and counts.",
-          parameters: [{ name: "accountRef", in: "path", required: true, schema: { type: "string", minLength: 1, maxLength: 128 } }],
+            "Role admin. Deletes what is older than RETENTION_DAYS (decided items held by a finished label export, with notes and audit content; payment conflicts; shadow scores), in batches, each counted in the run's row in the same transaction; answers the run. The weekly cron runs it too.",
           responses: {
-            "200": { description: "Erased; counts per store.", ...json("ErasureAnswer") },
-            "400": error("accountRef breaks its rule."),
+            "200": { description: "The run: status `done`, or `more` when it stopped at its batch limit (the next run carries on).", ...ANY_OBJECT },
             ...AUTH_ERRORS,
-            "503": error(
-              "The erasure could not be logged (nothing erased: `erasure-log-unavailable`) or the history store did not confirm it (`history-unavailable`, logged as failed); `retryable: true`.",
-            ),
+            "503": error("The run failed part-way (`retention-failed`): what it deleted is counted, the rest is untouched; `retryable: true`."),
           },
         }),
       },

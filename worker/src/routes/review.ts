@@ -27,7 +27,7 @@ import { claimItem, decideItem, releaseItem, undoDecision, type Actor, type Acti
 import type { ActionResult, ItemDetail, QueuePage, SortDirection, SortKey, WhoAmI } from "../review/contract";
 import { decodeCursor } from "../review/cursor";
 import { evidenceFor } from "../review/evidence";
-import { ExportColumnClash, exportFeatureColumns, exportStream } from "../review/export";
+import { ExportColumnClash, exportFeatureColumns, exportStream, recordExportFinish, recordExportStart } from "../review/export";
 import { readEvents, readItem } from "../review/item-store";
 import { countStates, daySummary, listFacets, listPage, toQueueRow, type StatusRow } from "../review/queue-store";
 import {
@@ -174,10 +174,15 @@ reviewRoutes.get("/export", async (c) => {
       { field: "modelVersion", rule: `feature ${error.feature} has the name of a fixed export column; export one model version at a time with ?modelVersion=` },
     ]);
   }
-  const day = new Date().toISOString().slice(0, 10);
+  const nowMs = Date.now();
+  const day = new Date(nowMs).toISOString().slice(0, 10);
   const csv = query.format === "csv";
-  return new Response(exportStream(c.env, query.format, columns, query.modelVersion), {
+  const exportId = await recordExportStart(c.env, c.get("principal").user, query.format, query.modelVersion, nowMs);
+  const env = c.env;
+  const finished = exportId === null ? undefined : (rows: number) => recordExportFinish(env, exportId, rows);
+  return new Response(exportStream(c.env, query.format, columns, query.modelVersion, finished), {
     headers: {
+      ...(exportId === null ? {} : { "x-isodense-export-id": String(exportId) }),
       "content-type": csv ? "text/csv; charset=utf-8" : "application/x-ndjson; charset=utf-8",
       "content-disposition": `attachment; filename="isodense-labels-${day}.${csv ? "csv" : "ndjson"}"`,
       "cache-control": "no-store",

@@ -236,6 +236,14 @@ export const erasureAnswerSchema = z
   .object({
     eventId: z.number().int().describe("Row of the erasure log (erasure_events), which keeps only a SHA-256 digest of the account reference."),
     at: z.string(),
-    erased: z.record(z.string(), z.record(z.string(), z.number())).describe("Per store erased (`account-history`), counts of what went; never the data."),
+    erased: z
+      .record(z.string(), z.record(z.string(), z.number()))
+      .describe(
+        "Per store erased (`review-store`: items, notes, auditEvents, paymentConflicts, shadowScores, labelsInFinishedExports; `account-history`: keptPayments, foldedPayments), counts of what went; never the data.",
+      ),
+    outsideIsodense: z
+      .string()
+      .optional()
+      .describe("Present when some of the account's labels left isodense in label exports taken before: those copies must be erased where they are."),
   })
   .describe("An account's data erased on request.");
