@@ -226,6 +226,70 @@ describe("the review app in Chromium", () => {
     await page.getByTestId("help-overlay").waitFor({ state: "hidden" });
   });
 
+  it("shows an account's burst of flags together and decides them from the keyboard, leaving the flag a colleague claimed meanwhile", async () => {
+    // A burst from one account (invented): six payments far outside the demo model's normal traffic.
+    const normal = [...generateLedger({ rows: 400 })].find((r) => r.label === "legitimate")!;
+    const account = "acct-e2e-burst";
+    for (let k = 1; k <= 6; k++) {
+      const features: Record<string, number> = {};
+      for (const f of DEMO_FEATURES) features[f.name] = normal[f.name as keyof LedgerRow] as number;
+      features.amount *= 60 + k;
+      features.shipDistanceKm = 8_000 + k;
+      const scored = await api<{ decision: string }>("/v1/score", stack.tokens.flow, { transactionId: `e2e-burst-${k}`, features, segment: "web", accountRef: account });
+      expect(scored.body.decision).toBe("review");
+    }
+    const ids = new Map<string, number>();
+    await until(
+      async () => {
+        const listed = await api<{ items: { id: number; transactionId: string }[] }>("/v1/review/items?sort=age&direction=desc&limit=50", stack.tokens.analyst);
+        for (const i of listed.body.items) if (i.transactionId.startsWith("e2e-burst-")) ids.set(i.transactionId, i.id);
+        return ids.size === 6;
+      },
+      "the burst in the queue",
+      15_000,
+    );
+    const id = (k: number) => ids.get(`e2e-burst-${k}`)!;
+    // A colleague already decided one of them: it is not among the open flags.
+    expect((await api(`/v1/review/items/${id(6)}/claim`, stack.tokens.analyst2, {})).status).toBe(200);
+    expect((await api(`/v1/review/items/${id(6)}/decision`, stack.tokens.analyst2, { outcome: "legitimate" })).status).toBe(200);
+
+    await page.goto(`${stack.base}/#/item/${id(1)}`);
+    await page.getByTestId("evidence").waitFor();
+    await page.keyboard.press("a");
+    await page.getByTestId("account-flags").waitFor({ state: "visible" });
+    await until(async () => (await page.getByTestId("account-flag").count()) === 5, "the account's five open flags");
+    expect(await page.getByTestId("account-flags").getByTestId("state-badge").allInnerTexts()).toEqual(["Open", "Open", "Open", "Open", "Open"]);
+    expect(await page.getByTestId("account-fraud").innerText()).toMatch(/^Confirm 5 as fraud/);
+    await page.screenshot({ path: join(shots, "account-flags.png") });
+    // The colleague claims one while the dialog is open; deciding goes on for the rest.
+    expect((await api(`/v1/review/items/${id(2)}/claim`, stack.tokens.analyst2, {})).status).toBe(200);
+    await page.keyboard.press("f");
+    await page.getByTestId("account-flags").waitFor({ state: "hidden" });
+    await until(async () => (await text("status-line")).includes("confirmed as fraud"), "the report");
+    expect(await text("status-line")).toMatch(/^4 flags of acct-e2e-burst confirmed as fraud\. Left as they were: e2e-burst-2 \(claimed by tomas until \d\d:\d\d\)\.$/);
+
+    // Each decided flag has its own claim and decision rows; the colleague's claim and decision stand.
+    for (const k of [1, 3, 4, 5]) {
+      const detail = await api<{ item: { decision: { outcome: string; by: string } | null }; events: { action: string; actor: string }[] }>(
+        `/v1/review/items/${id(k)}`,
+        stack.tokens.analyst,
+      );
+      expect(detail.body.item.decision).toMatchObject({ outcome: "fraud", by: "rosa" });
+      expect(detail.body.events.map((e) => `${e.action}:${e.actor}`)).toEqual(["decide:rosa", "claim:rosa"]);
+    }
+    const held = await api<{ item: { state: string; claim: { by: string } | null } }>(`/v1/review/items/${id(2)}`, stack.tokens.analyst);
+    expect(held.body.item).toMatchObject({ state: "claimed", claim: { by: "tomas" } });
+    const kept = await api<{ item: { decision: { outcome: string; by: string } | null } }>(`/v1/review/items/${id(6)}`, stack.tokens.analyst);
+    expect(kept.body.item.decision).toMatchObject({ outcome: "legitimate", by: "tomas" });
+    // The payment view shows its own badge and the account's others in the same words.
+    await until(async () => (await text("state-badge")) === "Decided · fraud by you", "the payment's badge");
+    const others = await page.getByTestId("account-history").getByTestId("state-badge").allInnerTexts();
+    expect(others.filter((b) => b === "Decided · fraud").length).toBe(3);
+    expect(others).toContain("Claimed");
+    await page.keyboard.press("Escape");
+    await page.getByTestId("queue-table").waitFor();
+  });
+
   it("fits a 1280×800 screen and a narrow laptop window without sideways scrolling of the page", async () => {
     await page.getByTestId("queue-row").first().waitFor();
     await page.screenshot({ path: join(shots, "queue.png") });

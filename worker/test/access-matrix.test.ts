@@ -62,6 +62,8 @@ const MATRIX: Record<string, MatrixRow> = {
   "POST /v1/review/items/:id/release": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/release", body: {} },
   "POST /v1/review/items/:id/undo": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/undo", body: {} },
   "POST /v1/review/items/:id/decision": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/decision", body: { outcome: "fraud" } },
+  "GET /v1/review/items/:id/account-flags": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/account-flags" },
+  "POST /v1/review/items/:id/account-decision": { allowed: ["analyst", "admin"], path: "/v1/review/items/999999/account-decision", body: { ids: [999999], outcome: "fraud" } },
   "GET /v1/review/export": { allowed: ["analyst", "admin"] },
   "GET /v1/insights/model": { allowed: ["analyst", "admin"] },
   "GET /v1/insights/operating": { allowed: ["analyst", "admin"] },

@@ -14,7 +14,7 @@ import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { parseCsvChunks, numberCell } from "../../cli/csv";
 import { openLedger } from "../../cli/ledger";
-import type { ActionResult, AuditEvent, DaySummary, ItemDetail, QueuePage, QueueRow, StateCounts, WhoAmI } from "../src/review/contract";
+import type { AccountDecision, AccountFlags, ActionResult, AuditEvent, DaySummary, ItemDetail, QueuePage, QueueRow, StateCounts, WhoAmI } from "../src/review/contract";
 import { buildCountQuery, buildPageQuery } from "../src/review/queue-store";
 import { fitShopModel, SHOP_FEATURES, shopPayments, UNUSUAL_PAYMENT } from "./fixtures";
 import { countRows, eventually, makeTokens, startWorker, type D1Like, type RunningWorker } from "./harness";
@@ -335,6 +335,144 @@ describe("decisions and the audit trail", () => {
     await step(`/v1/review/items/${id}/release`, {}, tokens.analyst, 409);
     await step(`/v1/review/items/${id}/undo`, {}, tokens.analyst, 409);
     expect(await countRows(db, "review_events", "item_id = ?1", id)).toBe(before);
+  });
+});
+
+describe("an account's flags decided together", () => {
+  /** Actions of an item's trail in order, with who did them. */
+  const trailOf = async (id: number) => (await events(id)).map((e) => `${e.action}:${e.actor}:${e.toOutcome ?? ""}`);
+
+  it("lists the account's undecided flags oldest first, the item itself among them, and none of other accounts", async () => {
+    const ids = await flagPayments(4, "acct-burst-list");
+    await flagPayments(1, "acct-burst-other");
+    await step(`/v1/review/items/${ids[1]}/claim`, {}, idrisToken);
+    await step(`/v1/review/items/${ids[3]}/claim`);
+    await step(`/v1/review/items/${ids[3]}/decision`, { outcome: "legitimate" });
+    const flags = await get<AccountFlags>(`/v1/review/items/${ids[2]}/account-flags`);
+    expect(flags.status).toBe(200);
+    expect(flags.body.accountRef).toBe("acct-burst-list");
+    expect(flags.body.items.map((i) => [i.id, i.state])).toEqual([
+      [ids[0], "open"],
+      [ids[1], "claimed"],
+      [ids[2], "open"],
+    ]);
+    expect(flags.body.items[1].claim?.by).toBe("idris");
+    expect(flags.body.more).toBe(false);
+    const [alone] = await flagPayments(1);
+    expect((await get<AccountFlags>(`/v1/review/items/${alone}/account-flags`)).body).toEqual({ accountRef: null, items: [], more: false });
+    expect((await get<Refusal>("/v1/review/items/999999/account-flags")).status).toBe(404);
+  });
+
+  it("decides every named flag in one request, each with its own claim and decision rows and its own label", async () => {
+    const ids = await flagPayments(5, "acct-burst-all");
+    const before = await get<StateCounts>("/v1/review/counts");
+    const answer = await step<AccountDecision>(`/v1/review/items/${ids[0]}/account-decision`, { ids, outcome: "fraud", note: "One card tried five times in a minute" });
+    expect(answer.accountRef).toBe("acct-burst-all");
+    expect(answer.refused).toEqual([]);
+    expect(answer.decided.map((d) => d.item.id)).toEqual(ids);
+    for (const d of answer.decided) {
+      expect(d.item.state).toBe("decided");
+      expect(d.item.decision).toMatchObject({ outcome: "fraud", by: "rosa", note: "One card tried five times in a minute" });
+      expect(d.item.claim).toBeNull();
+      expect(d.undoableUntil).not.toBeNull();
+      expect(await trailOf(d.item.id)).toEqual(["claim:rosa:", "decide:rosa:fraud"]);
+    }
+    const after = await get<StateCounts>("/v1/review/counts");
+    expect(after.body.decided - before.body.decided).toBe(5);
+    expect(before.body.open - after.body.open).toBe(5);
+    // Each is undone on its own, like any decision.
+    expect((await post<ActionResult>(`/v1/review/items/${ids[4]}/undo`)).body.item.state).toBe("claimed");
+  });
+
+  it("reports a flag claimed by a colleague, one already decided and one of another account, leaves them as they are and decides the rest", async () => {
+    const ids = await flagPayments(5, "acct-burst-mixed");
+    const [stranger] = await flagPayments(1, "acct-burst-stranger");
+    const held = await step(`/v1/review/items/${ids[1]}/claim`, {}, idrisToken);
+    await step(`/v1/review/items/${ids[3]}/claim`, {}, idrisToken);
+    await step(`/v1/review/items/${ids[3]}/decision`, { outcome: "legitimate" }, idrisToken);
+    const trailsBefore = await Promise.all([ids[1], ids[3], stranger].map(trailOf));
+
+    const res = await post<AccountDecision>(`/v1/review/items/${ids[0]}/account-decision`, { ids: [...ids, stranger], outcome: "fraud" });
+    expect(res.status, JSON.stringify(res.body)).toBe(200);
+    expect(res.body.decided.map((d) => d.item.id)).toEqual([ids[0], ids[2], ids[4]]);
+    expect(res.body.refused.map((r) => [r.id, r.error])).toEqual([
+      [ids[1], "claimed-by-another"],
+      [ids[3], "already-decided"],
+      [stranger, "other-account"],
+    ]);
+    expect(res.body.refused[0].claim).toEqual(held.item.claim);
+    expect(res.body.refused[0].rule).toContain("is claimed by idris until");
+    expect(res.body.refused[1].rule).toContain("already decided legitimate by idris");
+    // Left exactly as they were: no row of rosa's, the colleague's claim and decision stand.
+    expect(await Promise.all([ids[1], ids[3], stranger].map(trailOf))).toEqual(trailsBefore);
+    const kept = await get<ItemDetail>(`/v1/review/items/${ids[3]}`);
+    expect(kept.body.item.decision).toMatchObject({ outcome: "legitimate", by: "idris" });
+    expect((await get<ItemDetail>(`/v1/review/items/${ids[1]}`)).body.item.claim?.by).toBe("idris");
+  });
+
+  it("answers 409 with the report when no named flag could be decided, and writes nothing", async () => {
+    const ids = await flagPayments(2, "acct-burst-none");
+    for (const id of ids) await step(`/v1/review/items/${id}/claim`, {}, idrisToken);
+    const eventsBefore = await countRows(db, "review_events");
+    const res = await post<AccountDecision & Refusal>(`/v1/review/items/${ids[0]}/account-decision`, { ids, outcome: "legitimate" });
+    expect(res.status).toBe(409);
+    expect(res.body.error).toBe("none-decided");
+    expect(res.body.decided).toEqual([]);
+    expect(res.body.refused.map((r) => r.error)).toEqual(["claimed-by-another", "claimed-by-another"]);
+    expect(res.body.problems.map((p) => p.field)).toEqual(["ids[0]", "ids[1]"]);
+    expect(await countRows(db, "review_events")).toBe(eventsBefore);
+  });
+
+  it("decides each flag exactly once when two analysts decide the same account's flags at the same moment", async () => {
+    const ids = await flagPayments(6, "acct-burst-race");
+    const [rosa, idris] = await Promise.all([
+      post<AccountDecision>(`/v1/review/items/${ids[0]}/account-decision`, { ids, outcome: "fraud" }),
+      post<AccountDecision>(`/v1/review/items/${ids[0]}/account-decision`, { ids: [...ids].reverse(), outcome: "legitimate" }, idrisToken),
+    ]);
+    const decidedBy = new Map<number, string>();
+    for (const [who, res] of [
+      ["rosa", rosa],
+      ["idris", idris],
+    ] as const) {
+      expect([200, 409]).toContain(res.status);
+      for (const d of res.body.decided) {
+        expect(decidedBy.has(d.item.id), `item ${d.item.id} decided twice`).toBe(false);
+        decidedBy.set(d.item.id, who);
+      }
+      for (const r of res.body.refused) expect(["claimed-by-another", "already-decided"]).toContain(r.error);
+    }
+    expect([...decidedBy.keys()].sort((a, b) => a - b)).toEqual([...ids].sort((a, b) => a - b));
+    for (const id of ids) {
+      const decisions = (await events(id)).filter((e) => e.action === "decide");
+      expect(decisions.map((e) => e.actor)).toEqual([decidedBy.get(id)]);
+      const outcome = (await get<ItemDetail>(`/v1/review/items/${id}`)).body.item.decision?.outcome;
+      expect(outcome).toBe(decidedBy.get(id) === "rosa" ? "fraud" : "legitimate");
+    }
+  });
+
+  it("refuses a malformed request naming the field and the rule, before touching any flag", async () => {
+    const [id] = await flagPayments(1, "acct-burst-bad");
+    const [alone] = await flagPayments(1);
+    const cases: [unknown, string, string][] = [
+      [{ outcome: "fraud" }, "ids", "is required"],
+      [{ ids: [], outcome: "fraud" }, "ids", "must name 1 to 50 items"],
+      [{ ids: Array.from({ length: 51 }, (_, k) => k + 1), outcome: "fraud" }, "ids", "must name 1 to 50 items"],
+      [{ ids: [id, id], outcome: "fraud" }, "ids", "must not name an item twice"],
+      [{ ids: [1.5], outcome: "fraud" }, "ids[0]", "positive whole number"],
+      [{ ids: [id, -3], outcome: "fraud" }, "ids[1]", "positive whole number"],
+      [{ ids: [id], outcome: "maybe" }, "outcome", "must be fraud or legitimate"],
+      [{ ids: [id], outcome: "fraud", every: true }, "every", "is not an accepted field; accepted: ids, outcome, note"],
+    ];
+    for (const [body, field, rule] of cases) {
+      const res = await post<Refusal>(`/v1/review/items/${id}/account-decision`, body);
+      expect(res.status, JSON.stringify(body)).toBe(400);
+      expect(res.body.problems[0].field, JSON.stringify(res.body)).toBe(field);
+      expect(res.body.problems[0].rule).toContain(rule);
+    }
+    const noAccount = await post<Refusal>(`/v1/review/items/${alone}/account-decision`, { ids: [alone], outcome: "fraud" });
+    expect(noAccount.status).toBe(409);
+    expect(noAccount.body.error).toBe("no-account");
+    expect(await trailOf(id)).toEqual([]);
   });
 });
 

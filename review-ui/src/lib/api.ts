@@ -4,6 +4,8 @@
  * functions are thin wrappers, one per route.
  */
 import type {
+  AccountDecision,
+  AccountFlags,
   ActionResult,
   DaySummary,
   EventPage,
@@ -144,6 +146,9 @@ export const releaseItem = (id: number): Promise<ActionResult> => send("POST", `
 export const decideItem = (id: number, outcome: Outcome, note?: string): Promise<ActionResult> =>
   send("POST", `/v1/review/items/${id}/decision`, note ? { outcome, note } : { outcome });
 export const undoDecision = (id: number): Promise<ActionResult> => send("POST", `/v1/review/items/${id}/undo`, {});
+export const accountFlags = (id: number): Promise<AccountFlags> => send("GET", `/v1/review/items/${id}/account-flags`);
+export const decideAccount = (id: number, ids: number[], outcome: Outcome, note?: string): Promise<AccountDecision> =>
+  send("POST", `/v1/review/items/${id}/account-decision`, note ? { ids, outcome, note } : { ids, outcome });
 export const daySummary = (): Promise<DaySummary> => send("GET", "/v1/review/summary");
 export const facets = (): Promise<Facets> => send("GET", "/v1/review/facets");
 

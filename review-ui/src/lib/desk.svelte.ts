@@ -5,7 +5,8 @@
  */
 import * as api from "./api";
 import type { ListQuery } from "./api";
-import type { DaySummary, Facets, ItemDetail, Outcome, QueueRow, SortDirection, SortKey, StateCounts } from "../../../worker/src/review/contract";
+import type { AccountDecision, DaySummary, Facets, ItemDetail, Outcome, QueueRow, SortDirection, SortKey, StateCounts } from "../../../worker/src/review/contract";
+import { describeAccountDecision } from "./words";
 
 export type Filters = Pick<ListQuery, "state" | "segment" | "modelVersion" | "selection" | "from" | "to">;
 
@@ -152,6 +153,39 @@ export class Desk {
       (row) => `${row.transactionId} ${outcome === "fraud" ? "confirmed as fraud" : "dismissed as legitimate"}. Press u to undo.`,
       true,
     );
+  }
+
+  /**
+   * Decides the named flags of the account of item `anchorId` together; each flag claimed by a
+   * colleague or already decided is left as it was and named in the status line. Resolves true
+   * when the request was answered (whatever was decided), false when it failed.
+   */
+  async decideAccount(anchorId: number, items: readonly QueueRow[], outcome: Outcome, note?: string): Promise<boolean> {
+    if (this.busy) return false;
+    this.busy = true;
+    const names = new Map(items.map((i) => [i.id, i.transactionId]));
+    try {
+      const answer = await api.decideAccount(
+        anchorId,
+        items.map((i) => i.id),
+        outcome,
+        note,
+      );
+      const changed = new Map(answer.decided.map((d) => [d.item.id, d.item]));
+      this.rows = this.rows.map((r) => changed.get(r.id) ?? r);
+      this.notice = { text: describeAccountDecision(answer, names, clock), tone: answer.refused.length > 0 ? "error" : "info" };
+      return true;
+    } catch (err) {
+      // Nothing decided: the refusal carries the same report, worded the same way.
+      const body = err instanceof api.ApiError && err.code === "none-decided" ? (err.body as AccountDecision) : null;
+      if (body) this.notice = { text: describeAccountDecision(body, names, clock), tone: "error" };
+      else this.fail(err);
+      return body !== null;
+    } finally {
+      this.busy = false;
+      if (this.detail) void this.openDetail(this.detail.item.id);
+      void this.refreshCounts();
+    }
   }
 
   /** Reverts the analyst's latest decision while its undo window is open. */

@@ -1,7 +1,7 @@
 /**
  * The keyboard map, in one list so the help overlay and the handler cannot drift apart.
  */
-export type Command = "down" | "up" | "open" | "back" | "claim" | "release" | "fraud" | "legitimate" | "note" | "undo" | "help" | "next-page" | "previous-page";
+export type Command = "down" | "up" | "open" | "back" | "claim" | "release" | "fraud" | "legitimate" | "note" | "account" | "undo" | "help" | "next-page" | "previous-page";
 
 export interface KeyBinding {
   keys: string[];
@@ -19,6 +19,7 @@ export const BINDINGS: readonly KeyBinding[] = [
   { keys: ["f"], command: "fraud", meaning: "Confirm as fraud (claims it first if needed)" },
   { keys: ["l"], command: "legitimate", meaning: "Dismiss as legitimate (claims it first if needed)" },
   { keys: ["n"], command: "note", meaning: "Write a note, then decide" },
+  { keys: ["a"], command: "account", meaning: "See the account's open flags together and decide them in one go" },
   { keys: ["u"], command: "undo", meaning: "Undo your last decision" },
   { keys: ["]"], command: "next-page", meaning: "Next page" },
   { keys: ["["], command: "previous-page", meaning: "Previous page" },

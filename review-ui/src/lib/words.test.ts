@@ -1,5 +1,5 @@
 import { describe, expect, it } from "vitest";
-import { BASIS_WORDS, badgeWords, ESTIMATOR_WORDS, rowSubject, SELECTION_WORDS, SHAPE_WORDS, STATE_WORDS, TRANSFORM_WORDS } from "./words";
+import { BASIS_WORDS, badgeWords, describeAccountDecision, ESTIMATOR_WORDS, rowSubject, SELECTION_WORDS, SHAPE_WORDS, STATE_WORDS, TRANSFORM_WORDS } from "./words";
 
 const clock = (iso: string) => iso.slice(11, 16);
 const until = "2026-12-04T14:05:00.000Z";
@@ -31,5 +31,33 @@ describe("the app's words for the API's values", () => {
     // The account history knows the outcome only.
     expect(badgeWords({ state: "decided", outcome: "legitimate" }, "rosa", clock).detail).toBe("legitimate");
     expect(badgeWords({ state: "open" }, "rosa", clock)).toEqual({ state: "open", word: "Open", detail: "" });
+  });
+
+  it("sums up an account decision, naming each flag left as it was and why", () => {
+    const names = new Map([
+      [1, "tx-1"],
+      [2, "tx-2"],
+      [3, "tx-3"],
+    ]);
+    const decided = [{ item: { id: 1 }, undoableUntil: until }] as never;
+    const all = describeAccountDecision({ accountRef: "acct-7", outcome: "fraud", decided, refused: [] }, names, clock);
+    expect(all).toBe("1 flag of acct-7 confirmed as fraud.");
+    const some = describeAccountDecision(
+      {
+        accountRef: "acct-7",
+        outcome: "legitimate",
+        decided,
+        refused: [
+          { id: 2, error: "claimed-by-another", rule: "", claim: { by: "tomas", until } },
+          { id: 3, error: "already-decided", rule: "" },
+        ],
+      },
+      names,
+      clock,
+    );
+    expect(some).toBe("1 flag of acct-7 dismissed as legitimate. Left as they were: tx-2 (claimed by tomas until 14:05), tx-3 (already decided).");
+    expect(describeAccountDecision({ accountRef: "acct-7", outcome: "fraud", decided: [], refused: [{ id: 9, error: "not-found", rule: "" }] }, names, clock)).toBe(
+      "No flag of acct-7 was decided. Left as they were: item 9 (not found).",
+    );
   });
 });

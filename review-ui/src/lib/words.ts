@@ -5,7 +5,7 @@
  */
 import type { CutoffBasis } from "../../../shared-model/src/tuning";
 import type { CovarianceShape, EstimatorName, TransformKind } from "../../../shared-model/src/types";
-import type { ClaimView, Outcome, ReviewState, Selection } from "../../../worker/src/review/contract";
+import type { AccountDecision, ClaimView, Outcome, RefusedItem, ReviewState, Selection } from "../../../worker/src/review/contract";
 
 /** The three states of a review item, as the API names them (`open`, `claimed`, `decided`). */
 export const STATE_WORDS: Record<ReviewState, string> = { open: "Open", claimed: "Claimed", decided: "Decided" };
@@ -90,4 +90,31 @@ export function rowSubject(row: { state: ReviewState; claim: ClaimView | null; d
 export function featureLabel(feature: { name: string; transform: string }): string {
   const words = TRANSFORM_WORDS[feature.transform as TransformKind] ?? "another transform";
   return words ? `${feature.name} (${words})` : feature.name;
+}
+
+/** Why one flag of an account decision was left as it was, in a few words. */
+function refusalWords(refused: RefusedItem, clock: (iso: string) => string): string {
+  if (refused.error === "claimed-by-another" && refused.claim) return `claimed by ${refused.claim.by} until ${clock(refused.claim.until)}`;
+  if (refused.error === "already-decided") return "already decided";
+  if (refused.error === "too-many-decision-changes") return "decided too often in the last hour";
+  if (refused.error === "other-account") return "of another account";
+  return "not found";
+}
+
+/**
+ * One line for the status bar after an account's flags were decided together: how many, and each
+ * flag left as it was with why. `names` maps item ids to payment ids.
+ * @example describeAccountDecision(answer, names, clock) // "3 flags of acct-7 confirmed as fraud. Left as they were: tx-9 (claimed by tomas until 14:05)."
+ */
+export function describeAccountDecision(
+  answer: Pick<AccountDecision, "accountRef" | "outcome" | "decided" | "refused">,
+  names: ReadonlyMap<number, string>,
+  clock: (iso: string) => string,
+): string {
+  const verb = answer.outcome === "fraud" ? "confirmed as fraud" : "dismissed as legitimate";
+  const n = answer.decided.length;
+  const head = n === 0 ? `No flag of ${answer.accountRef} was decided.` : `${n} ${n === 1 ? "flag" : "flags"} of ${answer.accountRef} ${verb}.`;
+  if (answer.refused.length === 0) return head;
+  const left = answer.refused.map((r) => `${names.get(r.id) ?? `item ${r.id}`} (${refusalWords(r, clock)})`).join(", ");
+  return `${head} Left as they were: ${left}.`;
 }

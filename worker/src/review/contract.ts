@@ -204,3 +204,32 @@ export interface Facets {
   segments: string[];
   modelVersions: string[];
 }
+
+/** GET /v1/review/items/:id/account-flags: the undecided flags of the item's account, oldest first. */
+export interface AccountFlags {
+  /** null when the item carries no account reference (then `items` is empty). */
+  accountRef: string | null;
+  /** Open items and items under a live claim (anyone's), the item itself among them. */
+  items: QueueRow[];
+  /** More undecided flags exist than the limit (50) shown. */
+  more: boolean;
+}
+
+/** One item of an account decision that was left as it was, and why. */
+export interface RefusedItem {
+  id: number;
+  /** As for one item: `claimed-by-another`, `already-decided`, `too-many-decision-changes`, `not-found`, `other-account`. */
+  error: string;
+  rule: string;
+  /** Who holds it, for `claimed-by-another`. */
+  claim?: ClaimView;
+}
+
+/** POST /v1/review/items/:id/account-decision: what was decided and what was left. */
+export interface AccountDecision {
+  accountRef: string;
+  outcome: Outcome;
+  /** Each decided item's new queue line, in the order asked. */
+  decided: ActionResult[];
+  refused: RefusedItem[];
+}

@@ -4,7 +4,7 @@
  */
 import { z } from "zod";
 import { misleadingCharacter, NOTE_TEXT_RULE } from "./note-text";
-import { EVENT_PAGE, MAX_EVENT_PAGE, MAX_NOTE_LENGTH } from "./settings";
+import { ACCOUNT_FLAGS_LIMIT, EVENT_PAGE, MAX_EVENT_PAGE, MAX_NOTE_LENGTH } from "./settings";
 
 const DATE = /^\d{4}-\d{2}-\d{2}$/;
 const DATE_PREFIX = /^(\d{4})-(\d{2})-(\d{2})/;
@@ -98,6 +98,20 @@ export const decisionBodySchema = z.strictObject({
 });
 
 export const DECISION_BODY_KEYS = ["outcome", "note"];
+
+/** Body of POST /v1/review/items/:id/account-decision: the items seen, one outcome, one note. */
+export const accountDecisionBodySchema = decisionBodySchema.extend({
+  ids: z
+    .array(
+      z.number().refine((id) => Number.isSafeInteger(id) && id > 0, { error: "must be an item id: a positive whole number" }),
+      { error: "must be a list of item ids" },
+    )
+    .min(1, { error: `must name 1 to ${ACCOUNT_FLAGS_LIMIT} items` })
+    .max(ACCOUNT_FLAGS_LIMIT, { error: `must name 1 to ${ACCOUNT_FLAGS_LIMIT} items` })
+    .refine((ids) => new Set(ids).size === ids.length, { error: "must not name an item twice" }),
+});
+
+export const ACCOUNT_DECISION_BODY_KEYS = ["ids", ...DECISION_BODY_KEYS];
 
 /**
  * Turns `from`/`to` into a half-open ms range: a day `to` includes that whole day; an instant

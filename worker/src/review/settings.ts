@@ -18,6 +18,8 @@ export const EVENT_PAGE = 20;
 export const MAX_EVENT_PAGE = 100;
 /** Lines of account history on the payment view. */
 export const HISTORY_LIMIT = 10;
+/** Most undecided flags of one account shown, and decided, together (a burst is about a dozen). */
+export const ACCOUNT_FLAGS_LIMIT = 50;
 
 /** Start of the UTC day holding `nowMs`, in ms. */
 export function utcDayStart(nowMs: number): number {

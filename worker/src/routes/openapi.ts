@@ -19,7 +19,7 @@ import {
   shadowRequestSchema,
   erasureAnswerSchema,
 } from "./schemas";
-import { countsQuerySchema, decisionBodySchema, eventsQuerySchema, exportQuerySchema, listQuerySchema } from "../review/schemas";
+import { accountDecisionBodySchema, countsQuerySchema, decisionBodySchema, eventsQuerySchema, exportQuerySchema, listQuerySchema } from "../review/schemas";
 import { modelQuerySchema, operatingQuerySchema, publishCutoffSchema, shadowQuerySchema, windowQuerySchema } from "../insights/schemas";
 
 type Schema = z.ZodType;
@@ -36,6 +36,7 @@ const components: Record<string, Schema> = {
   Pointer: pointerAnswerSchema,
   ShadowRequest: shadowRequestSchema,
   DecisionRequest: decisionBodySchema,
+  AccountDecisionRequest: accountDecisionBodySchema,
   PublishCutoffRequest: publishCutoffSchema,
   ErasureAnswer: erasureAnswerSchema,
 };
@@ -296,6 +297,30 @@ export function openApiDocument() {
             "404": error("No such item."),
             "409": error("No live claim of yours on the item."),
             "429": error("Ten decisions or undos of yours on this item within the hour; Retry-After says when."),
+          },
+        }),
+      },
+      "/v1/review/items/{id}/account-flags": {
+        get: operation("The undecided flags of the item's account", {
+          description: "Roles analyst, admin. Open and claimed items of the same account, oldest first, at most 50; `{ accountRef, items, more }`.",
+          parameters: [itemParameter],
+          responses: { "200": { description: "The account's undecided flags.", ...ANY_OBJECT }, "400": error("A malformed id."), ...AUTH_ERRORS, "404": error("No such item.") },
+        }),
+      },
+      "/v1/review/items/{id}/account-decision": {
+        post: operation("Decide flags of the item's account together", {
+          description:
+            "Roles analyst, admin. `{ ids, outcome, note? }`: each named item of the account is claimed and decided as one item would be, with its own audit rows; " +
+            "an item claimed by someone else, already decided, of another account or past the decision-change bound is reported in `refused` and left as it is. " +
+            "Answers `{ accountRef, outcome, decided, refused }`.",
+          parameters: [itemParameter],
+          requestBody: { required: true, ...json("AccountDecisionRequest") },
+          responses: {
+            "200": { description: "At least one item decided; the others reported.", ...ANY_OBJECT },
+            ...BODY_ERRORS,
+            ...AUTH_ERRORS,
+            "404": error("No such item."),
+            "409": error("The item carries no account reference (`no-account`), or no named item could be decided (`none-decided`, with the report)."),
           },
         }),
       },

@@ -12,6 +12,9 @@
  * - POST /items/:id/decision      { outcome: "fraud" | "legitimate", note? } under your live claim
  *                                  (429 past 10 decisions or undos of yours on the item within an hour)
  * - POST /items/:id/undo          revert your last decision within 5 minutes
+ * - GET  /items/:id/account-flags the undecided flags of the item's account, oldest first
+ * - POST /items/:id/account-decision  { ids, outcome, note? } decide those of them you saw, each as one
+ *                                  item (claimed by another or already decided: reported, left as it is)
  * - GET  /summary                 today's figures against ANALYST_DAILY_CAPACITY
  * - GET  /export?format=csv|ndjson  the labelled set
  *
@@ -23,14 +26,17 @@ import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
 import { parseQuery } from "./query";
+import { decideAccountItems, readAccountFlags } from "../review/account-decision";
 import { claimItem, decideItem, releaseItem, undoDecision, type Actor, type ActionResult as StoreResult } from "../review/actions";
-import type { ActionResult, ItemDetail, QueuePage, SortDirection, SortKey, WhoAmI } from "../review/contract";
+import type { AccountDecision, ActionResult, ItemDetail, QueuePage, SortDirection, SortKey, WhoAmI } from "../review/contract";
 import { decodeCursor } from "../review/cursor";
 import { evidenceFor } from "../review/evidence";
 import { ExportColumnClash, exportFeatureColumns, exportStream, recordExportFinish, recordExportStart } from "../review/export";
 import { readEvents, readItem } from "../review/item-store";
 import { countStates, daySummary, listFacets, listPage, toQueueRow, type StatusRow } from "../review/queue-store";
 import {
+  ACCOUNT_DECISION_BODY_KEYS,
+  accountDecisionBodySchema,
   COUNTS_QUERY_KEYS,
   countsQuerySchema,
   DECISION_BODY_KEYS,
@@ -160,6 +166,41 @@ reviewRoutes.post("/items/:id/decision", jsonBody(BODY_LIMITS.score), async (c) 
   if (!parsed.success) return problemResponse(c, 400, "invalid-body", problemsFromZod(parsed.error, raw, "", DECISION_BODY_KEYS));
   const note = parsed.data.note === undefined || parsed.data.note.trim() === "" ? null : parsed.data.note;
   return act(c, (env, id, actor) => decideItem(env, id, actor, parsed.data.outcome, note));
+});
+
+reviewRoutes.get("/items/:id/account-flags", async (c) => {
+  const id = itemId(c);
+  if (id instanceof Response) return id;
+  const flags = await readAccountFlags(c.env, id, Date.now());
+  if (!flags) return problemResponse(c, 404, "not-found", [{ field: "id", rule: `no review item has id ${id}` }]);
+  return c.json(flags);
+});
+
+reviewRoutes.post("/items/:id/account-decision", jsonBody(BODY_LIMITS.score), async (c) => {
+  const id = itemId(c);
+  if (id instanceof Response) return id;
+  const raw = c.get("body");
+  const parsed = accountDecisionBodySchema.safeParse(raw);
+  if (!parsed.success) return problemResponse(c, 400, "invalid-body", problemsFromZod(parsed.error, raw, "", ACCOUNT_DECISION_BODY_KEYS));
+  const { ids, outcome } = parsed.data;
+  const note = parsed.data.note === undefined || parsed.data.note.trim() === "" ? null : parsed.data.note;
+  const { user, role } = c.get("principal");
+  let result: Awaited<ReturnType<typeof decideAccountItems>>;
+  try {
+    result = await decideAccountItems(c.env, id, ids, { user, role, nowMs: Date.now() }, outcome, note);
+  } catch (error) {
+    // Each item's claim and decision are their own D1 batches: what was decided before the
+    // failure stays decided with its audit rows; the analyst reloads the account's flags and goes on.
+    console.error(JSON.stringify({ event: "review-store-unavailable", path: new URL(c.req.url).pathname, error: String(error) }));
+    const rule = "the review store could not be written part way; reload the account's flags to see which were decided, then try the rest again";
+    return problemResponse(c, 503, "review-store-unavailable", [{ field: "ids", rule }], { retryable: true, headers: { "retry-after": "2" } });
+  }
+  if (!result.ok) return problemResponse(c, result.status, result.error, [{ field: "id", rule: result.rule }]);
+  const answer: AccountDecision = result.answer;
+  // Every item refused: nothing changed, a conflict; otherwise the per-item report is the answer.
+  if (answer.decided.length === 0)
+    return c.json({ error: "none-decided", problems: answer.refused.map((r) => ({ field: `ids[${ids.indexOf(r.id)}]`, rule: r.rule })), ...answer }, 409);
+  return c.json(answer);
 });
 
 reviewRoutes.get("/export", async (c) => {
