@@ -11,8 +11,9 @@
  *
  * Options: --url (default http://127.0.0.1:8787), --token (default: a flow credential from
  * .dev.vars), --ledger (default demo-ledger/data/ledger.csv), --spec (default demo-ledger/spec.json),
- * --limit N, --batch N (default 100),
- * --parallel N requests in flight (default 4).
+ * --limit N, --batch N (default 100), --batch-accounts N (payment records: most distinct accounts
+ * per request, default 25 as the service's MAX_BATCH_ACCOUNTS), --parallel N requests in flight
+ * (default 4).
  */
 import { existsSync } from "node:fs";
 import { dirname, join, resolve } from "node:path";
@@ -35,6 +36,15 @@ const spec: CommandSpec = {
     { name: "spec", kind: "string", valueName: "spec.json", description: "record spec deriving the features of a records ledger", defaultText: "demo-ledger/spec.json" },
     { name: "limit", kind: "integer", valueName: "N", min: 1, description: "send at most N payments", defaultText: "all" },
     { name: "batch", kind: "integer", valueName: "N", min: 1, max: 1000, description: "payments per request (≤ the service's MAX_BATCH)", defaultText: "100" },
+    {
+      name: "batch-accounts",
+      kind: "integer",
+      valueName: "N",
+      min: 1,
+      max: 1000,
+      description: "payment records: most distinct accounts per request (≤ the service's MAX_BATCH_ACCOUNTS)",
+      defaultText: "25",
+    },
     {
       name: "parallel",
       kind: "integer",
@@ -68,6 +78,7 @@ async function main(): Promise<number> {
   const specPath = resolve(stringOption(args, "spec") ?? join(root, "demo-ledger/spec.json"));
   const limit = numberOption(args, "limit") ?? Number.POSITIVE_INFINITY;
   const batchSize = numberOption(args, "batch") ?? 100;
+  const batchAccounts = numberOption(args, "batch-accounts") ?? 25;
   const parallelOption = numberOption(args, "parallel");
   let token = stringOption(args, "token");
   if (token === undefined) {
@@ -105,6 +116,8 @@ async function main(): Promise<number> {
   const started = Date.now();
   const inFlight = new Set<Promise<void>>();
   let batch: Record<string, unknown>[] = [];
+  /** Accounts the payment records of `batch` name: each is one history call at the service. */
+  let accounts = new Set<string>();
 
   let failure: Error | null = null;
   const send = (payments: Record<string, unknown>[]): void => {
@@ -140,11 +153,18 @@ async function main(): Promise<number> {
   try {
     for await (const payment of payments) {
       if (tally.sent >= limit || failure) break;
+      const account = payment.cell("accountRef");
+      if (paymentFields && !accounts.has(account) && accounts.size === batchAccounts) {
+        send(batch);
+        [batch, accounts] = [[], new Set()];
+        if (inFlight.size >= parallel) await Promise.race(inFlight);
+      }
+      accounts.add(account);
       batch.push(paymentFields ? paymentRecordBody(payment, paymentFields) : readyFeaturesBody(payment, model.segmentBy));
       tally.sent++;
       if (batch.length === batchSize) {
         send(batch);
-        batch = [];
+        [batch, accounts] = [[], new Set()];
         if (inFlight.size >= parallel) await Promise.race(inFlight);
         if (tally.sent % (batchSize * 20) === 0) {
           process.stdout.write(`  ${tally.sent} sent, ${tally.review} to review, ${tally.audit} audit sample\n`);

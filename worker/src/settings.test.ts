@@ -29,6 +29,7 @@ describe("readSettings", () => {
       AUDIT_SAMPLE_RATE: 0.002,
       MODEL_REFRESH_SECONDS: 10,
       MAX_BATCH: 100,
+      MAX_BATCH_ACCOUNTS: 25,
       DRIFT_FLUSH_PAYMENTS: 500,
       DRIFT_FLUSH_SECONDS: 30,
       REFIT_AFTER_DAYS: 28,

@@ -53,6 +53,8 @@ export const settingsSchema = z.object({
   MODEL_REFRESH_SECONDS: numberSetting({ min: 0, max: 3600, unit: "seconds" }),
   /** Most payments accepted by one batch call. */
   MAX_BATCH: numberSetting({ min: 1, max: MAX_BATCH_CEILING, whole: true, unit: "payments" }),
+  /** Most distinct accounts the payment form may name in one batch (one history call each: a subrequest). */
+  MAX_BATCH_ACCOUNTS: numberSetting({ min: 1, max: MAX_BATCH_CEILING, whole: true, unit: "accounts" }),
   /** How long a transaction id names one payment, from its first sight (idempotency/claims.ts). */
   IDEMPOTENCY_WINDOW_SECONDS: numberSetting({ min: 1, max: 7 * 86_400, unit: "seconds" }),
   /** An isolate flushes its traffic counts after this many payments… */

@@ -7,7 +7,9 @@
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { fitShopModel } from "./fixtures";
 import { countRows, publishModel, startWorker, type RunningWorker } from "./harness";
-import { deriveOffline, fitRecordModel, SHOP_RECORD_SPEC, shopLedger, type LedgerRow } from "./record-fixtures";
+import { parseRecordSpec } from "../../shared-model/src";
+import { testDepth } from "../../shared-model/src/test-support";
+import { deriveOffline, fitRecordModel, SHOP_RECORD_SPEC, SHOP_RECORD_SPEC_JSON, shopLedger, type LedgerRow } from "./record-fixtures";
 
 interface Answer {
   transactionId: string;
@@ -25,6 +27,12 @@ type BatchResult = { index: number; outcome: "scored"; result: Answer } | ({ ind
 const DAY = 86_400_000;
 const HOUR = 3_600_000;
 const NAMES = SHOP_RECORD_SPEC.features.map((f) => f.name);
+
+/** A ledger row's fields as the payment form carries them (the id goes in transactionId). */
+function fieldsOf(payment: LedgerRow): LedgerRow {
+  const { paymentId: _id, ...fields } = payment;
+  return fields;
+}
 
 /** Largest relative difference between the worker's derived values and the offline ones. */
 function worstRelative(derived: Record<string, number>, expected: Float64Array): number {
@@ -52,16 +60,16 @@ describe("scoring payment records (replays: clock check off)", () => {
   });
 
   const score = async (transactionId: string, payment: LedgerRow, extra: Record<string, unknown> = {}) => {
-    const { paymentId: _id, ...fields } = payment;
-    const response = await worker.post("/v1/score", { transactionId, payment: fields, ...extra }, worker.tokens.flow);
+    const response = await worker.post("/v1/score", { transactionId, payment: fieldsOf(payment), ...extra }, worker.tokens.flow);
     return { status: response.status, body: (await response.json()) as Answer & Refusal };
   };
 
   test("a replay in time order, in batches, derives every feature of every payment as the offline derivation does (≤ 1e-12 relative)", async () => {
     const expected = deriveOffline(SHOP_RECORD_SPEC, replayed);
     const derived: Record<string, number>[] = [];
-    for (let i = 0; i < replayed.length; i += 50) {
-      const payments = replayed.slice(i, i + 50).map(({ paymentId, ...fields }) => ({ transactionId: paymentId, payment: fields }));
+    // 25 payments name at most 25 accounts (MAX_BATCH_ACCOUNTS).
+    for (let i = 0; i < replayed.length; i += 25) {
+      const payments = replayed.slice(i, i + 25).map(({ paymentId, ...fields }) => ({ transactionId: paymentId, payment: fields }));
       const response = await worker.post("/v1/score/batch", { payments }, worker.tokens.flow);
       expect(response.status).toBe(200);
       const body = (await response.json()) as { results: BatchResult[] };
@@ -108,6 +116,51 @@ describe("scoring payment records (replays: clock check off)", () => {
     expect(footprint.keptPayments + footprint.foldedPayments).toBe(1);
     const next = await score("repeat-2", { ...payment, createdAt: "2026-04-02T09:00:00Z" });
     expect(next.body.derived!.paymentsLast24h).toBe(1);
+  });
+
+  test("a transactionId repeated with other content is refused (409) and leaves no trace in any account's history", async () => {
+    const payment = { paymentId: "x", createdAt: "2026-04-03T08:00:00Z", accountRef: "acct-conflict-a", channel: "web", amount: 30, accountCreatedAt: "2026-01-01T00:00:00Z" };
+    // First sent with ready features: no history is involved.
+    const ready = await worker.post(
+      "/v1/score",
+      { transactionId: "conflict-1", features: (await score("conflict-probe", { ...payment, accountRef: "acct-probe" })).body.derived, segment: "web" },
+      worker.tokens.flow,
+    );
+    expect(ready.status).toBe(200);
+    const asRecord = await score("conflict-1", payment);
+    expect(asRecord.status).toBe(409);
+    expect((await (await worker.history("acct-conflict-a")).footprint()).keptPayments).toBe(0);
+    // First sent as a record of one account, then as another account's record: only the first is held.
+    expect((await score("conflict-2", payment)).status).toBe(200);
+    const elsewhere = await score("conflict-2", { ...payment, accountRef: "acct-conflict-b", amount: 31 });
+    expect(elsewhere.status).toBe(409);
+    expect((await (await worker.history("acct-conflict-a")).footprint()).keptPayments).toBe(1);
+    expect(await worker.history("acct-conflict-b").then((h) => h.footprint())).toMatchObject({ keptPayments: 0, historyBytes: 0, lastActivityMs: null });
+    // The same in a batch.
+    const batch = await worker.post(
+      "/v1/score/batch",
+      { payments: [{ transactionId: "conflict-2", payment: { ...fieldsOf(payment), accountRef: "acct-conflict-c" } }] },
+      worker.tokens.flow,
+    );
+    expect(((await batch.json()) as { results: BatchResult[] }).results[0]).toMatchObject({ outcome: "refused", status: 409 });
+    expect((await (await worker.history("acct-conflict-c")).footprint()).keptPayments).toBe(0);
+  });
+
+  test("a batch naming more distinct accounts than MAX_BATCH_ACCOUNTS (25) is refused whole with a 400 naming the rule, and records nothing", async () => {
+    const payment = (k: number) => ({ createdAt: "2026-04-04T08:00:00Z", accountRef: `acct-cap-${k}`, channel: "web", amount: 20 + k, accountCreatedAt: "2026-01-01T00:00:00Z" });
+    const over = Array.from({ length: 26 }, (_, k) => ({ transactionId: `cap-${k}`, payment: payment(k) }));
+    const refused = await worker.post("/v1/score/batch", { payments: over }, worker.tokens.flow);
+    expect(refused.status).toBe(400);
+    const body = (await refused.json()) as Refusal;
+    expect(body.problems).toHaveLength(1);
+    expect(body.problems[0].field).toBe("payments");
+    expect(body.problems[0].rule).toMatch(/^must name at most 25 distinct accounts in the payment form \(MAX_BATCH_ACCOUNTS: .*\)\. Actual: 26; send the rest in another batch$/);
+    expect((await (await worker.history("acct-cap-0")).footprint()).keptPayments).toBe(0);
+    // 25 accounts, some with two payments, pass.
+    const within = [...over.slice(0, 25), { transactionId: "cap-25b", payment: { ...payment(3), createdAt: "2026-04-04T09:00:00Z" } }];
+    const accepted = await worker.post("/v1/score/batch", { payments: within }, worker.tokens.flow);
+    expect(accepted.status).toBe(200);
+    expect(((await accepted.json()) as { counts: { scored: number } }).counts.scored).toBe(26);
   });
 
   test("a payment that arrives after later ones is derived from what the account had before its own time", async () => {
@@ -239,5 +292,48 @@ describe("the payment time against the server clock", () => {
     expect(((await refused.json()) as Refusal).problems).toEqual([
       { field: "payment", rule: "cannot be used with model mready: it reads ready features (no record spec); send features" },
     ]);
+  });
+});
+
+/**
+ * A spec without windows and a retention of one minute (the shortest a spec states), so the alarm
+ * comes due within the test: it waits about a minute in real time, so it runs at the thorough depth.
+ */
+const ONE_MINUTE_SPEC = parseRecordSpec({
+  record: { id: "paymentId", time: "createdAt", account: "accountRef", segment: "channel", lateness: "1m", retention: "1m" },
+  features: SHOP_RECORD_SPEC_JSON.features.filter((f) => f.name === "amount" || f.name === "accountAgeDays" || f.name === "hourOfDay"),
+});
+
+describe.runIf(testDepth() === "thorough")("history expiry", () => {
+  let worker: RunningWorker;
+
+  beforeAll(async () => {
+    worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0", PAYMENT_CLOCK_TOLERANCE_SECONDS: "0" } });
+    const ledger = shopLedger({ accounts: 30, payments: 400, startMs: Date.UTC(2026, 2, 1), days: 20, seed: 19 });
+    await publishModel(worker, await fitRecordModel(ledger, "mrec-expiry", ONE_MINUTE_SPEC));
+  });
+  afterAll(async () => {
+    await worker?.dispose();
+  });
+
+  test("the alarm deletes an idle account's whole state once its retention has passed", { timeout: 150_000 }, async () => {
+    const payment = { createdAt: "2026-04-01T10:00:00Z", accountRef: "acct-expiry", channel: "web", amount: 25, accountCreatedAt: "2026-01-01T00:00:00Z" };
+    expect((await worker.post("/v1/score", { transactionId: "expiry-1", payment }, worker.tokens.flow)).status).toBe(200);
+    const stub = await worker.history("acct-expiry");
+    const before = await stub.footprint();
+    expect(before).toMatchObject({ keptPayments: 1 });
+    expect(before.alarmAtMs! - before.lastActivityMs!).toBeLessThanOrEqual(60_000);
+    // Wait past the alarm, then until the handler has run (the simulator fires alarms on its own clock).
+    await new Promise((done) => setTimeout(done, Math.max(0, before.alarmAtMs! - Date.now())));
+    let after = await stub.footprint();
+    for (let tries = 0; tries < 60 && after.lastActivityMs !== null; tries++) {
+      await new Promise((done) => setTimeout(done, 500));
+      after = await stub.footprint();
+    }
+    expect(after).toEqual({ keptPayments: 0, foldedPayments: 0, historyBytes: 0, databaseBytes: after.databaseBytes, lastActivityMs: null, alarmAtMs: null });
+    // Nothing carries over: the account's next payment starts from an empty history.
+    const again = await worker.post("/v1/score", { transactionId: "expiry-2", payment: { ...payment, createdAt: "2026-04-01T10:05:00Z" } }, worker.tokens.flow);
+    expect(again.status).toBe(200);
+    expect((await stub.footprint()).keptPayments).toBe(1);
   });
 });

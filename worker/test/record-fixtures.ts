@@ -81,9 +81,9 @@ export function deriveOffline(spec: RecordSpec, rows: readonly LedgerRow[]): Flo
   });
 }
 
-/** Fits a model to the derived features of `rows`, carrying the record spec. */
-export async function fitRecordModel(rows: readonly LedgerRow[], version: string): Promise<ModelArtifact> {
-  const derived = deriveOffline(SHOP_RECORD_SPEC, rows);
+/** Fits a model to the derived features of `rows`, carrying the record spec (the shop's unless another is given). */
+export async function fitRecordModel(rows: readonly LedgerRow[], version: string, spec: RecordSpec = SHOP_RECORD_SPEC): Promise<ModelArtifact> {
+  const derived = deriveOffline(spec, rows);
   const fitRows: FitRow[] = derived.map((values, i) => ({ values, segment: String(rows[i].channel) }));
   const { artifact } = await fitModel(
     {
@@ -92,8 +92,8 @@ export async function fitRecordModel(rows: readonly LedgerRow[], version: string
       },
     },
     {
-      features: SHOP_RECORD_SPEC.features,
-      recordSpec: SHOP_RECORD_SPEC,
+      features: spec.features,
+      recordSpec: spec,
       shape: "full",
       estimator: "classical",
       segmentBy: "channel",

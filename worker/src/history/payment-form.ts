@@ -88,6 +88,26 @@ export function checkPaymentForm(
 }
 
 /**
+ * Distinct accounts the payment-form entries of a batch name (the record's account field, as sent):
+ * each costs one call to its account's history. Entries in the features form, and payment objects
+ * without a text account, name none (they are refused or scored without a history call).
+ *
+ * @example batchAccounts([{ payment: { accountRef: "a1" } }, { payment: { accountRef: "a1" } }], model) // 1
+ */
+export function batchAccounts(payments: readonly unknown[], model: LoadedModel): number {
+  const field = model.recordSpec?.record?.account;
+  if (field === undefined) return 0;
+  const accounts = new Set<string>();
+  for (const entry of payments) {
+    const payment = typeof entry === "object" && entry !== null ? (entry as { payment?: unknown }).payment : undefined;
+    if (typeof payment !== "object" || payment === null) continue;
+    const account = (payment as Record<string, unknown>)[field];
+    if (typeof account === "string") accounts.add(account);
+  }
+  return accounts.size;
+}
+
+/**
  * Turns the derived raw values into the model's raw vector, checking each against its transform's
  * domain (a derived value outside it is refused like a sent one, under `derived.<name>`).
  *

@@ -41,6 +41,10 @@ interface SeenRow extends Record<string, SqlStorageValue> {
 /** The Durable Object class (exported from the worker's main module; bound as IDEMPOTENCY). */
 export class IdempotencyObject extends DurableObject<unknown> {
   private readonly sql: SqlStorage;
+  /** The window stored in `settings`, as this instance knows it (read once, written when it changes). */
+  private storedWindowMs: number | null;
+  /** True once this instance knows an alarm is set (the sweep re-arms itself while ids are held). */
+  private alarmKnownSet = false;
 
   constructor(ctx: DurableObjectState, env: unknown) {
     super(ctx, env);
@@ -54,6 +58,7 @@ export class IdempotencyObject extends DurableObject<unknown> {
     )`);
     this.sql.exec("CREATE INDEX IF NOT EXISTS seen_by_time ON seen (first_seen_ms)");
     this.sql.exec("CREATE TABLE IF NOT EXISTS settings (name TEXT PRIMARY KEY, value INTEGER NOT NULL)");
+    this.storedWindowMs = this.sql.exec<{ value: number }>("SELECT value FROM settings WHERE name = 'window_ms'").toArray()[0]?.value ?? null;
   }
 
   /**
@@ -78,8 +83,16 @@ export class IdempotencyObject extends DurableObject<unknown> {
         return { kind: "first" };
       }),
     );
-    this.sql.exec("INSERT OR REPLACE INTO settings (name, value) VALUES ('window_ms', ?)", windowMs);
-    if ((await this.ctx.storage.getAlarm()) === null) await this.ctx.storage.setAlarm(nowMs + windowMs);
+    // On the hot path: the window is written only when it changes and the alarm looked up once per
+    // instance (the sweep re-arms itself while ids are held), not a read and a write on every call.
+    if (this.storedWindowMs !== windowMs) {
+      this.sql.exec("INSERT OR REPLACE INTO settings (name, value) VALUES ('window_ms', ?)", windowMs);
+      this.storedWindowMs = windowMs;
+    }
+    if (!this.alarmKnownSet) {
+      if ((await this.ctx.storage.getAlarm()) === null) await this.ctx.storage.setAlarm(nowMs + windowMs);
+      this.alarmKnownSet = true;
+    }
     return verdicts;
   }
 
@@ -95,11 +108,15 @@ export class IdempotencyObject extends DurableObject<unknown> {
   /** Deletes ids past the window and sets the next alarm for the oldest one left. */
   override async alarm(): Promise<void> {
     const now = Date.now();
+    this.alarmKnownSet = false;
     const windowMs = this.sql.exec<{ value: number }>("SELECT value FROM settings WHERE name = 'window_ms'").toArray()[0]?.value;
     if (windowMs === undefined) return;
     this.sql.exec("DELETE FROM seen WHERE first_seen_ms <= ?", now - windowMs);
     const oldest = this.sql.exec<{ oldest: number | null }>("SELECT MIN(first_seen_ms) AS oldest FROM seen").toArray()[0]?.oldest ?? null;
-    if (oldest !== null) await this.ctx.storage.setAlarm(Math.max(oldest + windowMs, now + MIN_SWEEP_INTERVAL_MS));
+    if (oldest !== null) {
+      await this.ctx.storage.setAlarm(Math.max(oldest + windowMs, now + MIN_SWEEP_INTERVAL_MS));
+      this.alarmKnownSet = true;
+    }
   }
 
   /** Ids held right now (tests and operators). */

@@ -5,6 +5,7 @@
  */
 import { Hono, type Context } from "hono";
 import type { AppEnv } from "../app-env";
+import { batchAccounts } from "../history/payment-form";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
@@ -34,6 +35,13 @@ scoreRoutes.post("/score/batch", authenticate(), allow("flow"), jsonBody(BODY_LI
   const payments = envelope.data.payments;
   if (payments.length < 1 || payments.length > call.settings.MAX_BATCH) {
     return problemResponse(c, 400, "invalid-request", [{ field: "payments", rule: `must hold 1 to ${call.settings.MAX_BATCH} payments (MAX_BATCH). Actual: ${payments.length}` }]);
+  }
+  const accounts = batchAccounts(payments, call.snapshot.live);
+  if (accounts > call.settings.MAX_BATCH_ACCOUNTS) {
+    const rule =
+      `must name at most ${call.settings.MAX_BATCH_ACCOUNTS} distinct accounts in the payment form (MAX_BATCH_ACCOUNTS: each account's history is one subrequest, ` +
+      `and the Workers Free plan allows 50 a request). Actual: ${accounts}; send the rest in another batch`;
+    return problemResponse(c, 400, "invalid-request", [{ field: "payments", rule }]);
   }
   const results = await scoreMany(call, payments, (index) => `payments[${index}].`);
   const counts = { scored: 0, refused: 0, review: 0, auditSample: 0 };

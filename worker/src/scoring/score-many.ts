@@ -2,7 +2,8 @@
  * The one scoring path behind `POST /v1/score` (a batch of one) and `POST /v1/score/batch`:
  * validate every payment, claim its transaction id in the durable idempotency store (one awaited
  * round trip per shard involved), answer repeats with the stored answer, refuse conflicting repeats
- * (409, recorded for the analysts), score, hand the review items off, keep the answers (after the
+ * (409, recorded for the analysts), derive the payment records' features at their accounts'
+ * histories (a second awaited round trip, only for the payment form), score, hand the review items off, keep the answers (after the
  * response, through `waitUntil`) and count the traffic. Each payment ends as an {@link Outcome}:
  * scored, or refused with the status it would have had alone.
  *
@@ -31,6 +32,7 @@ export const SCORING_SETTINGS = [
   "AUDIT_SAMPLE_RATE",
   "MODEL_REFRESH_SECONDS",
   "MAX_BATCH",
+  "MAX_BATCH_ACCOUNTS",
   "IDEMPOTENCY_WINDOW_SECONDS",
   "PAYMENT_CLOCK_TOLERANCE_SECONDS",
   "HISTORY_TIMEOUT_MS",
@@ -118,10 +120,10 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
   }
 
   const claimed = entries.filter((e): e is ValidEntry => e.state === "valid");
-  // Payment records go to their accounts' histories while their ids are claimed: two stores, one
-  // wait. Safe in parallel because the history counts an id once whatever the claim says (a
-  // repeat answered from the idempotency store, or refused as a conflict, is not recorded again).
-  const derivation = deriveFromHistory(call, claimed);
+  // Ids are claimed first; only then do payment records still open (not answered from the
+  // idempotency store, not refused as a conflict) go to their accounts' histories, so a refused
+  // repeat leaves no trace there. Recording and then undoing would not do: another payment of the
+  // account could be derived in between, and a late or far-off record can fold or reset the history.
   const claims = await claimTransactions(
     env,
     claimed.map((e) => ({ transactionId: e.payment.transactionId, contentHash: e.bodyHash })),
@@ -141,9 +143,9 @@ export async function scoreMany(call: ScoringCall, payments: readonly unknown[],
     }
   });
 
-  // Payment records still open (not answered from the idempotency store, not refused) take the
-  // features their histories derived.
-  completeFromHistory(call, entries, await derivation, prefixOf);
+  // Payment records still open take the features their histories derive (and record).
+  const open = claimed.filter((e) => entries[e.index] === e);
+  completeFromHistory(call, entries, await deriveFromHistory(call, open), prefixOf);
 
   const scoredAt = new Date().toISOString();
   const valid = claimed.filter((e): e is ReadyEntry => entries[e.index] === e && !isPending(e.payment));
