@@ -4,13 +4,15 @@
  * its own process. Figures: bench/results/sources.json. Usage: node bin/run-ts.js bench/sources.ts [--no-10m]
  */
 import { execFileSync } from "node:child_process";
-import { existsSync, mkdirSync, renameSync, writeFileSync } from "node:fs";
+import { existsSync, mkdirSync, readFileSync, renameSync, writeFileSync } from "node:fs";
 import { cpus, loadavg, tmpdir } from "node:os";
 import { join } from "node:path";
 import { DuckEngine, sqlString } from "../cli/sources/duckdb-engine";
 import { writeBenchLedger } from "./sources-ledger";
 
 const root = new URL("../", import.meta.url);
+/** The V8 flag on the shebang line of bin/isodense.js. */
+const CLI_V8_FLAG = readFileSync(new URL("bin/isodense.js", root), "utf8").match(/--max-semi-space-size=\d+/)![0];
 const work = join(tmpdir(), "isodense-bench-sources");
 mkdirSync(work, { recursive: true });
 const csv = join(work, "ledger-1m.csv");
@@ -32,7 +34,8 @@ if (with10m && !existsSync(parquet10)) {
 engine.close();
 
 function fit(ledger: string): { seconds: number; peakRssMiB: number } {
-  const out = execFileSync(process.execPath, ["bin/run-ts.js", "bench/fit-source-child.ts", ledger, join(work, "model.json")], { cwd: root, encoding: "utf8" });
+  // With the launcher's V8 flag (bin/isodense.js), so the figures are those of the command as users run it.
+  const out = execFileSync(process.execPath, [CLI_V8_FLAG, "bin/run-ts.js", "bench/fit-source-child.ts", ledger, join(work, "model.json")], { cwd: root, encoding: "utf8" });
   return JSON.parse(out.trim().split("\n").pop()!);
 }
 

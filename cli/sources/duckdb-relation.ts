@@ -30,7 +30,7 @@ export async function duckRelation(engine: DuckEngine, source: DataSource, csvCo
       const { header, doubles } = csvColumns;
       const types = header.map((name) => (doubles.has(name) ? "DOUBLE" : "VARCHAR"));
       const columns = header.map((name, i) => `${sqlString(name)}: '${types[i]}'`);
-      const relation = `read_csv(${sqlString(source.path)}, header = true, auto_detect = false, delim = ',', quote = '"', escape = '"', columns = {${columns.join(", ")}})`;
+      const relation = `read_csv(${sqlString(source.path)}, header = true, auto_detect = false, buffer_size = 2097152, delim = ',', quote = '"', escape = '"', columns = {${columns.join(", ")}})`;
       return { relation, header, types };
     }
     let relation: string;

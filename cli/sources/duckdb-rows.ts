@@ -5,7 +5,7 @@
  * (`checkRawValue`, `parseLabel`). A CSV file is parsed by DuckDB; when it holds a bad cell, the
  * project's own CSV reader reads it again to name the file, line and column exactly as before.
  */
-import type { DuckDBValue } from "@duckdb/node-api";
+import { DuckDBDoubleVector, type DuckDBValue } from "@duckdb/node-api";
 import { checkRawValue } from "../../shared-model/src/features";
 import { quoteIdentifier } from "../../shared-model/src/sql-moments";
 import { CsvError, openCsvTable } from "../csv";
@@ -19,13 +19,11 @@ import type { DataSource } from "./source";
 export interface RowBlock {
   /** Rows in the block. */
   size: number;
-  /** Raw value of feature j in row r: `values[j][r]`. */
+  /** Raw value of feature j in row r: `values[j][r]`; may be DuckDB's own memory, valid until the next block is read. */
   values: Float64Array[];
   labels: Label[];
   /** Segment text, `null` when absent or empty. */
   segments: (string | null)[];
-  /** Id text (the 1-based row number when the source has no id column). */
-  ids: string[];
   /** 1-based number of the block's first row in the source. */
   firstRow: number;
 }
@@ -33,7 +31,7 @@ export interface RowBlock {
 /** A source opened in DuckDB: its layout and the SQL relation that selects its columns. */
 export interface OpenedSource {
   layout: LedgerLayout;
-  /** A parenthesised SELECT of `v_0…v_{k−1}` (doubles), `label_text`, `seg`, `row_id`. */
+  /** A parenthesised SELECT of `v_0…v_{k−1}` (doubles), `label_text` and `seg` (ids are not read: a fit needs none). */
   selection: string;
 }
 
@@ -56,7 +54,6 @@ export async function openSource(engine: DuckEngine, source: DataSource, request
   const select = request.features.map((f, j) => `CAST(${quoteIdentifier(f.name)} AS DOUBLE) AS v_${j}`);
   select.push(layout.labelColumn === null ? "NULL::VARCHAR AS label_text" : `CAST(${quoteIdentifier(layout.labelColumn)} AS VARCHAR) AS label_text`);
   select.push(layout.segmentColumn === null ? "NULL::VARCHAR AS seg" : `CAST(${quoteIdentifier(layout.segmentColumn)} AS VARCHAR) AS seg`);
-  select.push(layout.idColumn === null ? "NULL::VARCHAR AS row_id" : `CAST(${quoteIdentifier(layout.idColumn)} AS VARCHAR) AS row_id`);
   return { layout, selection: `(SELECT ${select.join(", ")} FROM ${relation})` };
 }
 
@@ -79,37 +76,47 @@ export async function* readBlocks(
       const size = chunk.rowCount;
       const block: RowBlock = {
         size,
-        values: Array.from({ length: k }, () => new Float64Array(size)),
-        labels: new Array(size),
-        segments: new Array(size),
-        ids: new Array(size),
+        values: new Array<Float64Array>(k),
+        labels: new Array(size).fill(null),
+        segments: new Array(size).fill(null),
         firstRow: rowNumber + 1,
       };
+      let firstBad = size;
       for (let j = 0; j < k; j++) {
         const vector = chunk.getColumnVector(j);
-        const out = block.values[j];
         const feature = request.features[j];
-        for (let r = 0; r < size; r++) {
-          const value = vector.getItem(r);
-          const problem = typeof value === "number" ? checkRawValue(feature, value) : "the cell is empty; a number is required";
-          if (problem !== null) await badValue(source, request, rowNumber + r + 1, opened.layout.header[opened.layout.featureIndex[j]], problem);
-          out[r] = value as number;
+        let out = doubleItems(vector, size);
+        if (out === null) {
+          out = new Float64Array(size);
+          for (let r = 0; r < size; r++) out[r] = (vector.getItem(r) as number | null) ?? Number.NaN;
+        }
+        block.values[j] = out;
+        // Only the first bad row matters: later columns are checked up to it.
+        for (let r = 0; r < firstBad; r++) if (checkRawValue(feature, out[r]) !== null) firstBad = r;
+      }
+      if (firstBad < size) {
+        for (let j = 0; j < k; j++) {
+          const value = chunk.getColumnVector(j).getItem(firstBad) as number | null;
+          const problem = value === null ? "the cell is empty; a number is required" : checkRawValue(request.features[j], value);
+          if (problem !== null) await badValue(source, request, rowNumber + firstBad + 1, opened.layout.header[opened.layout.featureIndex[j]], problem);
         }
       }
-      const labels = chunk.getColumnValues(k);
-      const segments = chunk.getColumnValues(k + 1);
-      const ids = chunk.getColumnValues(k + 2);
+      const labels = opened.layout.labelColumn === null ? null : chunk.getColumnValues(k);
+      const segments = opened.layout.segmentColumn === null ? null : chunk.getColumnValues(k + 1);
       for (let r = 0; r < size; r++) {
         rowNumber++;
-        const labelText = text(labels[r]);
-        const label = labelText === null ? null : parseLabel(labelText);
-        if (label === undefined) {
-          await badValue(source, request, rowNumber, opened.layout.labelColumn!, `'${labelText}' is not a label; expected fraud, legitimate, 1, 0 or an empty cell`);
+        if (labels !== null) {
+          const labelText = text(labels[r]);
+          const label = labelText === null ? null : parseLabel(labelText);
+          if (label === undefined) {
+            await badValue(source, request, rowNumber, opened.layout.labelColumn!, `'${labelText}' is not a label; expected fraud, legitimate, 1, 0 or an empty cell`);
+          }
+          block.labels[r] = label ?? null;
         }
-        block.labels[r] = label ?? null;
-        const segment = text(segments[r]);
-        block.segments[r] = segment === "" ? null : segment;
-        block.ids[r] = text(ids[r]) ?? String(rowNumber);
+        if (segments !== null) {
+          const segment = text(segments[r]);
+          block.segments[r] = segment === "" ? null : segment;
+        }
       }
       yield block;
     }
@@ -119,6 +126,28 @@ export async function* readBlocks(
     if (source.kind === "csv") await locateInCsv(source, request);
     throw new InputError(source.label, "cannot be read", `${source.label}: ${(error as Error).message}`);
   }
+}
+
+/**
+ * The doubles of a DOUBLE vector without NULLs, as DuckDB holds them (no copy per value), or null
+ * for any other vector. node-api keeps `items` and `validity` private in its types; reading them
+ * saves a BigInt validity test per value (32 million for 1M × 32), and the exact pin of
+ * @duckdb/node-api keeps the shape fixed. A vector with NULLs takes `getItem`.
+ */
+function doubleItems(vector: unknown, size: number): Float64Array | null {
+  if (!(vector instanceof DuckDBDoubleVector)) return null;
+  const raw = vector as unknown as { items?: unknown; validity?: { data?: unknown; offset?: unknown } };
+  if (!(raw.items instanceof Float64Array) || raw.items.length < size) return null;
+  const mask = raw.validity?.data;
+  if (mask === null) return raw.items.subarray(0, size);
+  // DuckDB's CSV reader keeps a validity mask even when every value is valid: check its bits 32 at a time.
+  if (!(mask instanceof BigUint64Array) || raw.validity?.offset !== 0) return null;
+  const words = new Uint32Array(mask.buffer, mask.byteOffset, mask.length * 2);
+  const full = size >>> 5;
+  for (let w = 0; w < full; w++) if (words[w] !== 0xffffffff) return null;
+  const rest = size & 31;
+  if (rest > 0 && (words[full] & ((1 << rest) - 1)) !== (1 << rest) - 1) return null;
+  return raw.items.subarray(0, size);
 }
 
 function text(value: DuckDBValue): string | null {

@@ -28,6 +28,7 @@ import type { DataSource } from "./source";
  */
 export async function fitSource(source: DataSource, request: LedgerRequest, options: FitOptions): Promise<{ artifact: ModelArtifact; report: FitReport }> {
   const engine = await DuckEngine.open();
+  let closed = false;
   try {
     const opened = await openSource(engine, source, request);
     const seed = options.seed ?? DEFAULT_FIT_SEED;
@@ -35,21 +36,16 @@ export async function fitSource(source: DataSource, request: LedgerRequest, opti
     const rows = new RowAccumulator(featuresFromSample(options.features, presampled ?? []), options.segmentBy, seed);
     const progress = options.onProgress ?? (() => {});
     for await (const block of readBlocks(engine, source, opened, request)) {
-      const raw = new Float64Array(block.values.length);
-      for (let r = 0; r < block.size; r++) {
-        if (block.labels[r] === "fraud") {
-          rows.fraudRows++;
-          continue;
-        }
-        for (let j = 0; j < raw.length; j++) raw[j] = block.values[j][r];
-        rows.add(raw, block.segments[r], block.firstRow + r);
-      }
+      rows.addBlock(block.values, block.size, block.labels, block.segments, block.firstRow);
       progress("read", rows.rowsUsed + rows.fraudRows);
     }
     const { result, sample } = rows.finish();
+    // DuckDB's buffers go before the estimation allocates its own.
+    engine.close();
+    closed = true;
     return await fitFromMoments(result, { rows: presampled ?? sample }, { ...options, source: options.source ?? source.label }, "read through DuckDB");
   } finally {
-    engine.close();
+    if (!closed) engine.close();
   }
 }
 

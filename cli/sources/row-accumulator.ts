@@ -6,6 +6,7 @@
  * of raw rows with their segments (the streaming fit's sample, Algorithm R).
  */
 import { modelColumns, transformInto } from "../../shared-model/src/features";
+import type { Label } from "../ledger";
 import { FIT_SAMPLE_ROWS, type FitRow } from "../../shared-model/src/fit";
 import type { MomentsResult } from "../../shared-model/src/fit-from-moments";
 import { countSegment } from "../../shared-model/src/fit-read-pass";
@@ -38,6 +39,17 @@ class BlockedMoments {
     this.moments.pushColumns(this.columns, this.filled, this.scratch);
     this.filled = 0;
   }
+  /** Adds rows `from` to `to` (exclusive) of a block held column by column, already transformed. */
+  addColumns(columns: readonly Float64Array[], from: number, to: number): void {
+    let r = from;
+    while (r < to) {
+      const take = Math.min(BLOCK_ROWS - this.filled, to - r);
+      for (let c = 0; c < this.n; c++) this.columns[c].set(columns[c].subarray(r, r + take), this.filled);
+      this.filled += take;
+      r += take;
+      if (this.filled === BLOCK_ROWS) this.flush();
+    }
+  }
 }
 
 /** Accumulates rows in the order they come; `finish()` hands over what `fitFromMoments` needs. */
@@ -53,6 +65,8 @@ export class RowAccumulator {
   private readonly observedMax: number[];
   private readonly x: Float64Array;
   private readonly scratch = new Float64Array(BLOCK_ROWS * 64);
+  /** Every feature is used as it is: model columns are the raw columns. */
+  private readonly untransformed: boolean;
   /** Rows used and rows left out as fraud so far. */
   rowsUsed = 0;
   fraudRows = 0;
@@ -69,6 +83,7 @@ export class RowAccumulator {
     this.observedMin = new Array<number>(this.k).fill(Infinity);
     this.observedMax = new Array<number>(this.k).fill(-Infinity);
     this.x = new Float64Array(this.n);
+    this.untransformed = features.every((f) => f.transform === "none");
   }
 
   private blocked(): BlockedMoments {
@@ -104,7 +119,48 @@ export class RowAccumulator {
     }
   }
 
-  /** Flushes the pending blocks and returns the moments and the sample. */
+  /**
+   * Adds a block of rows given column by column (`values[j][r]`, raw values already checked),
+   * counting and leaving out rows labelled fraud. Without segments or transforms the columns are
+   * copied into the pending block as they are: the same numbers as row by row, without
+   * assembling each row three times.
+   * @param firstRow 1-based row of the source of the block's first row, for the segment errors
+   */
+  addBlock(values: readonly Float64Array[], size: number, labels: readonly Label[], segments: readonly (string | null)[], firstRow: number): void {
+    if (this.untransformed && this.segmentBy === null && !labels.includes("fraud")) {
+      const k = this.k;
+      for (let j = 0; j < k; j++) {
+        const column = values[j];
+        let min = this.observedMin[j];
+        let max = this.observedMax[j];
+        for (let r = 0; r < size; r++) {
+          const v = column[r];
+          if (v < min) min = v;
+          if (v > max) max = v;
+        }
+        this.observedMin[j] = min;
+        this.observedMax[j] = max;
+      }
+      for (let r = 0; r < size; r++) {
+        const slot = this.reservoir.offerColumns(values, r);
+        if (slot >= 0) this.sampleSegments[slot] = null;
+      }
+      this.pooled.addColumns(values, 0, size);
+      this.rowsUsed += size;
+      return;
+    }
+    const raw = new Float64Array(this.k);
+    for (let r = 0; r < size; r++) {
+      if (labels[r] === "fraud") {
+        this.fraudRows++;
+        continue;
+      }
+      for (let j = 0; j < raw.length; j++) raw[j] = values[j][r];
+      this.add(raw, segments[r], firstRow + r);
+    }
+  }
+
+  /** Flushes the pending blocks and returns the moments and the sample (its rows are views of the reservoir: no copy). */
   finish(): { result: MomentsResult; sample: FitRow[] } {
     const moments = new Map<string, MomentAccumulator>();
     this.pooled.flush();
@@ -115,7 +171,7 @@ export class RowAccumulator {
     }
     const k = this.k;
     const rows = this.reservoir.rows();
-    const sample: FitRow[] = Array.from({ length: this.reservoir.size }, (_, r) => ({ values: rows.slice(r * k, r * k + k), segment: this.sampleSegments[r] }));
+    const sample: FitRow[] = Array.from({ length: this.reservoir.size }, (_, r) => ({ values: rows.subarray(r * k, r * k + k), segment: this.sampleSegments[r] }));
     const lambdas = this.features.map((f) => f.lambda);
     return { result: { moments, observedMin: this.observedMin, observedMax: this.observedMax, lambdas, fraudRows: this.fraudRows }, sample };
   }

@@ -33,22 +33,40 @@ export class Reservoir {
    * @returns the slot the row now occupies, or -1 when it was not kept
    */
   offer(values: ArrayLike<number>): number {
-    const t = this.seen++;
-    let slot = t;
-    if (t >= this.capacity) {
-      slot = Math.floor(this.random.next() * (t + 1));
-      if (slot >= this.capacity) return -1;
-    } else {
-      if ((t + 1) * this.width > this.data.length) {
-        const grown = new Float64Array(Math.min(this.capacity, 2 * (this.data.length / this.width)) * this.width);
-        grown.set(this.data);
-        this.data = grown;
-      }
-      this.size = t + 1;
-    }
+    const slot = this.claim();
+    if (slot < 0) return -1;
     const w = this.width;
     for (let j = 0; j < w; j++) this.data[slot * w + j] = values[j];
     return slot;
+  }
+
+  /**
+   * Offers row `r` of a block held column by column (`columns[j][r]`), with the same draw as
+   * {@link offer}: a stream offered either way keeps the same sample.
+   * @returns the slot the row now occupies, or -1 when it was not kept
+   */
+  offerColumns(columns: readonly ArrayLike<number>[], r: number): number {
+    const slot = this.claim();
+    if (slot < 0) return -1;
+    const w = this.width;
+    for (let j = 0; j < w; j++) this.data[slot * w + j] = columns[j][r];
+    return slot;
+  }
+
+  /** Algorithm R's step for the next row: the slot it takes, or -1; grows the storage while filling. */
+  private claim(): number {
+    const t = this.seen++;
+    if (t >= this.capacity) {
+      const slot = Math.floor(this.random.next() * (t + 1));
+      return slot < this.capacity ? slot : -1;
+    }
+    if ((t + 1) * this.width > this.data.length) {
+      const grown = new Float64Array(Math.min(this.capacity, 2 * (this.data.length / this.width)) * this.width);
+      grown.set(this.data);
+      this.data = grown;
+    }
+    this.size = t + 1;
+    return t;
   }
 
   /** The sampled rows, row-major (`size` rows of `width` values). */
