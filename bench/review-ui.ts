@@ -164,20 +164,20 @@ async function browserFigures(stack: Stack): Promise<{ firstPaint: Summary; firs
 
     const decide = async (claimFirst: boolean): Promise<number[]> => {
       const times: number[] = [];
-      const firstWaiting = () =>
-        page.getByTestId("queue-row").evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=standing]")?.textContent?.trim() === "Waiting"));
+      const firstOpen = () =>
+        page.getByTestId("queue-row").evaluateAll((els) => els.findIndex((e) => e.querySelector("[data-testid=state-badge]")?.getAttribute("data-state") === "open"));
       for (let k = 0; k < DECISIONS; k++) {
-        let index = await firstWaiting();
+        let index = await firstOpen();
         if (index < 0) {
-          // Every line of this page is decided: a reload lists the next waiting payments.
+          // Every line of this page is decided: a reload lists the next open payments.
           await page.reload();
           await page.getByTestId("queue-row").first().waitFor();
-          index = await firstWaiting();
+          index = await firstOpen();
         }
         await page.getByTestId("queue-row").nth(index).click();
         if (claimFirst) {
           await page.keyboard.press("c");
-          await page.waitForFunction((i) => document.querySelectorAll("[data-testid=standing]")[i]?.textContent?.trim().startsWith("Yours"), index);
+          await page.waitForFunction((i) => document.querySelectorAll("[data-testid=state-badge]")[i]?.textContent?.trim().startsWith("Claimed · by you"), index);
         }
         await page.evaluate((i) => {
           const w = window as unknown as { __pressed: number; __decided?: number };
@@ -185,7 +185,7 @@ async function browserFigures(stack: Stack): Promise<{ firstPaint: Summary; firs
           window.addEventListener("keydown", () => (w.__pressed = performance.now()), { capture: true, once: true });
           // No named helper functions in here: the bundler's name-keeping wrapper does not exist in the page.
           const observer = new MutationObserver(() => {
-            if (document.querySelectorAll("[data-testid=standing]")[i]?.textContent?.trim().startsWith("Fraud")) {
+            if (document.querySelectorAll("[data-testid=state-badge]")[i]?.textContent?.trim().startsWith("Decided · fraud")) {
               w.__decided = performance.now();
               observer.disconnect();
             }

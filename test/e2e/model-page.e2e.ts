@@ -128,6 +128,10 @@ describe("the model page in Chromium", () => {
     await page.getByTestId("cutoff-slider").fill(String(Math.round(live * 0.8)));
     await until(async () => (await text("expected-flags")) !== lower.flags, "the slider to move the figures");
     await page.getByTestId("pr-trial").waitFor();
+    // Plain words on screen: no raw enum value (cutoff basis, estimator, transform) and no "considered".
+    const shown = await page.evaluate(() => document.body.innerText);
+    expect(shown).not.toMatch(/flag-rate|ledoit-wolf|cyclic-hour|log1p|\bconsidered\b|Same call on|of the flags of either/);
+    expect(shown).toContain("trial cutoff");
     // The whole page in one viewport, so the fixed status line sits at the bottom, not mid-page.
     const height = await page.evaluate(() => document.documentElement.scrollHeight);
     await page.setViewportSize({ width: 1360, height });
@@ -139,6 +143,7 @@ describe("the model page in Chromium", () => {
 
   it("publishes the trial cutoff after a confirmation step, then rolls back to the previous version", async () => {
     await page.getByTestId("publish-start").click();
+    expect(await text("publish-caution")).toMatch(/whose payments are sent to review and how much friction good customers meet.*change approval applies/s);
     await page.getByTestId("publish-reason").fill("catch more of the weekend card testing");
     await page.getByTestId("publish-confirm").click();
     await until(async () => (await page.getByTestId("model-notice").count()) > 0 && (await text("model-notice")).startsWith("Published"), "the publish notice");
