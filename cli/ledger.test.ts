@@ -92,10 +92,21 @@ describe("reading a ledger", () => {
     const rows = [];
     for await (const row of ledger.rows) rows.push({ ...row, values: Array.from(row.values) });
     expect(rows).toEqual([
-      { line: 2, rowNumber: 1, id: "A1", label: null, segment: "web", values: [2, 12.5] },
-      { line: 3, rowNumber: 2, id: "A2", label: "fraud", segment: null, values: [1, 80] },
-      { line: 4, rowNumber: 3, id: "A,3", label: "legitimate", segment: "app", values: [3, 7] },
+      { line: 2, rowNumber: 1, id: "A1", label: null, segment: "web", values: [2, 12.5], timeMs: Number.NaN },
+      { line: 3, rowNumber: 2, id: "A2", label: "fraud", segment: null, values: [1, 80], timeMs: Number.NaN },
+      { line: 4, rowNumber: 3, id: "A,3", label: "legitimate", segment: "app", values: [3, 7], timeMs: Number.NaN },
     ]);
+  });
+
+  it("reads each payment's time from the time column and names the line of a time that is not ISO-8601", async () => {
+    const path = await file("timed.csv", "id,amount,at\nA1,12.5,2026-11-02T09:30:00Z\nA2,80,2026-11-02T10:00:00+01:00\nA3,7,yesterday\n");
+    const ledger = await openLedger(path, { features: plain("amount"), timeColumn: "at" });
+    const times: number[] = [];
+    const error = await failure(async () => {
+      for await (const row of ledger.rows) times.push(row.timeMs);
+    });
+    expect(times).toEqual([Date.UTC(2026, 10, 2, 9, 30), Date.UTC(2026, 10, 2, 9, 0)]);
+    expect(error.message).toContain("line 4, column 'at': 'yesterday' is not an ISO-8601 time with a zone");
   });
 
   it("numbers the rows when there is no id column", async () => {

@@ -48,6 +48,26 @@ export function labelCell(text: string, file: string, line: number, column: stri
   return label;
 }
 
+/**
+ * An ISO-8601 time with a zone (2026-11-02T09:30:00Z, …+01:00) in epoch milliseconds; NaN otherwise.
+ * @example parseIsoTime("2026-11-02T09:30:00Z") // 1793611800000
+ */
+export function parseIsoTime(text: string): number {
+  const value = text.trim();
+  return /^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:\d{2})$/.test(value) ? Date.parse(value) : Number.NaN;
+}
+
+/**
+ * Reads a time cell (ISO-8601 with a zone, e.g. 2026-11-02T09:30:00Z) or raises an error naming the
+ * line and the column.
+ * @throws CsvError "ledger.csv line 4, column 'createdAt': 'yesterday' is not an ISO-8601 time with a zone"
+ */
+export function timeCell(text: string, file: string, line: number, column: string): number {
+  const ms = parseIsoTime(text);
+  if (!Number.isFinite(ms)) throw new CsvError(file, line, column, `'${text}' is not an ISO-8601 time with a zone, such as 2026-11-02T09:30:00Z`);
+  return ms;
+}
+
 /** Which columns of a ledger to read. */
 export interface LedgerRequest {
   /** Features, read as raw numbers in this order. */
@@ -65,6 +85,11 @@ export interface LedgerRequest {
    * column is read as it is.
    */
   records?: RecordsSpec;
+  /**
+   * Column holding each payment's time (ISO-8601 UTC), for commands that read a time window. A
+   * ledger of payment records takes its time from the record spec instead.
+   */
+  timeColumn?: string;
 }
 
 /** Column positions resolved against one ledger's header. */
@@ -84,6 +109,9 @@ export interface LedgerLayout {
   segmentIndex: number;
   /** The spec the features are derived with, or `null` when the ledger has the feature columns. */
   records: RecordsSpec | null;
+  /** Column of each payment's time and its index, or `null`/-1 (a records ledger's time comes from its spec). */
+  timeColumn: string | null;
+  timeIndex: number;
 }
 
 /**
@@ -128,7 +156,9 @@ export function resolveLedgerLayout(header: readonly string[], file: string, req
       );
     }
   }
-  return { file, header: [...header], featureIndex, idColumn, idIndex, labelColumn, labelIndex, segmentColumn, segmentIndex, records };
+  const timeColumn = request.timeColumn ?? (records !== null ? records.record.time : null);
+  const timeIndex = timeColumn === null ? -1 : requireColumn(header, timeColumn, file, "--time-column");
+  return { file, header: [...header], featureIndex, idColumn, idIndex, labelColumn, labelIndex, segmentColumn, segmentIndex, records, timeColumn, timeIndex };
 }
 
 /** One validated ledger row. */
@@ -144,6 +174,8 @@ export interface LedgerRow {
   segment: string | null;
   /** Raw feature values in feature order (a fresh array per row). */
   values: Float64Array;
+  /** The payment's time in epoch milliseconds; NaN when the ledger has no time column. */
+  timeMs: number;
 }
 
 /** A ledger opened for one pass. */
@@ -179,8 +211,9 @@ export async function openLedger(source: string | DataSource, request: LedgerReq
       rowNumber++;
       const cells = record.cells;
       const values = new Float64Array(k);
+      let timeMs = Number.NaN;
       if (deriver !== null) {
-        deriver.derive(cells, record.line, values);
+        timeMs = deriver.derive(cells, record.line, values).timeMs;
         for (let j = 0; j < k; j++) {
           const problem = checkRawValue(features[j], values[j]);
           if (problem !== null) throw new CsvError(file, record.line, features[j].name, `derived value ${problem}`);
@@ -193,6 +226,7 @@ export async function openLedger(source: string | DataSource, request: LedgerReq
         if (problem !== null) throw new CsvError(file, record.line, column, problem);
         values[j] = value;
       }
+      if (deriver === null && layout.timeIndex >= 0) timeMs = timeCell(cells[layout.timeIndex], file, record.line, header[layout.timeIndex]);
       const label = layout.labelIndex < 0 ? null : labelCell(cells[layout.labelIndex], file, record.line, header[layout.labelIndex]);
       const segmentText = layout.segmentIndex < 0 ? "" : cells[layout.segmentIndex];
       yield {
@@ -202,6 +236,7 @@ export async function openLedger(source: string | DataSource, request: LedgerReq
         label,
         segment: segmentText === "" ? null : segmentText,
         values,
+        timeMs,
       };
     }
   }

@@ -3,8 +3,8 @@ import { COMMANDS, main, topLevelHelp } from "./main";
 import { captureIO } from "./capture-io";
 
 describe("the isodense dispatcher", () => {
-  it("lists derive, fit, score, tune, refit, drift, sql, publish and demo-ledger in its help", async () => {
-    expect(COMMANDS.map((c) => c.name)).toEqual(["derive", "fit", "score", "tune", "refit", "drift", "sql", "publish", "demo-ledger"]);
+  it("lists derive, fit, score, tune, refit, renew, drift, sql, publish and demo-ledger in its help", async () => {
+    expect(COMMANDS.map((c) => c.name)).toEqual(["derive", "fit", "score", "tune", "refit", "renew", "drift", "sql", "publish", "demo-ledger"]);
     const c = captureIO();
     expect(await main(["--help"], c.io)).toBe(0);
     expect(c.out()).toBe(topLevelHelp());
@@ -21,7 +21,9 @@ describe("the isodense dispatcher", () => {
   it("names an unknown command and lists the known ones", async () => {
     const c = captureIO();
     expect(await main(["tune-up"], c.io)).toBe(2);
-    expect(c.err()).toBe("isodense: unknown command 'tune-up'; commands are: derive, fit, score, tune, refit, drift, sql, publish, demo-ledger\nrun 'isodense --help' for usage\n");
+    expect(c.err()).toBe(
+      "isodense: unknown command 'tune-up'; commands are: derive, fit, score, tune, refit, renew, drift, sql, publish, demo-ledger\nrun 'isodense --help' for usage\n",
+    );
   });
 
   it("runs a command's --help through 'isodense help <command>' and prints the version", async () => {

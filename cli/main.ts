@@ -58,6 +58,11 @@ export const COMMANDS: readonly CommandEntry[] = [
     load: async () => (await import("./commands/refit")).refitCommand,
   },
   {
+    name: "renew",
+    summary: "the weekly refit for a scheduler: refit on the latest window, check it against live, publish it as the shadow",
+    load: async () => (await import("./commands/renew")).renewCommand,
+  },
+  {
     name: "drift",
     summary: "compare a ledger with a model's training traffic (PSI per column and for the score, flag rate)",
     load: async () => (await import("./commands/drift")).driftCommand,

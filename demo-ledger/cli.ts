@@ -23,7 +23,7 @@ import {
   type LedgerOptions,
 } from "./generate";
 
-const USAGE = `Usage: isodense demo-ledger --out <path> [--rows N] [--seed S] [--start YYYY-MM-DD]
+const USAGE = `Usage: isodense demo-ledger --out <path> [--rows N] [--seed S] [--start YYYY-MM-DD] [--price-rise R --rise-from YYYY-MM-DD]
 
 Writes the demo ledger: card-not-present payments of Orvenna Housewares, an invented online
 shop, over eight weeks, labelled fraud/legitimate. The same seed always gives the same file.
@@ -33,6 +33,9 @@ Options:
   --rows <N>       number of payments, 1 to ${MAX_ROWS} (default ${DEFAULT_ROWS})
   --seed <S>       random seed, integer 0 to 4294967295 (default ${DEFAULT_SEED})
   --start <date>   first day, YYYY-MM-DD or a UTC timestamp ending in Z (default ${DEFAULT_START})
+  --price-rise <R> a drifted period: prices R times higher on top (0.25 = a quarter dearer) from
+                   --rise-from on, payment for payment the same ledger otherwise (both or neither)
+  --rise-from <date> first day of the price rise, same forms as --start
   -h, --help       show this help
 `;
 
@@ -56,11 +59,14 @@ class DemoLedgerUsageError extends Error {
   }
 }
 
-const FLAG_OF_OPTION: Record<string, string> = { rows: "--rows", seed: "--seed", start: "--start" };
+const FLAG_OF_OPTION: Record<string, string> = { rows: "--rows", seed: "--seed", start: "--start", "priceRise.rise": "--price-rise", "priceRise.from": "--rise-from" };
+const FLAGS = ["--out", "--rows", "--seed", "--start", "--price-rise", "--rise-from"];
 
 function parseArgs(argv: readonly string[]): ParsedArgs {
   const parsed: ParsedArgs = { help: false, options: {} };
   const seen = new Set<string>();
+  let riseText: string | undefined;
+  let riseFrom: string | undefined;
   for (let i = 0; i < argv.length; i++) {
     const arg = argv[i];
     if (arg === "-h" || arg === "--help") {
@@ -68,12 +74,12 @@ function parseArgs(argv: readonly string[]): ParsedArgs {
       continue;
     }
     if (!arg.startsWith("--")) {
-      throw new DemoLedgerUsageError(arg, "unexpected argument; demo-ledger takes only options (--out, --rows, --seed, --start)");
+      throw new DemoLedgerUsageError(arg, `unexpected argument; demo-ledger takes only options (${FLAGS.join(", ")})`);
     }
     const eq = arg.indexOf("=");
     const flag = eq >= 0 ? arg.slice(0, eq) : arg;
-    if (!["--out", "--rows", "--seed", "--start"].includes(flag)) {
-      throw new DemoLedgerUsageError(flag, "unknown option; expected --out, --rows, --seed, --start or --help");
+    if (!FLAGS.includes(flag)) {
+      throw new DemoLedgerUsageError(flag, `unknown option; expected ${FLAGS.join(", ")} or --help`);
     }
     if (seen.has(flag)) throw new DemoLedgerUsageError(flag, "given more than once");
     seen.add(flag);
@@ -98,8 +104,20 @@ function parseArgs(argv: readonly string[]): ParsedArgs {
       case "--start":
         parsed.options.start = value;
         break;
+      case "--price-rise": {
+        if (!/^-?\d{1,3}(\.\d{1,6})?$/.test(value)) throw new DemoLedgerUsageError(flag, `must be a decimal number such as 0.25 (received ${JSON.stringify(value)})`);
+        riseText = value;
+        break;
+      }
+      case "--rise-from":
+        riseFrom = value;
+        break;
     }
   }
+  if ((riseText === undefined) !== (riseFrom === undefined)) {
+    throw new DemoLedgerUsageError(riseText === undefined ? "--price-rise" : "--rise-from", "--price-rise and --rise-from go together: how much dearer, and from which day");
+  }
+  if (riseText !== undefined && riseFrom !== undefined) parsed.options.priceRise = { rise: Number(riseText), from: riseFrom };
   return parsed;
 }
 

@@ -486,7 +486,9 @@ describe("options", () => {
     [{ start: "01/10/2026" }, "start", "must be a calendar date YYYY-MM-DD"],
     [{ start: "2026-10-01T00:00:00+02:00" }, "start", "must be a calendar date YYYY-MM-DD"],
     [{ start: "1969-12-31" }, "start", "year 1970 to 9999"],
-    [{ days: 30 }, "days", "is not an option; expected seed, rows or start"],
+    [{ days: 30 }, "days", "is not an option; expected seed, rows, start or priceRise"],
+    [{ priceRise: { from: "2026-10-20", rise: -1 } }, "priceRise.rise", "must be a number above -0.9"],
+    [{ priceRise: { from: "next week", rise: 0.2 } }, "priceRise.from", "must be a calendar date"],
   ];
 
   it.each(refused)("refuses %j, naming the option %s and the rule", (options, field, rule) => {
@@ -504,8 +506,29 @@ describe("options", () => {
     expect(error.message).toContain("received");
   });
 
+  it("makes a drifted ledger: the same payments, dearer from the rise's first day on", () => {
+    const plain = [...generateLedger({ rows: 2000 })];
+    const drifted = [...generateLedger({ rows: 2000, priceRise: { from: "2026-10-29", rise: 0.5 } })];
+    const riseMs = Date.UTC(2026, 9, 29);
+    expect(drifted.map((r) => r.paymentId)).toEqual(plain.map((r) => r.paymentId));
+    expect(drifted.map((r) => r.createdAt)).toEqual(plain.map((r) => r.createdAt));
+    const before = plain.filter((r) => Date.parse(r.createdAt) < riseMs);
+    expect(drifted.slice(0, before.length)).toEqual(before);
+    const after = drifted.slice(before.length);
+    const ratio = after.reduce((a, r, i) => a + (r.amount - r.shippingFee) / (plain[before.length + i].amount - plain[before.length + i].shippingFee), 0) / after.length;
+    expect(after.length).toBeGreaterThan(100);
+    expect(ratio).toBeGreaterThan(1.45);
+    expect(ratio).toBeLessThan(1.55);
+  });
+
   it("accepts a date or a UTC timestamp as start and fills in the defaults", () => {
-    expect(resolveLedgerOptions()).toEqual({ seed: 20261001, rows: 60_000, start: "2026-10-01", startMs: Date.UTC(2026, 9, 1) });
+    expect(resolveLedgerOptions()).toEqual({
+      seed: 20261001,
+      rows: 60_000,
+      start: "2026-10-01",
+      startMs: Date.UTC(2026, 9, 1),
+      priceRise: { fromMs: Number.POSITIVE_INFINITY, rise: 0 },
+    });
     expect(resolveLedgerOptions({ start: "2028-02-29" }).startMs).toBe(Date.UTC(2028, 1, 29));
     expect(resolveLedgerOptions({ start: "2026-10-01T06:30:00.250Z" }).startMs).toBe(Date.UTC(2026, 9, 1, 6, 30, 0, 250));
   });

@@ -144,6 +144,12 @@ export interface LedgerOptions {
   rows?: number;
   /** First day, `YYYY-MM-DD` (UTC midnight) or a UTC timestamp ending in `Z`. Default {@link DEFAULT_START}. */
   start?: string;
+  /**
+   * A drifted period: from `from` (same forms as `start`) every price is `1 + rise` times what it
+   * would have been (merchandise; the shipping fee follows its own table). The random stream is
+   * untouched, so the ledger is the same payment for payment, only dearer from that day.
+   */
+  priceRise?: { from: string; rise: number };
 }
 
 /** Options after validation and defaults. */
@@ -154,6 +160,8 @@ export interface ResolvedLedgerOptions {
   start: string;
   /** `start` as epoch milliseconds. */
   startMs: number;
+  /** The price rise and when it starts (epoch milliseconds); rise 0 from +∞ without one. */
+  priceRise: { fromMs: number; rise: number };
 }
 
 /** Seed of the committed sample and of `npm run demo:ledger`. */
@@ -217,8 +225,8 @@ export function resolveLedgerOptions(options: LedgerOptions = {}): ResolvedLedge
     throw new LedgerOptionError("options", "must be an object with optional seed, rows and start", options);
   }
   for (const key of Object.keys(options)) {
-    if (key !== "seed" && key !== "rows" && key !== "start") {
-      throw new LedgerOptionError(key, "is not an option; expected seed, rows or start", (options as Record<string, unknown>)[key]);
+    if (key !== "seed" && key !== "rows" && key !== "start" && key !== "priceRise") {
+      throw new LedgerOptionError(key, "is not an option; expected seed, rows, start or priceRise", (options as Record<string, unknown>)[key]);
     }
   }
   const seed = options.seed ?? DEFAULT_SEED;
@@ -233,7 +241,18 @@ export function resolveLedgerOptions(options: LedgerOptions = {}): ResolvedLedge
   if (typeof start !== "string") throw new LedgerOptionError("start", START_RULE, start);
   const startMs = parseStart(start);
   if (startMs === null) throw new LedgerOptionError("start", START_RULE, start);
-  return { seed, rows, start, startMs };
+  return { seed, rows, start, startMs, priceRise: resolvePriceRise(options.priceRise) };
+}
+
+function resolvePriceRise(asked: LedgerOptions["priceRise"]): ResolvedLedgerOptions["priceRise"] {
+  if (asked === undefined) return { fromMs: Number.POSITIVE_INFINITY, rise: 0 };
+  const rise = asked.rise;
+  if (typeof rise !== "number" || !Number.isFinite(rise) || rise <= -0.9 || rise > 10) {
+    throw new LedgerOptionError("priceRise.rise", "must be a number above -0.9 and at most 10 (0.25 = prices up by a quarter)", rise);
+  }
+  const fromMs = typeof asked.from === "string" ? parseStart(asked.from) : null;
+  if (fromMs === null) throw new LedgerOptionError("priceRise.from", START_RULE, asked.from);
+  return { fromMs, rise };
 }
 
 function parseStart(text: string): number | null {
@@ -469,10 +488,14 @@ class Simulation {
   private destinations = 0;
   private readonly newAccountsPerDay: number;
   private readonly startMs: number;
+  private readonly priceRise: ResolvedLedgerOptions["priceRise"];
+  /** Time of the event being processed. */
+  private clockMs = 0;
 
   constructor(options: ResolvedLedgerOptions) {
     this.rng = createRandom(options.seed);
     this.startMs = options.startMs;
+    this.priceRise = options.priceRise;
     const rows = options.rows;
     const legitRows = rows * (1 - TARGET_FRAUD_RATE);
     this.newAccountsPerDay = (NEW_ACCOUNT_SHARE * rows) / LEDGER_DAYS;
@@ -500,6 +523,7 @@ class Simulation {
     const next = this.queue.pop();
     if (!next) throw new Error("demo ledger: the event queue ran dry (the customer base is never empty)");
     const { time, event } = next;
+    this.clockMs = time;
     switch (event.type) {
       case "day":
         this.openDay(event.dayStartMs);
@@ -664,7 +688,8 @@ class Simulation {
   }
 
   private finishDraft(channel: Channel, merchandise: number, items: number, distanceKm: number, shipTo: string, delivery: Delivery, pattern: FraudPattern | ""): PaymentDraft {
-    const merch = Math.max(0.5, round2(merchandise));
+    const factor = this.clockMs >= this.priceRise.fromMs ? 1 + this.priceRise.rise : 1;
+    const merch = Math.max(0.5, round2(merchandise * factor));
     const fee = this.shippingFee(distanceKm, items, delivery, merch);
     const amount = round2(merch + fee);
     return { channel, amount, basketItems: items, shippingFee: fee, shippingShare: round4(fee / amount), shipDistanceKm: distanceKm, shipTo, pattern };

@@ -1,19 +1,18 @@
 /**
- * The loop on the demo, step by step against a running service (`npm start`): decisions → label
- * export → `isodense tune` → `isodense refit` → `isodense publish` → live. Each step runs the real
- * route or CLI command and its output is passed on; the figures come back for docs/loop.md.
+ * The loop on the demo against a running service (`npm start`): decisions → `isodense renew` (label
+ * export, refit on the window, backtest, gate, shadow) → the live/shadow comparison. Each step runs
+ * the real route or CLI command and its output is passed on; the figures come back for docs/loop.md.
+ * Promoting the shadow stays with a person: the model page, or the activate route.
  *
  * The decisions step stands in for the analysts: it decides the open review items from the demo
  * ledger's own labels (scripts/demo-decisions.ts). Demo only — real labels come from people.
  */
 import { readFileSync } from "node:fs";
-import { writeFile } from "node:fs/promises";
 import { join } from "node:path";
-import { publishCommand } from "../cli/commands/publish";
-import { refitCommand } from "../cli/commands/refit";
-import { tuneCommand } from "../cli/commands/tune";
+import { renewCommand } from "../cli/commands/renew";
 import type { CommandIO } from "../cli/io";
-import type { ModelArtifact } from "../shared-model/src/artifact";
+import type { RenewReport } from "../shared-model/src/renew-report";
+import type { ShadowData } from "../worker/src/insights/contract";
 import { decideFromLedger } from "./demo-decisions";
 
 /** Where the service is and who calls it. */
@@ -23,8 +22,10 @@ export interface DemoLoopOptions {
   analystToken: string;
   /** The demo ledger CSV (paymentId, …, label): the labels of the decisions and the refit window. */
   ledgerPath: string;
-  /** Folder for labels.csv, live.json, tuned.json and candidate.json. */
+  /** Folder renew keeps its files in (labels.csv, live.json, the candidate and its report). */
   workDir: string;
+  /** More words for `isodense renew` (e.g. `--window 14d`). */
+  renewArgs?: string[];
   /** Where each step's output goes. */
   write: (text: string) => void;
 }
@@ -33,12 +34,11 @@ export interface DemoLoopOptions {
 export interface DemoLoopFigures {
   liveVersion: string;
   decided: { fraud: number; legitimate: number };
-  labelRows: number;
-  tunedVersion: string;
-  tunedCutoff: number;
-  candidateVersion: string;
-  candidateExcludedAsFraud: number;
-  liveAfter: string;
+  /** renew's exit code (0 published or unchanged, 1 held back) and its report. */
+  renewExit: number;
+  report: RenewReport;
+  /** The shadow after the run (the candidate when it was published). */
+  shadowAfter: string | null;
 }
 
 /** A step failed; the message names the step and carries its output. */
@@ -66,40 +66,16 @@ export async function runDemoLoop(o: DemoLoopOptions): Promise<DemoLoopFigures> 
   const decided = await decideFromLedger(o.url, o.analystToken, (id) => labels.get(id));
   o.write(`2. decisions: ${decided.fraud} confirmed fraud, ${decided.legitimate} legitimate (from the demo ledger's labels)\n`);
 
-  const exportRes = await fetch(`${o.url}/v1/review/export?format=csv`, { headers: { authorization: `Bearer ${o.analystToken}` } });
-  const csv = await exportRes.text();
-  if (exportRes.status !== 200) throw new DemoLoopError("export", `GET /v1/review/export answered ${exportRes.status}: ${csv.slice(0, 300)}`);
-  const labelsPath = join(o.workDir, "labels.csv");
-  await writeFile(labelsPath, csv);
-  const labelRows = csv.trim().split("\n").length - 1;
-  o.write(`3. label export: ${labelRows} labelled payments → ${labelsPath}\n`);
+  const reportPath = join(o.workDir, "renew-report.json");
+  const args = ["--ledger", o.ledgerPath, "--url", o.url, "--token", o.adminToken, "--keep", o.workDir, "--report", reportPath, ...(o.renewArgs ?? [])];
+  o.write(`3. isodense renew ${args.map((a) => (a === o.adminToken ? "$ISODENSE_ADMIN_TOKEN" : a)).join(" ")}\n`);
+  const renewExit = await renewCommand(args, io(o));
+  if (renewExit !== 0 && renewExit !== 1) throw new DemoLoopError("3. isodense renew", `exited ${renewExit} (its output is above)`);
+  const report = JSON.parse(readFileSync(reportPath, "utf8")) as RenewReport;
 
-  const stored = await getJson<{ artifact: ModelArtifact }>(o, `/v1/models/${encodeURIComponent(liveVersion)}`, o.adminToken, "live model");
-  const livePath = join(o.workDir, "live.json");
-  await writeFile(livePath, JSON.stringify(stored.artifact, null, 2));
-
-  const tunedPath = join(o.workDir, "tuned.json");
-  await cli(o, "4. isodense tune", () => tuneCommand([labelsPath, "--model", livePath, "--out", tunedPath, "--objective", "f1"], io(o)));
-  const tuned = JSON.parse(readFileSync(tunedPath, "utf8")) as ModelArtifact;
-
-  const candidatePath = join(o.workDir, "candidate.json");
-  await cli(o, "5. isodense refit", () => refitCommand([o.ledgerPath, "--labels", labelsPath, "--model", livePath, "--out", candidatePath, "--id-column", "paymentId"], io(o)));
-  const candidate = JSON.parse(readFileSync(candidatePath, "utf8")) as ModelArtifact;
-
-  await cli(o, "6. isodense publish", () => publishCommand([candidatePath, "--url", o.url, "--token", o.adminToken, "--activate"], io(o)));
-  const after = await getJson<{ model: { version: string } | null }>(o, "/v1/health", null, "health", [200, 503]);
-  const liveAfter = after.model?.version ?? "(none)";
-  o.write(`7. live now: ${liveAfter}\n`);
-  return {
-    liveVersion,
-    decided,
-    labelRows,
-    tunedVersion: tuned.version,
-    tunedCutoff: tuned.cutoff.mahalanobisSq,
-    candidateVersion: candidate.version,
-    candidateExcludedAsFraud: candidate.training.rowsExcludedAsFraud,
-    liveAfter,
-  };
+  const shadow = await getJson<ShadowData>(o, "/v1/insights/shadow", o.analystToken, "shadow");
+  o.write(`4. shadow now: ${shadow.pointer.shadow ?? "(none)"}; promote it on the model page (#/model) once its agreement with live has been read, ` + `or discard it there\n`);
+  return { liveVersion, decided, renewExit, report, shadowAfter: shadow.pointer.shadow };
 }
 
 /** The ledger's label per payment id (columns `paymentId` and `label`). */
@@ -128,12 +104,6 @@ async function getJson<T>(o: DemoLoopOptions, path: string, token: string | null
 
 function io(o: DemoLoopOptions): CommandIO {
   return { stdout: { write: (t: string) => o.write(indent(t)) }, stderr: { isTTY: false, write: (t: string) => o.write(indent(t)) } };
-}
-
-async function cli(o: DemoLoopOptions, step: string, run: () => Promise<number>): Promise<void> {
-  o.write(`${step}\n`);
-  const code = await run();
-  if (code !== 0) throw new DemoLoopError(step, `exited ${code} (its output is above)`);
 }
 
 function indent(text: string): string {

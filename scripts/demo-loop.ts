@@ -1,10 +1,10 @@
 /**
  * `npm run demo:loop`: runs the loop once on the demo against the running service (`npm start`):
- * decisions from the demo ledger's labels → label export → tune → refit → publish → live, printing
- * each step's output (docs/loop.md walks through it).
+ * decisions from the demo ledger's labels → `isodense renew` (label export, refit on the latest
+ * 28 days, backtest, gate, shadow), printing each step's output (docs/loop.md walks through it).
  *
  * Options: --url (default http://127.0.0.1:8787), --ledger (default demo-ledger/data/ledger.csv),
- * --out folder for the files (default test-output/demo-loop). Credentials: the first admin and
+ * --out folder renew keeps its files in (default test-output/demo-loop). Credentials: the first admin and
  * analyst users of .dev.vars.
  */
 import { mkdirSync } from "node:fs";
@@ -19,12 +19,18 @@ const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 
 const spec: CommandSpec = {
   command: "npm run demo:loop --",
-  summary: "Runs decisions → label export → tune → refit → publish on the demo against the running service.",
+  summary: "Runs decisions → isodense renew (refit, gate, shadow) on the demo against the running service.",
   positionals: [],
   options: [
     { name: "url", kind: "string", valueName: "url", description: "service base URL", defaultText: "http://127.0.0.1:8787" },
     { name: "ledger", kind: "string", valueName: "ledger.csv", description: "the demo ledger", defaultText: "demo-ledger/data/ledger.csv" },
-    { name: "out", kind: "string", valueName: "folder", description: "where labels.csv, live.json, tuned.json, candidate.json go", defaultText: "test-output/demo-loop" },
+    {
+      name: "out",
+      kind: "string",
+      valueName: "folder",
+      description: "where renew keeps labels.csv, live.json, the candidate and its report",
+      defaultText: "test-output/demo-loop",
+    },
   ],
 };
 

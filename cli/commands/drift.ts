@@ -7,11 +7,11 @@
  * export to see what the weekly report will say.
  */
 import { resolve } from "node:path";
-import { bucketIndex, driftEntriesFor, flagRateCheck, type DriftEntry, type FlagRateCheck } from "../../shared-model/src/drift";
-import { transformInto } from "../../shared-model/src/features";
+import { flagRateCheck, type DriftEntry, type FlagRateCheck } from "../../shared-model/src/drift";
 import { compileModel, Scorer } from "../../shared-model/src/score";
 import { formatHelp, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
 import { EXIT_OK, reportFailure } from "../errors";
+import { DriftTally } from "../drift-tally";
 import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { openLedger } from "../ledger";
@@ -88,12 +88,7 @@ export async function driftCommand(argv: string[], io: CommandIO = processIO()):
       segmentColumn: artifact.segmentBy,
       records: recordsOfModel(artifact),
     });
-    const { columnEdges, scoreEdges } = artifact.reference;
-    const n = artifact.columns.length;
-    const columns = columnEdges.map((edges) => new Array<number>(edges.length + 1).fill(0));
-    const score = new Array<number>(scoreEdges.length + 1).fill(0);
-    const x = new Float64Array(n);
-    let payments = 0;
+    const tally = new DriftTally(artifact);
     let flagged = 0;
     let leftOut = 0;
     for await (const row of ledger.rows) {
@@ -102,24 +97,21 @@ export async function driftCommand(argv: string[], io: CommandIO = processIO()):
         continue;
       }
       const result = scorer.score(row.values, row.segment);
-      transformInto(artifact.features, row.values, x);
-      for (let j = 0; j < n; j++) columns[j][bucketIndex(columnEdges[j], x[j])]++;
-      score[bucketIndex(scoreEdges, result.mahalanobisSq)]++;
-      payments++;
+      tally.add(row.values, result.mahalanobisSq);
       if (result.flagged) flagged++;
-      if (payments % 8192 === 0) progress.update("drift", payments);
+      if (tally.payments % 8192 === 0) progress.update("drift", tally.payments);
     }
     progress.done();
     const expected = artifact.cutoff.flagRate;
     const report: DriftReport = {
       modelVersion: artifact.version,
       ledger: source.kind === "csv" ? ledgerPath : source.label,
-      payments,
+      payments: tally.payments,
       rowsLeftOutAsFraud: leftOut,
       baseline: artifact.reference.columnShares !== undefined ? "training shares" : "equal shares (the model file stores no training shares)",
-      drift: driftEntriesFor(artifact.reference, artifact.columns, { columns, score }),
+      drift: tally.entries(),
       flagged,
-      flagRate: payments > 0 && expected !== null ? flagRateCheck(flagged, payments, expected) : null,
+      flagRate: tally.payments > 0 && expected !== null ? flagRateCheck(flagged, tally.payments, expected) : null,
     };
     if (out !== undefined) await writeFileAtomic(out, `${JSON.stringify(report, null, 2)}\n`);
     writeLines(io.stdout, reportLines(report, out));

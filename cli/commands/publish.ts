@@ -5,13 +5,11 @@
  * it again), so a broken file fails here with every problem listed. Versions are immutable:
  * publishing the same file twice is harmless; other content under a published version is refused.
  */
-import { formatHelp, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
+import { formatHelp, parseArgs, stringOption, type CommandSpec } from "../args";
 import { EXIT_INTERNAL, EXIT_OK, EXIT_REFUSED, reportFailure } from "../errors";
 import { processIO, writeLines, type CommandIO } from "../io";
+import { callService, refusal, ServiceRefusal, serviceToken, serviceUrl, TOKEN_ENV, UnreachableError } from "../service/client";
 import { loadArtifact } from "./score";
-
-/** Environment variable read when `--token` is not given (keeps the token out of shell history). */
-export const TOKEN_ENV = "ISODENSE_ADMIN_TOKEN";
 
 /** Command line of `isodense publish`. */
 export const publishSpec: CommandSpec = {
@@ -30,9 +28,6 @@ export const publishSpec: CommandSpec = {
   ],
 };
 
-/** An answer of the service that the command reports as a refusal (exit 1). */
-class ServiceRefusal extends Error {}
-
 /**
  * Runs `isodense publish` with the words after `publish`.
  *
@@ -47,18 +42,15 @@ export async function publishCommand(argv: string[], io: CommandIO = processIO()
       return EXIT_OK;
     }
     const base = serviceUrl(stringOption(args, "url"));
-    const token = stringOption(args, "token") ?? process.env[TOKEN_ENV];
-    if (token === undefined || token === "") {
-      throw new UsageError("--token", "is required", `option --token is required (or set ${TOKEN_ENV}): the admin bearer token`);
-    }
+    const target = { base, token: serviceToken(stringOption(args, "token")) };
     const file = args.positionals[0];
     const artifact = await loadArtifact(file);
-    const upload = await send(base, "POST", "/v1/models", token, artifact);
+    const upload = await callService(target, "POST", "/v1/models", artifact);
     if (upload.status === 201) writeLines(io.stdout, [`published ${artifact.version} (${artifact.checksum}) to ${base.origin}`]);
     else if (upload.status === 200) writeLines(io.stdout, [`${artifact.version} was already published with identical content`]);
     else throw refusal("upload", upload);
     if (args.options.get("activate") === true) {
-      const activation = await send(base, "POST", `/v1/models/${encodeURIComponent(artifact.version)}/activate`, token, {});
+      const activation = await callService(target, "POST", `/v1/models/${encodeURIComponent(artifact.version)}/activate`, {});
       if (activation.status !== 200) throw refusal("activation", activation);
       const pointer = (activation.body as { pointer?: { version: string; previous: string[] }; changed?: boolean }).pointer;
       const before = pointer?.previous?.[0];
@@ -71,7 +63,7 @@ export async function publishCommand(argv: string[], io: CommandIO = processIO()
     return EXIT_OK;
   } catch (error) {
     if (error instanceof ServiceRefusal) {
-      writeLines(io.stderr, error.message.split("\n"));
+      writeLines(io.stderr, `isodense publish: ${error.message}`.split("\n"));
       return EXIT_REFUSED;
     }
     if (error instanceof UnreachableError) {
@@ -80,70 +72,4 @@ export async function publishCommand(argv: string[], io: CommandIO = processIO()
     }
     return reportFailure(error, io, "isodense publish");
   }
-}
-
-/** The service could not be reached, or answered something that is not the API. */
-class UnreachableError extends Error {}
-
-function serviceUrl(raw: string | undefined): URL {
-  if (raw === undefined) throw new UsageError("--url", "is required", "option --url is required: the service's base URL, e.g. http://127.0.0.1:8787");
-  let url: URL;
-  try {
-    url = new URL(raw);
-  } catch {
-    throw new UsageError("--url", "not a URL", `option --url must be an http(s) URL; got '${raw}'`);
-  }
-  if (url.protocol !== "http:" && url.protocol !== "https:") {
-    throw new UsageError("--url", "not http(s)", `option --url must be an http(s) URL; got '${raw}'`);
-  }
-  return url;
-}
-
-interface ServiceAnswer {
-  status: number;
-  body: unknown;
-  path: string;
-}
-
-async function send(base: URL, method: string, path: string, token: string, body: unknown): Promise<ServiceAnswer> {
-  const url = new URL(path.replace(/^\//, ""), base.href.endsWith("/") ? base.href : `${base.href}/`);
-  let response: Response;
-  try {
-    response = await fetch(url, {
-      method,
-      headers: { "content-type": "application/json", authorization: `Bearer ${token}` },
-      body: JSON.stringify(body),
-    });
-  } catch (error) {
-    const cause = (error as { cause?: { code?: string; message?: string } }).cause;
-    throw new UnreachableError(`cannot reach ${url.origin}: ${cause?.code ?? cause?.message ?? (error as Error).message}`);
-  }
-  const text = await response.text();
-  try {
-    return { status: response.status, body: JSON.parse(text) as unknown, path };
-  } catch {
-    throw new UnreachableError(`${method} ${url.pathname} answered ${response.status} with a body that is not JSON: ${text.slice(0, 200)}`);
-  }
-}
-
-function refusal(step: string, answer: ServiceAnswer): Error {
-  const body = answer.body as { error?: string; problems?: { field: string; rule: string }[] };
-  if (answer.status >= 500 || typeof body.error !== "string") {
-    return new UnreachableError(`${step} failed: the service answered ${answer.status}${body.error ? ` (${body.error})` : ""}`);
-  }
-  const hint =
-    answer.status === 401
-      ? "the token is not a known credential"
-      : answer.status === 403
-        ? "the token does not belong to an admin"
-        : answer.status === 409 && body.error === "version-exists"
-          ? "versions are immutable: publish the new content under a new version (isodense fit derives the version from the content)"
-          : null;
-  return new ServiceRefusal(
-    [
-      `isodense publish: ${step} refused: ${answer.status} ${body.error}`,
-      ...(body.problems ?? []).slice(0, 20).map((p) => `  ${p.field}: ${p.rule}`),
-      ...(hint ? [`  (${hint})`] : []),
-    ].join("\n"),
-  );
 }

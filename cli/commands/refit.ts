@@ -9,12 +9,13 @@
  */
 import { basename, resolve } from "node:path";
 import type { ModelArtifact } from "../../shared-model/src/artifact";
-import { fitModel, type FitRow, type RowSource } from "../../shared-model/src/fit";
+import { fitModel, type FitReport, type FitRow, type RowSource } from "../../shared-model/src/fit";
 import { compileModel, Scorer } from "../../shared-model/src/score";
 import { operatingPoints, pointAtCutoff, pointAtFlagRate, type OperatingPoint, type OperatingTable } from "../../shared-model/src/tuning";
 import type { FeatureDeclaration } from "../../shared-model/src/types";
 import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
 import { EXIT_OK, InputError, reportFailure } from "../errors";
+import { DriftTally } from "../drift-tally";
 import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { EXPORT_SEGMENT_COLUMN, readLabels, type LabelSet } from "../labels";
@@ -79,7 +80,15 @@ export interface RefitCounts {
   excludedLedgerFraud: number;
   /** Rows whose id was reviewed as legitimate in the labels (dismissed flags, audit draws), kept as normal traffic. */
   dismissedKept: number;
+  /** Rows outside the training window (only when a window is given). */
+  outsideWindow: number;
   rowsUsed: number;
+}
+
+/** A training window: payments with `fromMs < time ≤ toMs` (epoch milliseconds). */
+export interface TimeWindow {
+  fromMs: number;
+  toMs: number;
 }
 
 /**
@@ -90,7 +99,7 @@ export interface RefitCounts {
  * @example const source = new RefitRowSource("ledger.csv", { features, idColumn: "paymentId" }, new Set(["pay-7"]), new Set());
  */
 export class RefitRowSource implements RowSource {
-  counts: RefitCounts = { rowsRead: 0, excludedConfirmedFraud: 0, excludedLedgerFraud: 0, dismissedKept: 0, rowsUsed: 0 };
+  counts: RefitCounts = { rowsRead: 0, excludedConfirmedFraud: 0, excludedLedgerFraud: 0, dismissedKept: 0, outsideWindow: 0, rowsUsed: 0 };
   /** Confirmed-fraud ids seen in the ledger during the last complete pass. */
   confirmedFound = new Set<string>();
 
@@ -99,15 +108,22 @@ export class RefitRowSource implements RowSource {
     private readonly request: LedgerRequest,
     private readonly confirmedFraud: ReadonlySet<string>,
     private readonly dismissed: ReadonlySet<string>,
+    private readonly window: TimeWindow | null = null,
   ) {}
 
   async *pass(): AsyncGenerator<FitRow, void, undefined> {
     const ledger = await openLedger(this.path, this.request);
-    const counts: RefitCounts = { rowsRead: 0, excludedConfirmedFraud: 0, excludedLedgerFraud: 0, dismissedKept: 0, rowsUsed: 0 };
+    const counts: RefitCounts = { rowsRead: 0, excludedConfirmedFraud: 0, excludedLedgerFraud: 0, dismissedKept: 0, outsideWindow: 0, rowsUsed: 0 };
     const found = new Set<string>();
+    const window = this.window;
     try {
       for await (const row of ledger.rows) {
         counts.rowsRead++;
+        // A records ledger is read from its first row even so: earlier payments build the histories.
+        if (window !== null && !(row.timeMs > window.fromMs && row.timeMs <= window.toMs)) {
+          counts.outsideWindow++;
+          continue;
+        }
         if (this.confirmedFraud.has(row.id)) {
           counts.excludedConfirmedFraud++;
           found.add(row.id);
@@ -153,99 +169,24 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
     }
     const live = await loadArtifact(modelPath);
     const givenRate = numberOption(args, "cutoff-rate");
-    if (givenRate === undefined && live.cutoff.basis === "flag-rate" && !(live.cutoff.flagRate! > 0 && live.cutoff.flagRate! < 1)) {
-      throw new UsageError(
-        "--cutoff-rate",
-        "required",
-        `the live model records no usable flag rate (cutoff basis ${live.cutoff.basis}, flag rate ${String(live.cutoff.flagRate)}); give --cutoff-rate`,
-      );
-    }
     await checkOutputPath(out, "--out");
 
-    const labels = await readLabels(resolveSource(labelsPath, {}, "--labels"), {
-      features: live.features,
-      idColumn: stringOption(args, "labels-id-column"),
-      labelColumn: stringOption(args, "labels-label-column"),
-      weightColumn: stringOption(args, "weight-column"),
-      segmentCandidates: live.segmentBy === null ? [] : [live.segmentBy, EXPORT_SEGMENT_COLUMN],
-      duplicates: "merge-agreeing",
-      records: recordsOfModel(live),
-    });
-    // The backtest compares live and candidate on the labelled fraud: without any there is nothing
-    // to compare, so say so now rather than after the whole fit.
-    if (labels.fraudCount === 0) {
-      throw new InputError(
-        "--labels",
-        "must hold at least one payment confirmed as fraud",
-        `${labelsPath}: the labelled set holds no payment confirmed as fraud (${labels.rows} rows, all legitimate); the backtest needs at least one — export labels after fraud has been confirmed, or widen the export's time range`,
-      );
-    }
-    const confirmedFraud = new Set<string>();
-    const dismissed = new Set<string>();
-    labels.ids.forEach((id, r) => (labels.fraud[r] === 1 ? confirmedFraud : dismissed).add(id));
-
-    const features: FeatureDeclaration[] = live.features.map((f) => ({ name: f.name, transform: f.transform }));
-    const request: LedgerRequest = {
-      features,
+    const outcome = await refitCandidate({
+      ledger: sourceFromArgs(args, ledgerPath),
+      labelsPath,
+      live,
+      labelColumns: { idColumn: stringOption(args, "labels-id-column"), labelColumn: stringOption(args, "labels-label-column"), weightColumn: stringOption(args, "weight-column") },
       idColumn: stringOption(args, "id-column"),
       labelColumn: stringOption(args, "label-column"),
-      segmentColumn: live.segmentBy,
-      records: recordsOfModel(live),
-    };
-    const ledgerSource = sourceFromArgs(args, ledgerPath);
-    const source = new RefitRowSource(ledgerSource, request, confirmedFraud, dismissed);
-    // Header and columns are checked before the first pass, so a typo fails at once.
-    const probe = await openLedger(ledgerSource, request);
-    await probe.rows.return();
-    const layout = probe.layout;
-    if (layout.idColumn === null) {
-      throw new InputError(
-        "--id-column",
-        "no id column",
-        `${layout.file} has no id column to match the labels against; name it with --id-column (columns are: ${layout.header.join(", ")})`,
-      );
-    }
-    const cutoff = givenRate !== undefined ? { rate: givenRate, why: "as given with --cutoff-rate" } : await sameCutoffRate(live, source);
-    const cutoffRate = cutoff.rate;
-    const liveSeed = live.segments["*"].details.estimator === "robust" ? live.segments["*"].details.seed : undefined;
-    const { artifact: candidate, report } = await fitModel(source, {
-      features,
-      shape: live.covarianceShape,
-      estimator: live.estimator,
-      segmentBy: live.segmentBy,
-      minSegmentRows: live.minSegmentRows,
-      cutoffRate,
-      seed: numberOption(args, "seed") ?? liveSeed,
-      source: ledgerSource.label,
-      recordSpec: recordSpecFromArtifact(live) ?? undefined,
-      get rowsRead() {
-        return source.counts.rowsRead;
-      },
-      get rowsExcludedAsFraud() {
-        return source.counts.excludedConfirmedFraud + source.counts.excludedLedgerFraud;
-      },
+      cutoffRate: givenRate,
+      seed: numberOption(args, "seed"),
       onProgress: (pass, rows) => progress.update(pass, rows),
     });
-
-    const backtest = compareOnLabels(live, candidate, labels);
-    const ledgerOverlap = await overlapOnLedger(live, candidate, ledgerSource, request, (rows) => progress.update("overlap", rows));
     progress.done();
+    const { candidate } = outcome;
     await writeFileAtomic(out, JSON.stringify(candidate, null, 2) + "\n");
-
-    const c = source.counts;
-    const notInLedger = confirmedFraud.size - source.confirmedFound.size;
     writeLines(io.stdout, [
-      `ledger: ${formatCount(c.rowsRead)} rows read from ${ledgerSource.label}; left out ${formatCount(c.excludedConfirmedFraud)} confirmed fraud ` +
-        `(labels) and ${formatCount(c.excludedLedgerFraud)} labelled fraud (ledger); kept ${formatCount(c.dismissedKept)} payments reviewed as legitimate as normal traffic`,
-      `labels: ${formatCount(labels.rows)} rows from ${basename(labels.file)} (${formatCount(labels.fraudCount)} fraud)` +
-        (labels.duplicatesSkipped > 0 ? `, ${formatCount(labels.duplicatesSkipped)} repeated rows merged` : "") +
-        (notInLedger > 0 ? `; ${formatCount(notInLedger)} confirmed-fraud ids are not in the ledger (outside the training window)` : ""),
-      `candidate spec from ${live.version}: ${live.features.length} features, ${live.covarianceShape} covariance, ${live.estimator} estimator, ` +
-        `${live.segmentBy === null ? "no segments" : `segments by '${live.segmentBy}'`}, cutoff at ${formatPercent(cutoffRate)} of training rows (${cutoff.why})`,
-      ...report.lines,
-      "",
-      ...backtest.lines,
-      `flag overlap on the ledger (Jaccard, own cutoffs): ${jaccardText(ledgerOverlap)}`,
+      ...refitLines(outcome),
       "",
       `wrote candidate ${candidate.version} to ${out}; it is not live: compare, then publish it with 'isodense publish ${out} --activate'`,
     ]);
@@ -254,6 +195,209 @@ export async function refitCommand(argv: string[], io: CommandIO = processIO()):
     progress.done();
     return reportFailure(error, io, refitSpec.command);
   }
+}
+
+/** What {@link refitCandidate} needs: the ledger, the labels and the live model whose spec it copies. */
+export interface RefitInput {
+  /** The ledger: any source `fit` reads (CSV, Parquet, DuckDB or SQLite table or query). */
+  ledger: DataSource;
+  /** The labelled set, a .csv or .parquet file. */
+  labelsPath: string;
+  live: ModelArtifact;
+  /** Columns of the labelled set (defaults as `readLabels`). */
+  labelColumns: { idColumn?: string; labelColumn?: string; weightColumn?: string };
+  /** Id, label and time columns of the ledger (defaults as `openLedger`). */
+  idColumn?: string;
+  labelColumn?: string;
+  timeColumn?: string;
+  /** Share of training rows the cutoff flags; default the live model's (see `sameCutoffRate`). */
+  cutoffRate?: number;
+  seed?: number;
+  /**
+   * Fit only the payments of the window of `lengthMs` that ends at `untilMs` (default: the latest
+   * payment of the ledger). The whole ledger is still read: a records ledger's earlier payments
+   * build the histories. The ledger needs a time column. The candidate's `createdAt` is then the
+   * window's end, so the same window of the same ledger gives the same version.
+   */
+  window?: { lengthMs: number; untilMs?: number };
+  /** The candidate's `createdAt`; default the window's end, else now. */
+  createdAt?: string;
+  onProgress?: (pass: string, rows: number) => void;
+}
+
+/** What {@link refitCandidate} found. */
+export interface RefitOutcome {
+  live: ModelArtifact;
+  candidate: ModelArtifact;
+  fitReport: FitReport;
+  labels: LabelSet;
+  counts: RefitCounts;
+  /** Confirmed-fraud ids in the labels, and how many of them the ledger (window) held. */
+  confirmedFraud: number;
+  confirmedFound: number;
+  cutoff: { rate: number; why: string };
+  backtest: ReturnType<typeof compareOnLabels>;
+  ledger: LedgerComparison;
+  /** The training window as resolved (null without one). */
+  window: TimeWindow | null;
+}
+
+/** The latest week of a window: the last seven days before its end. */
+export const LATEST_WEEK_MS = 7 * 86_400_000;
+
+/**
+ * The weekly refit, shared by `isodense refit` and `isodense renew`: reads the labels, fits a
+ * candidate with the live model's spec on the ledger (window) without the confirmed fraud and with
+ * the dismissed flags, and backtests both models on the labels and the ledger.
+ * @throws InputError (exit 2) for a labelled set without fraud, a ledger without an id column, a
+ *   window on a ledger without a time column; FitRefusal when the candidate's data cannot support it
+ */
+export async function refitCandidate(input: RefitInput): Promise<RefitOutcome> {
+  const { live, ledger, labelsPath } = input;
+  const progress = input.onProgress ?? (() => {});
+  if (input.cutoffRate === undefined && live.cutoff.basis === "flag-rate" && !(live.cutoff.flagRate! > 0 && live.cutoff.flagRate! < 1)) {
+    throw new UsageError(
+      "--cutoff-rate",
+      "required",
+      `the live model records no usable flag rate (cutoff basis ${live.cutoff.basis}, flag rate ${String(live.cutoff.flagRate)}); give --cutoff-rate`,
+    );
+  }
+  const labels = await readLabels(resolveSource(labelsPath, {}, "--labels"), {
+    features: live.features,
+    ...input.labelColumns,
+    segmentCandidates: live.segmentBy === null ? [] : [live.segmentBy, EXPORT_SEGMENT_COLUMN],
+    duplicates: "merge-agreeing",
+    records: recordsOfModel(live),
+  });
+  // The backtest compares live and candidate on the labelled fraud: without any there is nothing
+  // to compare, so say so now rather than after the whole fit.
+  if (labels.fraudCount === 0) {
+    throw new InputError(
+      "--labels",
+      "must hold at least one payment confirmed as fraud",
+      `${labelsPath}: the labelled set holds no payment confirmed as fraud (${labels.rows} rows, all legitimate); the backtest needs at least one — export labels after fraud has been confirmed, or widen the export's time range`,
+    );
+  }
+  const confirmedFraud = new Set<string>();
+  const dismissed = new Set<string>();
+  labels.ids.forEach((id, r) => (labels.fraud[r] === 1 ? confirmedFraud : dismissed).add(id));
+
+  const features: FeatureDeclaration[] = live.features.map((f) => ({ name: f.name, transform: f.transform }));
+  const request: LedgerRequest = {
+    features,
+    idColumn: input.idColumn,
+    labelColumn: input.labelColumn,
+    segmentColumn: live.segmentBy,
+    records: recordsOfModel(live),
+    timeColumn: input.timeColumn,
+  };
+  // Header and columns are checked before the first pass, so a typo fails at once.
+  const probe = await openLedger(ledger, request);
+  await probe.rows.return();
+  const layout = probe.layout;
+  if (layout.idColumn === null) {
+    throw new InputError(
+      "--id-column",
+      "no id column",
+      `${layout.file} has no id column to match the labels against; name it with --id-column (columns are: ${layout.header.join(", ")})`,
+    );
+  }
+  if (input.window !== undefined && layout.timeColumn === null) {
+    throw new InputError("--time-column", "required for a window", `${layout.file}: a training window needs each payment's time; name its column with --time-column`);
+  }
+  const window = input.window === undefined ? null : await resolveWindow(ledger, request, input.window);
+  const source = new RefitRowSource(ledger, request, confirmedFraud, dismissed, window);
+  const cutoff = input.cutoffRate !== undefined ? { rate: input.cutoffRate, why: "as given with --cutoff-rate" } : await sameCutoffRate(live, source);
+  const liveSeed = live.segments["*"].details.estimator === "robust" ? live.segments["*"].details.seed : undefined;
+  const { artifact: candidate, report } = await fitModel(source, {
+    features,
+    shape: live.covarianceShape,
+    estimator: live.estimator,
+    segmentBy: live.segmentBy,
+    minSegmentRows: live.minSegmentRows,
+    cutoffRate: cutoff.rate,
+    seed: input.seed ?? liveSeed,
+    source: ledger.label,
+    recordSpec: recordSpecFromArtifact(live) ?? undefined,
+    createdAt: input.createdAt ?? (window === null ? undefined : new Date(window.toMs).toISOString()),
+    get rowsRead() {
+      return source.counts.rowsRead - source.counts.outsideWindow;
+    },
+    get rowsExcludedAsFraud() {
+      return source.counts.excludedConfirmedFraud + source.counts.excludedLedgerFraud;
+    },
+    onProgress: progress,
+  });
+  const backtest = compareOnLabels(live, candidate, labels);
+  const ledgerComparison = await compareOnLedger(live, candidate, ledger, request, window, (window?.toMs ?? Number.NaN) - LATEST_WEEK_MS, (rows) => progress("compare", rows));
+  return {
+    live,
+    candidate,
+    fitReport: report,
+    labels,
+    counts: source.counts,
+    confirmedFraud: confirmedFraud.size,
+    confirmedFound: source.confirmedFound.size,
+    cutoff,
+    backtest,
+    ledger: ledgerComparison,
+    window,
+  };
+}
+
+/**
+ * The window of `lengthMs` ending at `untilMs`, or at the latest payment of the ledger (one pass).
+ * @throws InputError naming --window when the ledger holds no payment in it
+ */
+async function resolveWindow(source: DataSource, request: LedgerRequest, asked: { lengthMs: number; untilMs?: number }): Promise<TimeWindow> {
+  let latest = -Infinity;
+  let inside = 0;
+  const ledger = await openLedger(source, request);
+  try {
+    for await (const row of ledger.rows) {
+      if (row.timeMs > latest) latest = row.timeMs;
+      if (asked.untilMs !== undefined && row.timeMs > asked.untilMs - asked.lengthMs && row.timeMs <= asked.untilMs) inside++;
+    }
+  } finally {
+    await ledger.rows.return();
+  }
+  // Without --until the window ends at the latest payment, which is inside it.
+  const toMs = asked.untilMs ?? latest;
+  const fromMs = toMs - asked.lengthMs;
+  if (asked.untilMs === undefined ? latest === -Infinity : inside === 0) {
+    throw new InputError(
+      "--window",
+      "no payment in the window",
+      `${ledger.layout.file}: no payment falls in the window ${iso(fromMs)} – ${iso(toMs)}; widen --window or check --until`,
+    );
+  }
+  return { fromMs, toMs };
+}
+
+function iso(ms: number): string {
+  return Number.isFinite(ms) ? new Date(ms).toISOString() : String(ms);
+}
+
+/** The refit for people: what was read and left out, the spec, the fit report and the backtest. */
+export function refitLines(outcome: RefitOutcome): string[] {
+  const { counts: c, labels, live, candidate, cutoff } = outcome;
+  const notInLedger = outcome.confirmedFraud - outcome.confirmedFound;
+  const source = candidate.training.source;
+  return [
+    `ledger: ${formatCount(c.rowsRead)} rows read from ${source}` +
+      (c.outsideWindow > 0 ? ` (${formatCount(c.outsideWindow)} outside the training window)` : "") +
+      `; left out ${formatCount(c.excludedConfirmedFraud)} confirmed fraud ` +
+      `(labels) and ${formatCount(c.excludedLedgerFraud)} labelled fraud (ledger); kept ${formatCount(c.dismissedKept)} payments reviewed as legitimate as normal traffic`,
+    `labels: ${formatCount(labels.rows)} rows from ${basename(labels.file)} (${formatCount(labels.fraudCount)} fraud)` +
+      (labels.duplicatesSkipped > 0 ? `, ${formatCount(labels.duplicatesSkipped)} repeated rows merged` : "") +
+      (notInLedger > 0 ? `; ${formatCount(notInLedger)} confirmed-fraud ids are not in the ledger (outside the training window)` : ""),
+    `candidate spec from ${live.version}: ${live.features.length} features, ${live.covarianceShape} covariance, ${live.estimator} estimator, ` +
+      `${live.segmentBy === null ? "no segments" : `segments by '${live.segmentBy}'`}, cutoff at ${formatPercent(cutoff.rate)} of training rows (${cutoff.why})`,
+    ...outcome.fitReport.lines,
+    "",
+    ...outcome.backtest.lines,
+    `flag overlap on the ledger${c.outsideWindow > 0 ? " window" : ""} (Jaccard, own cutoffs): ${jaccardText(outcome.ledger.overlap)}`,
+  ];
 }
 
 /**
@@ -321,7 +465,7 @@ export function compareOnLabels(
   live: ModelArtifact,
   candidate: ModelArtifact,
   labels: LabelSet,
-): { live: OperatingTable; candidate: OperatingTable; overlap: Overlap; lines: string[] } {
+): { live: OperatingTable; candidate: OperatingTable; overlap: Overlap; liveFlagRate: number; recallAtLiveRate: { live: number; candidate: number }; lines: string[] } {
   const liveScores = scoreLabels(live, labels);
   const candidateScores = scoreLabels(candidate, labels);
   const liveTable = operatingPoints(liveScores, labels.fraud, labels.weights);
@@ -354,6 +498,8 @@ export function compareOnLabels(
     live: liveTable,
     candidate: candidateTable,
     overlap,
+    liveFlagRate: rate,
+    recallAtLiveRate: { live: liveAtRate.recall, candidate: candidateAtRate.recall },
     lines: [
       `backtest on ${formatCount(labels.rows)} labelled payments (${weighting}):`,
       ...rows.map((r) => `  ${r[0].padEnd(widths[0])}  ${r[1].padStart(widths[1])}  ${r[2].padStart(widths[2])}`.trimEnd()),
@@ -362,26 +508,57 @@ export function compareOnLabels(
   };
 }
 
-/** Scores every ledger row with both models and counts the flags of each and of both. */
-async function overlapOnLedger(live: ModelArtifact, candidate: ModelArtifact, ledger: DataSource, request: LedgerRequest, onProgress: (rows: number) => void): Promise<Overlap> {
+/** What the one scoring pass over the ledger (window) found with both models. */
+export interface LedgerComparison {
+  /** Flags of each model and of both, on the window's payments. */
+  overlap: Overlap;
+  /** The latest week (`latestFromMs` < time ≤ the window's end): payments and each model's flags. */
+  latestWeek: { payments: number; live: number; candidate: number };
+  /** The window's payments not labelled fraud on the live model's reference buckets (drift of the window). */
+  drift: DriftTally;
+}
+
+/**
+ * Scores every ledger row of the window with both models: their flag overlap, their flags on the
+ * latest week, and the window's drift against the live model's training traffic.
+ */
+async function compareOnLedger(
+  live: ModelArtifact,
+  candidate: ModelArtifact,
+  source: DataSource,
+  request: LedgerRequest,
+  window: TimeWindow | null,
+  latestFromMs: number,
+  onProgress: (rows: number) => void,
+): Promise<LedgerComparison> {
   const liveScorer = new Scorer(compileModel(live));
   const candidateScorer = new Scorer(compileModel(candidate));
-  const opened = await openLedger(ledger, request);
+  const ledger = await openLedger(source, request);
   const overlap: Overlap = { live: 0, candidate: 0, both: 0 };
+  const latestWeek = { payments: 0, live: 0, candidate: 0 };
+  const drift = new DriftTally(live);
   let rows = 0;
   try {
-    for await (const row of opened.rows) {
-      const a = liveScorer.score(row.values, row.segment).flagged;
+    for await (const row of ledger.rows) {
+      if (window !== null && !(row.timeMs > window.fromMs && row.timeMs <= window.toMs)) continue;
+      const liveScore = liveScorer.score(row.values, row.segment);
+      const a = liveScore.flagged;
       const b = candidateScorer.score(row.values, row.segment).flagged;
       if (a) overlap.live++;
       if (b) overlap.candidate++;
       if (a && b) overlap.both++;
+      if (row.timeMs > latestFromMs) {
+        latestWeek.payments++;
+        if (a) latestWeek.live++;
+        if (b) latestWeek.candidate++;
+      }
+      if (row.label !== "fraud") drift.add(row.values, liveScore.mahalanobisSq);
       if (++rows % 8192 === 0) onProgress(rows);
     }
   } finally {
-    await opened.rows.return();
+    await ledger.rows.return();
   }
-  return overlap;
+  return { overlap, latestWeek, drift };
 }
 
 function precisionText(p: OperatingPoint): string {

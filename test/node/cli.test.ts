@@ -399,7 +399,7 @@ describe("usage", () => {
   it("rejects an unknown command with exit 2 and lists the commands", async () => {
     const run = await isodense(["train", "ledger.csv"]);
     expect(run.code).toBe(2);
-    expect(run.stderr).toContain("unknown command 'train'; commands are: derive, fit, score, tune, refit, drift, sql, publish, demo-ledger");
+    expect(run.stderr).toContain("unknown command 'train'; commands are: derive, fit, score, tune, refit, renew, drift, sql, publish, demo-ledger");
   });
 
   it("rejects an unknown option by name with exit 2", async () => {

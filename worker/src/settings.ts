@@ -63,6 +63,8 @@ export const settingsSchema = z.object({
   DRIFT_FLUSH_SECONDS: numberSetting({ min: 0, max: 3600, unit: "seconds" }),
   /** A live model older than this is marked due for refit by the weekly report. */
   REFIT_AFTER_DAYS: numberSetting({ min: 1, max: 3650, whole: true, unit: "days" }),
+  /** The weekly report notes a shadow that has waited longer than this for a person's decision. */
+  SHADOW_WAIT_DAYS: numberSetting({ min: 1, max: 3650, whole: true, unit: "days" }),
   /** Most distance between a `payment`'s own time and the server clock, either way (0 = no check). */
   PAYMENT_CLOCK_TOLERANCE_SECONDS: numberSetting({ min: 0, max: 604_800, unit: "seconds" }),
   /** Longest wait for an account's history (Durable Object) before answering 503 retryable. */

@@ -150,6 +150,28 @@ test("a planted shift classifies PSI levels and marks the live model due for ref
   expect(body.report.status).toBe("ok");
 });
 
+test("the report notes how long the shadow has waited, and a wait past SHADOW_WAIT_DAYS as overdue", async () => {
+  const candidate = await fitShopModel({ version: "m20260302-cron03" });
+  expect((await worker.post("/v1/models", candidate, worker.tokens.admin)).status).toBe(201);
+  const set = await worker.fetch("/v1/models/shadow", {
+    method: "PUT",
+    token: worker.tokens.admin,
+    headers: { "content-type": "application/json" },
+    body: JSON.stringify({ version: "m20260302-cron03" }),
+  });
+  expect(set.status).toBe(200);
+  const fetcher = await worker.mf.getWorker();
+  await fetcher.scheduled({ cron: CRON, scheduledTime: new Date() });
+  const fresh = JSON.parse((await latestReport()).report_json) as { shadowWait: { version: string; days: number; limitDays: number; overdue: boolean } };
+  expect(fresh.shadowWait).toMatchObject({ version: "m20260302-cron03", limitDays: 14, overdue: false });
+  expect(fresh.shadowWait.days).toBeLessThan(0.01);
+  // Fifteen days on, still undecided: one day past the setting (14 in wrangler.toml).
+  await fetcher.scheduled({ cron: CRON, scheduledTime: new Date(Date.now() + 15 * 86_400_000) });
+  const late = JSON.parse((await latestReport()).report_json) as { shadowWait: { days: number; overdue: boolean } };
+  expect(late.shadowWait.overdue).toBe(true);
+  expect(late.shadowWait.days).toBeGreaterThan(14.99);
+});
+
 test("a malformed loop variable never fails a payment, and the weekly report stores the error naming it", async () => {
   const misconfigured = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0", DRIFT_FLUSH_PAYMENTS: "lots" } });
   try {

@@ -52,7 +52,7 @@ export function whenUnauthorized(handler: () => void): void {
 
 type Query = Record<string, string | number | null | undefined>;
 
-async function send<T>(method: "GET" | "POST", path: string, body?: unknown, query?: Query): Promise<T> {
+async function send<T>(method: "GET" | "POST" | "PUT", path: string, body?: unknown, query?: Query): Promise<T> {
   const url = new URL(path, window.location.origin);
   for (const [key, value] of Object.entries(query ?? {})) {
     if (value !== null && value !== undefined && value !== "") url.searchParams.set(key, String(value));
@@ -160,3 +160,7 @@ export const scoreHistogram = (): Promise<HistogramData> => send("GET", "/v1/ins
 export const publishCutoff = (body: { fromVersion: string; cutoffMahalanobisSq: number; flagRate: number | null; reason: string; confirm: "publish" }): Promise<PublishedCutoff> =>
   send("POST", "/v1/insights/publish-cutoff", body);
 export const rollbackModel = (): Promise<{ pointer: ModelPointer; changed: boolean }> => send("POST", "/v1/models/rollback", {});
+/** Promotes the shadow: the audited activate of its version. */
+export const activateModel = (version: string): Promise<{ pointer: ModelPointer; changed: boolean }> => send("POST", `/v1/models/${encodeURIComponent(version)}/activate`, {});
+/** Discards the shadow: the audited shadow-clear (the version stays stored). */
+export const clearShadow = (): Promise<{ pointer: ModelPointer; changed: boolean }> => send("PUT", "/v1/models/shadow", { version: null });

@@ -1,10 +1,11 @@
 /**
- * State of the model page: what the insights API returned, the trial cutoff and its
- * figures (recomputed in the browser on every move), and the two admin actions.
+ * State of the model page: what the insights API returned, the trial cutoff and its figures
+ * (recomputed in the browser on every move), and the admin actions (publish a cutoff, roll back,
+ * promote or discard the shadow).
  */
 import type { OperatingTable } from "../../../shared-model/src/tuning";
 import type { HistogramData, ModelPageData, OperatingData, ShadowData } from "../../../worker/src/insights/contract";
-import { ApiError, modelPage, operatingTable, publishCutoff, rollbackModel, scoreHistogram, shadowComparison } from "./api";
+import { activateModel, ApiError, clearShadow, modelPage, operatingTable, publishCutoff, rollbackModel, scoreHistogram, shadowComparison } from "./api";
 import { buildTable, cutoffView, sliderMax, type CutoffView } from "./cutoff-figures";
 
 export class ModelPage {
@@ -73,6 +74,26 @@ export class ModelPage {
     return this.act(async () => {
       const done = await rollbackModel();
       return `Rolled back: ${done.pointer.version} is live again.`;
+    });
+  }
+
+  /** Makes the shadow the live model (admins; confirmed by the caller): the audited activate. */
+  async promote(): Promise<boolean> {
+    const shadow = this.data?.pointer.shadow;
+    if (!shadow) return false;
+    return this.act(async () => {
+      const done = await activateModel(shadow);
+      return `Promoted ${shadow}: it is live now; ${done.pointer.previous[0] ?? "the previous version"} stays available to roll back to.`;
+    });
+  }
+
+  /** Stops the shadow scoring (admins; confirmed by the caller); its version stays stored. */
+  async discard(): Promise<boolean> {
+    const shadow = this.data?.pointer.shadow;
+    if (!shadow) return false;
+    return this.act(async () => {
+      await clearShadow();
+      return `Discarded the shadow ${shadow}: it no longer scores; the version stays stored.`;
     });
   }
 

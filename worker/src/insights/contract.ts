@@ -8,6 +8,7 @@ import type { DriftEntry, FlagRateCheck } from "../../../shared-model/src/drift"
 import type { RateEstimates } from "../../../shared-model/src/estimates";
 import type { OperatingPoint } from "../../../shared-model/src/tuning";
 import type { ModelArtifact } from "../../../shared-model/src/artifact";
+import type { RenewReport } from "../../../shared-model/src/renew-report";
 
 /** The active-model pointer (`storage/model-store.ts`). */
 export interface ModelPointer {
@@ -55,6 +56,8 @@ export interface WeeklyReport {
   refitAfterDays: number;
   refitDue: boolean;
   reasons: string[];
+  /** The shadow and how long it has waited for a person's decision (null without a shadow). */
+  shadowWait?: { version: string; since: string | null; days: number | null; limitDays: number; overdue: boolean } | null;
 }
 
 /** A weekly report that could not be computed. */
@@ -149,11 +152,23 @@ export interface StoredReport {
   body: WeeklyReport | FailedReport;
 }
 
+/** A renew report as filed with the service (`renew_reports`). */
+export interface StoredRenewReport {
+  id: number;
+  filedAt: string;
+  filedBy: string;
+  report: RenewReport;
+}
+
 /** `GET /v1/insights/model`. */
 export interface ModelPageData {
   pointer: ModelPointer;
   active: VersionSummary;
   shadow: VersionSummary | null;
+  /** The renew report that published the shadow, and the latest held-back candidate filed after it. */
+  renew: { shadow: StoredRenewReport | null; held: StoredRenewReport | null };
+  /** When the shadow was set (its latest applied shadow-set event); null without a shadow. */
+  shadowSince: string | null;
   report: StoredReport | null;
   drift: { fromDay: string; toDay: string; payments: number; rows: DriftEntry[] };
   dailyFlags: DayFlagRate[];
@@ -179,10 +194,22 @@ export interface OperatingData {
   unavailable: string | null;
 }
 
+/** A payment on which live and shadow made different calls. */
+export interface Disagreement {
+  transactionId: string;
+  scoredAt: string;
+  liveFlagged: boolean;
+  shadowFlagged: boolean;
+  liveMahalanobisSq: number;
+  shadowMahalanobisSq: number;
+}
+
 /** `GET /v1/insights/shadow`. */
 export interface ShadowData {
   pointer: ModelPointer;
   comparison: ShadowComparison | null;
+  /** The latest payments flagged by one model only, newest first (at most 20). */
+  disagreements: Disagreement[];
 }
 
 /** `GET /v1/insights/histogram`. */

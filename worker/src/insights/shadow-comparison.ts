@@ -3,8 +3,8 @@
  * how often they agree, and how much their flags overlap — the evidence for promoting a shadow.
  */
 import type { Env } from "../env";
-import type { ShadowComparison } from "./contract";
-export type { ShadowComparison };
+import type { Disagreement, ShadowComparison } from "./contract";
+export type { Disagreement, ShadowComparison };
 
 /**
  * Reads the comparison of `shadowVersion` against `liveVersion` from `shadow_scores`.
@@ -49,4 +49,39 @@ export async function shadowComparison(env: Pick<Env, "DB">, liveVersion: string
         : null,
     days,
   };
+}
+
+/** Disagreements the model page lists. */
+export const DISAGREEMENTS_SHOWN = 20;
+
+/**
+ * The latest payments that exactly one of the two models flagged, newest first: the cases a
+ * person reads before promoting the shadow.
+ */
+export async function shadowDisagreements(env: Pick<Env, "DB">, liveVersion: string, shadowVersion: string): Promise<Disagreement[]> {
+  const { results } = await env.DB.prepare(
+    `SELECT transaction_id, scored_at, live_flagged, shadow_flagged, live_mahalanobis_sq, shadow_mahalanobis_sq FROM shadow_scores
+     WHERE live_version = ?1 AND shadow_version = ?2 AND live_flagged <> shadow_flagged ORDER BY scored_at DESC, id DESC LIMIT ?3`,
+  )
+    .bind(liveVersion, shadowVersion, DISAGREEMENTS_SHOWN)
+    .all<{ transaction_id: string; scored_at: string; live_flagged: number; shadow_flagged: number; live_mahalanobis_sq: number; shadow_mahalanobis_sq: number }>();
+  return results.map((r) => ({
+    transactionId: r.transaction_id,
+    scoredAt: r.scored_at,
+    liveFlagged: r.live_flagged === 1,
+    shadowFlagged: r.shadow_flagged === 1,
+    liveMahalanobisSq: r.live_mahalanobis_sq,
+    shadowMahalanobisSq: r.shadow_mahalanobis_sq,
+  }));
+}
+
+/**
+ * When `shadowVersion` last became the shadow (its latest applied shadow-set event), or null when
+ * no event records it.
+ */
+export async function shadowSetAt(env: Pick<Env, "DB">, shadowVersion: string): Promise<string | null> {
+  const row = await env.DB.prepare("SELECT at FROM model_events WHERE action = 'shadow-set' AND outcome = 'applied' AND to_version = ?1 ORDER BY id DESC LIMIT 1")
+    .bind(shadowVersion)
+    .first<{ at: string }>();
+  return row?.at ?? null;
 }

@@ -1,7 +1,7 @@
 /**
  * The weekly report run by the Cron trigger: drift of the last 7 UTC days against the training
  * reference, daily flag rates against the expected rate, label counts since the model went live,
- * and the refit-due mark. Stored in `model_reports`; fitting itself stays offline (`isodense refit`).
+ * the refit-due mark, and how long the shadow has waited for a person (overdue past SHADOW_WAIT_DAYS). Stored in `model_reports`; fitting itself stays offline (`isodense refit`).
  *
  * It never throws: any failure is logged and stored as an error report, so a broken week shows on
  * the model page instead of vanishing into the scheduler's logs.
@@ -13,6 +13,7 @@ import { dayFlagRates, driftEntries, refitReasons } from "./drift-report";
 import { readSettings } from "../settings";
 import { bucketTotals, dailyVolumes, dayBefore, labelCounts, liveSince } from "./traffic-queries";
 import type { FailedReport, WeeklyReport } from "./contract";
+import { shadowSetAt } from "./shadow-comparison";
 export type { FailedReport, WeeklyReport };
 
 /** Days covered by the drift window (today included). */
@@ -34,7 +35,15 @@ export async function runWeeklyReport(env: Env, runBy: string, now: Date): Promi
     const report = await computeReport(env, pointer.version, pointer.shadow, now);
     const id = await storeReport(env, runBy, report);
     if (report.refitDue) await markDue(env, report, id);
-    console.log(JSON.stringify({ event: "weekly-report", modelVersion: report.modelVersion, refitDue: report.refitDue, reasons: report.reasons }));
+    console.log(
+      JSON.stringify({
+        event: "weekly-report",
+        modelVersion: report.modelVersion,
+        refitDue: report.refitDue,
+        reasons: report.reasons,
+        shadowOverdue: report.shadowWait?.overdue ?? false,
+      }),
+    );
     return report;
   } catch (error) {
     console.error(JSON.stringify({ event: "weekly-report-failed", modelVersion: version, error: String(error) }));
@@ -55,11 +64,16 @@ export async function runWeeklyReport(env: Env, runBy: string, now: Date): Promi
 export async function computeReport(env: Env, version: string, shadowVersion: string | null, now: Date): Promise<WeeklyReport> {
   // All the loop's variables, so that a malformed flush setting (which only stops counting, never a
   // payment) shows as an error report on the model page.
-  const settings = readSettings(env, ["DRIFT_FLUSH_PAYMENTS", "DRIFT_FLUSH_SECONDS", "REFIT_AFTER_DAYS"]);
+  const settings = readSettings(env, ["DRIFT_FLUSH_PAYMENTS", "DRIFT_FLUSH_SECONDS", "REFIT_AFTER_DAYS", "SHADOW_WAIT_DAYS"]);
   const live = await modelCache.model(env, version);
   const fromDay = dayBefore(now, REPORT_WINDOW_DAYS - 1);
   const toDay = dayBefore(now, 0);
-  const [totals, volumes, since] = await Promise.all([bucketTotals(env, live, fromDay, toDay), dailyVolumes(env, version, fromDay, toDay), liveSince(env, version)]);
+  const [totals, volumes, since, shadowSince] = await Promise.all([
+    bucketTotals(env, live, fromDay, toDay),
+    dailyVolumes(env, version, fromDay, toDay),
+    liveSince(env, version),
+    shadowVersion === null ? Promise.resolve(null) : shadowSetAt(env, shadowVersion),
+  ]);
   const counts = await labelCounts(env, version, since ? Date.parse(since) : 0);
   const drift = driftEntries(live, totals);
   const expected = live.artifact.cutoff.flagRate;
@@ -80,7 +94,18 @@ export async function computeReport(env: Env, version: string, shadowVersion: st
     refitAfterDays: settings.REFIT_AFTER_DAYS,
     refitDue: reasons.length > 0,
     reasons,
+    shadowWait: shadowVersion === null ? null : shadowWait(shadowVersion, shadowSince, now, settings.SHADOW_WAIT_DAYS),
   };
+}
+
+/**
+ * How long the shadow has waited for a person's decision, and whether that is longer than the
+ * setting allows (a shadow set before the event log kept its time waits an unknown time).
+ * @example shadowWait("m20261208-77ab01cd", "2026-11-20T04:00:00Z", new Date("2026-12-07T04:00:00Z"), 14).overdue // true (17 days)
+ */
+export function shadowWait(version: string, since: string | null, now: Date, limitDays: number): NonNullable<WeeklyReport["shadowWait"]> {
+  const days = since === null ? null : Math.max(0, (now.getTime() - Date.parse(since)) / 86_400_000);
+  return { version, since, days, limitDays, overdue: days !== null && days > limitDays };
 }
 
 async function storeReport(env: Env, runBy: string, report: WeeklyReport): Promise<number> {

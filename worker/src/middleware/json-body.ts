@@ -19,6 +19,8 @@ export const BODY_LIMITS = {
   batch: 1024 * 1024,
   /** A model artifact: 5 MiB holds 256 columns × several segments of full matrices. */
   artifact: 5 * 1024 * 1024,
+  /** A renew report: 256 KiB holds the drift table of a model with hundreds of columns. */
+  renewReport: 256 * 1024,
   /** Small admin bodies (shadow). */
   small: 4 * 1024,
 } as const;

@@ -2,9 +2,10 @@
  * The insights API behind the model page, mounted at `/v1/insights` (analysts read, admins act):
  *
  * - GET  /model              live and shadow versions (fit report, diagnostics, refit mark), the
- *                            latest weekly report, the drift table and daily flag rates (?days=7)
+ *                            shadow's renew report, the latest weekly report, the drift table and
+ *                            daily flag rates (?days=7)
  * - GET  /operating          the labelled operating table of a version (?version, ?days, ?cutoff)
- * - GET  /shadow             the live/shadow comparison so far (?shadowVersion)
+ * - GET  /shadow             the live/shadow comparison so far and the latest disagreements (?shadowVersion)
  * - GET  /histogram          d² bucket counts against the reference edges (?version, ?days)
  * - POST /publish-cutoff     admin: a new version with a retuned cutoff, stored and activated,
  *                            audited in model_events (rollback: POST /v1/models/rollback)
@@ -30,7 +31,7 @@ import {
   WINDOW_QUERY_KEYS,
   windowQuerySchema,
 } from "../insights/schemas";
-import { shadowComparison } from "../insights/shadow-comparison";
+import { shadowComparison, shadowDisagreements, shadowSetAt } from "../insights/shadow-comparison";
 import { bucketTotals, dailyVolumes, dayBefore, labelledRows } from "../insights/traffic-queries";
 import { versionSummary } from "../insights/version-summary";
 import { allow, authenticate } from "../middleware/auth";
@@ -39,6 +40,7 @@ import { problemResponse, problemsFromZod } from "../problems";
 import { parseQuery } from "./query";
 import { modelCache, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
 import { readArtifactText, readPointer, type ModelPointer } from "../storage/model-store";
+import { renewReportsForPage } from "../storage/renew-store";
 
 type InsightsContext = Context<AppEnv>;
 
@@ -63,18 +65,22 @@ insightRoutes.get("/model", async (c) => {
   const now = new Date();
   const fromDay = dayBefore(now, days - 1);
   const toDay = dayBefore(now, 0);
-  const [activeSummary, shadowSummary, totals, volumes, report, events] = await Promise.all([
+  const [activeSummary, shadowSummary, totals, volumes, report, events, renew, shadowSince] = await Promise.all([
     versionSummary(c.env, live.artifact),
     shadow ? versionSummary(c.env, shadow.artifact) : Promise.resolve(null),
     bucketTotals(c.env, live, fromDay, toDay),
     dailyVolumes(c.env, live.version, fromDay, toDay),
     latestReport(c.env),
     recentEvents(c.env),
+    renewReportsForPage(c.env, pointer.shadow),
+    pointer.shadow === null ? Promise.resolve(null) : shadowSetAt(c.env, pointer.shadow),
   ]);
   return c.json({
     pointer,
     active: activeSummary,
     shadow: shadowSummary,
+    renew,
+    shadowSince,
     report,
     drift: { fromDay, toDay, payments: totals.payments, rows: driftEntries(live, totals) },
     dailyFlags: dayFlagRates(volumes, live.artifact.cutoff.flagRate),
@@ -114,8 +120,9 @@ insightRoutes.get("/shadow", async (c) => {
   const pointer = await readPointer(c.env);
   if (pointer === null) return noActiveModel(c);
   const shadowVersion = query.shadowVersion ?? pointer.shadow;
-  if (shadowVersion === null) return c.json({ pointer, comparison: null } satisfies ShadowData);
-  return c.json({ pointer, comparison: await shadowComparison(c.env, pointer.version, shadowVersion) } satisfies ShadowData);
+  if (shadowVersion === null) return c.json({ pointer, comparison: null, disagreements: [] } satisfies ShadowData);
+  const [comparison, disagreements] = await Promise.all([shadowComparison(c.env, pointer.version, shadowVersion), shadowDisagreements(c.env, pointer.version, shadowVersion)]);
+  return c.json({ pointer, comparison, disagreements } satisfies ShadowData);
 });
 
 insightRoutes.get("/histogram", async (c) => {

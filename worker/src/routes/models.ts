@@ -1,17 +1,19 @@
 /**
  * Admin routes for models in KV: upload (immutable versions), list, read, activate, roll back,
- * and the shadow. Every change is recorded in `model_events` before it is made (see
- * `storage/review-store.ts`), and this isolate's cache is refreshed at once; other isolates follow
+ * the shadow, and the reports `isodense renew` files beside the candidates it stores. Every change
+ * is recorded in `model_events` before it is made (see `storage/review-store.ts`), and this isolate's cache is refreshed at once; other isolates follow
  * within MODEL_REFRESH_SECONDS plus KV propagation.
  */
 import { Hono, type Context } from "hono";
 import { ArtifactError, parseArtifact, type ModelArtifact } from "../../../shared-model/src";
+import { renewReportSchema } from "../../../shared-model/src/renew-report";
 import type { AppEnv } from "../app-env";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
 import { problemResponse, problemsFromZod } from "../problems";
 import { changePointer, loadModel, ModelLoadError } from "../scoring/model-cache";
 import { activatedPointer, listVersions, readArtifactText, readPointer, storeArtifact, type ModelPointer, type VersionPage } from "../storage/model-store";
+import { fileRenewReport } from "../storage/renew-store";
 import { markModelEventFailed, recordModelEvent, type ModelEventAction } from "../storage/review-store";
 import { shadowRequestSchema, versionParamSchema } from "./schemas";
 
@@ -156,6 +158,30 @@ modelRoutes.post("/models/:version/activate", async (c) => {
     await changePointer(c.env, next);
     return c.json({ pointer: next, changed: true });
   });
+});
+
+modelRoutes.post("/models/:version/renew-report", jsonBody(BODY_LIMITS.renewReport), async (c) => {
+  const version = c.req.param("version");
+  const badParam = checkVersionParam(c, version, "version");
+  if (badParam) return badParam;
+  const body = c.get("body");
+  const parsed = renewReportSchema.safeParse(body);
+  if (!parsed.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(parsed.error, body, "", Object.keys(renewReportSchema.shape)));
+  const report = parsed.data;
+  if (report.candidateVersion !== version) {
+    return problemResponse(c, 422, "report-mismatch", [
+      { field: "candidateVersion", rule: `must be the version in the path (${version}). Actual: ${JSON.stringify(report.candidateVersion)}` },
+    ]);
+  }
+  if (report.outcome === "unchanged") {
+    return problemResponse(c, 422, "report-mismatch", [
+      { field: "outcome", rule: "a report is filed for a candidate published as the shadow or held back; 'unchanged' sends nothing" },
+    ]);
+  }
+  const unusable = await verifyStored(c, version, "version");
+  if (unusable) return unusable;
+  const filed = await fileRenewReport(c.env, c.get("principal").user, report);
+  return c.json({ version, outcome: report.outcome, filed }, filed ? 201 : 200);
 });
 
 /**

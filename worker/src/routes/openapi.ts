@@ -212,6 +212,23 @@ export function openApiDocument() {
           },
         }),
       },
+      "/v1/models/{version}/renew-report": {
+        post: operation("File the report of an isodense renew run beside its stored candidate", {
+          description:
+            "Role admin. Body limit 256 KiB: the renew report (shared-model/src/renew-report.ts, format isodense.renew/v1) of a candidate published as the shadow or held back by the gate. " +
+            "The same candidate and outcome are filed once.",
+          parameters: [versionParameter],
+          requestBody: { required: true, ...ANY_OBJECT },
+          responses: {
+            "201": { description: "Filed.", ...ANY_OBJECT },
+            "200": { description: "This candidate's report with this outcome was already filed.", ...ANY_OBJECT },
+            ...BODY_ERRORS,
+            ...AUTH_ERRORS,
+            "404": error("The candidate is not stored."),
+            "422": error("The report names another version, or its outcome is 'unchanged'."),
+          },
+        }),
+      },
       "/v1/models/rollback": {
         post: operation("Make the previous live version live again", {
           responses: { "200": { description: "The new pointer.", ...ANY_OBJECT }, ...AUTH_ERRORS, "409": error("No previous version.") },
