@@ -5,7 +5,7 @@
  * line in a CSV file, as before). Data: the fictional demo shop (invented), derived by `isodense
  * derive`; the copies are written here by DuckDB and by SQLite.
  */
-import { mkdtempSync, readFileSync, rmSync, writeFileSync } from "node:fs";
+import { mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { fileURLToPath } from "node:url";
@@ -221,12 +221,19 @@ describe("bad values are named by row and column", () => {
     expect(tune.err).toContain("text.sqlite (query) row 6, column 'label': 'maybe' is not a label");
   }, 60_000);
 
-  test("a missing column, a missing table and a query that fails name the source", async () => {
+  test("a missing column, a missing table, a locked database and a query that fails name the source", async () => {
     const missing = await run(scoreCommand, [p("model.json"), p("features.sqlite"), "--from-sql", "SELECT paymentId, amount FROM payments", "--out", p("m.csv")], 2);
     expect(missing.err).toContain("column 'basketItems'");
     expect(missing.err).toContain("paymentId, amount");
     const noTable = await run(driftCommand, [p("model.json"), p("features.sqlite"), "--table", "nowhere"], 2);
     expect(noTable.err).toContain("features.sqlite table nowhere: no such table: nowhere");
+    mkdirSync(`${p("features.sqlite")}.lock`);
+    try {
+      const locked = await run(driftCommand, [p("model.json"), p("features.sqlite"), "--table", "payments"], 2);
+      expect(locked.err).toContain(`database is locked (the SQLite reader locks the file with the folder ${p("features.sqlite")}.lock;`);
+    } finally {
+      rmSync(`${p("features.sqlite")}.lock`, { recursive: true });
+    }
     const badQuery = await run(deriveCommand, [p("records.duckdb"), "--from-sql", "SELECT nothing FROM payments", "--spec", demoSpec, "--out", p("d.csv")], 2);
     expect(badQuery.err).toContain("records.duckdb (query):");
     const csvTable = await run(scoreCommand, [p("model.json"), p("features.csv"), "--table", "payments", "--out", p("m.csv")], 2);
