@@ -21,7 +21,7 @@ import { createProgress } from "../progress";
 import { applyGate, DEFAULT_GATE, type GateThresholds } from "../renew/gate";
 import { buildReport, reportFileName, reportLines } from "../renew/report";
 import { callService, refusal, serviceToken, serviceUrl, TOKEN_ENV, UnreachableError, type ServiceTarget } from "../service/client";
-import { resolveSource, SOURCE_KINDS_TEXT, SOURCE_OPTIONS } from "../sources/source";
+import { SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
 import { refitCandidate } from "./refit";
 
 /** Exit code: the candidate was held back by the gate (or its fit refused by diagnostics). */
@@ -106,7 +106,7 @@ export async function renewCommand(argv: string[], io: CommandIO = processIO()):
     }
     const ledgerArg = stringOption(args, "ledger");
     if (ledgerArg === undefined) throw new UsageError("--ledger", "is required", "option --ledger is required: the payments of the training window");
-    const ledger = resolveSource(ledgerArg, { table: stringOption(args, "table"), fromSql: stringOption(args, "from-sql") }, "--ledger");
+    const ledger = sourceFromArgs(args, ledgerArg, "--ledger");
     const target: ServiceTarget = { base: serviceUrl(stringOption(args, "url")), token: serviceToken(stringOption(args, "token")) };
     const windowMs = parseWindow(stringOption(args, "window") ?? DEFAULT_WINDOW);
     const untilMs = parseUntil(stringOption(args, "until"));
