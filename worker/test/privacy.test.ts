@@ -13,6 +13,7 @@ import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import type { ChainReport } from "../src/audit/audit-chain";
 import { chainLink, eventDigest, type StoredEvent } from "../src/audit/audit-chain";
 import type { RetentionRun } from "../src/retention/retention";
+import type { ConflictMessage, ReviewMessage } from "../src/storage/messages";
 import { RETENTION_BATCH } from "../src/retention/retention";
 import { recordFromFields } from "../../shared-model/src";
 import { SHOP_RECORD_SPEC, shopLedger } from "./record-fixtures";
@@ -283,6 +284,47 @@ describe("erasing one account", () => {
     expect((await verify()).ok).toBe(true);
   });
 
+  test("a flag or conflict scored before the erasure but delivered after it is not written back; a flag scored after it is", async () => {
+    const account = "acct-late-5d10";
+    await plantItems("tx-late-seed", 1, account);
+    const before = new Date(Date.now() - 60_000).toISOString();
+    expect((await call("DELETE", `/v1/accounts/${account}`, undefined, tokens.admin)).status).toBe(200);
+    const after = new Date(Date.now() + 1_000).toISOString();
+    const flag = (transactionId: string, scoredAt: string): ReviewMessage => ({
+      kind: "review",
+      transactionId,
+      modelVersion: MODEL,
+      segment: "web",
+      accountRef: account,
+      features: { amount: 812 },
+      logDensity: -30,
+      mahalanobisSq: 40,
+      tailProbability: 1e-6,
+      cutoffMahalanobisSq: 30,
+      reasons: [],
+      selection: "flagged",
+      inclusionProbability: 1,
+      scoredAt,
+    });
+    const conflict: ConflictMessage = {
+      kind: "conflict",
+      transactionId: "tx-late-conflict",
+      firstSeenAt: before,
+      at: before,
+      firstContentHash: "a",
+      contentHash: "b",
+      modelVersion: MODEL,
+      segment: "web",
+      accountRef: account,
+      features: { amount: 813 },
+    };
+    const queue = await worker.mf.getQueueProducer<ReviewMessage | ConflictMessage>("FLAGS");
+    await queue.sendBatch([{ body: flag("tx-late-before", before) }, { body: conflict }, { body: flag("tx-late-after", after) }]);
+    await eventually(async () => ((await countRows(db, "review_items", "transaction_id = 'tx-late-after'")) === 1 ? true : undefined), 15_000);
+    expect(await countRows(db, "review_items", "transaction_id = 'tx-late-before'")).toBe(0);
+    expect(await countRows(db, "payment_conflicts", "transaction_id = 'tx-late-conflict'")).toBe(0);
+  });
+
   test("labels that already left in a finished export are counted and the answer says they must be erased where they are", async () => {
     const account = "acct-exported-2a77";
     const [id] = await plantItems("tx-exported", 1, account);
@@ -425,8 +467,9 @@ describe("retention", () => {
     const before = await countRows(db, "retention_runs");
     const fetcher = await worker.mf.getWorker();
     await fetcher.scheduled({ cron: "0 4 * * 1", scheduledTime: new Date() });
-    expect(await countRows(db, "retention_runs", "run_by = '0 4 * * 1'")).toBe(1);
+    // The run and the check go on in waitUntil: wait for the run to finish and the head to be logged.
+    await eventually(async () => ((await countRows(db, "retention_runs", "run_by = '0 4 * * 1' AND status = 'done'")) === 1 ? true : undefined), 15_000);
     expect(await countRows(db, "retention_runs")).toBe(before + 1);
-    await eventually(async () => (worker.logs.some((l) => l.message.includes('"event":"audit-chain-head"')) ? true : undefined), 5_000);
+    await eventually(async () => (worker.logs.some((l) => l.message.includes('"event":"audit-chain-head"')) ? true : undefined), 15_000);
   });
 });

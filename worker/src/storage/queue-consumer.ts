@@ -5,7 +5,8 @@
  * Why never throw: if `queue()` throws, the runtime retries the whole batch, including messages
  * already acknowledged (the local simulator does exactly that). So every message is settled
  * explicitly with `ack()` or `retry()`, and the inserts are `ON CONFLICT … DO NOTHING`, so a
- * message written twice still makes one row.
+ * message written twice still makes one row. A review item or conflict of an account erased since
+ * the payment was scored is not written (erasure_events, docs/privacy.md).
  *
  * Two queues feed this handler:
  * - `isodense-flags`: the whole batch is one `DB.batch([...])` (one transaction, one round trip).
@@ -17,6 +18,7 @@
  *   because the platform deletes a message once a queue without its own dead-letter queue has
  *   exhausted its retries (docs/worker.md: alert on the dead-letter backlog).
  */
+import { sha256Hex } from "../../../shared-model/src";
 import type { Env } from "../env";
 import { handoffMessageSchema, type HandoffMessage } from "./messages";
 import { countsStatements } from "../insights/counts-store";
@@ -71,7 +73,7 @@ async function writeAsOneBatch(batch: MessageBatch<unknown>, env: Env): Promise<
   const receivedAt = new Date().toISOString();
   const writable: Writable[] = [];
   for (const message of batch.messages) {
-    const statements = prepare(message, env, receivedAt);
+    const statements = await prepare(message, env, receivedAt);
     if (statements) writable.push({ message, statements });
     // A body that does not validate can never be written; retrying sends it on to the
     // dead-letter queue, where it is logged in full instead of vanishing here.
@@ -92,7 +94,7 @@ async function writeAsOneBatch(batch: MessageBatch<unknown>, env: Env): Promise<
 async function writeOneByOne(batch: MessageBatch<unknown>, env: Env): Promise<void> {
   const receivedAt = new Date().toISOString();
   for (const message of batch.messages) {
-    const statements = prepare(message, env, receivedAt);
+    const statements = await prepare(message, env, receivedAt);
     if (!statements) {
       // Nothing can ever write it: keep the whole body in the logs and stop redelivering.
       logEvent("handoff-message-unwritable", { queue: batch.queue, id: message.id, body: message.body });
@@ -117,7 +119,7 @@ async function writeOneByOne(batch: MessageBatch<unknown>, env: Env): Promise<vo
 }
 
 /** Validates a body and prepares its statements; null when the body is not a hand-off message. */
-function prepare(message: Message<unknown>, env: Env, receivedAt: string): D1PreparedStatement[] | null {
+async function prepare(message: Message<unknown>, env: Env, receivedAt: string): Promise<D1PreparedStatement[] | null> {
   const parsed = handoffMessageSchema.safeParse(message.body);
   if (!parsed.success) {
     logEvent("handoff-message-invalid", {
@@ -127,17 +129,23 @@ function prepare(message: Message<unknown>, env: Env, receivedAt: string): D1Pre
     return null;
   }
   try {
-    return statementFor(env, parsed.data, receivedAt);
+    return statementFor(env, parsed.data, receivedAt, await subjectOf(parsed.data));
   } catch (error) {
     logEvent("handoff-message-unbindable", { id: message.id, error: describeError(error) });
     return null;
   }
 }
 
-function statementFor(env: Env, body: HandoffMessage, receivedAt: string): D1PreparedStatement[] {
+function statementFor(env: Env, body: HandoffMessage, receivedAt: string, subject: string | null): D1PreparedStatement[] {
   if (body.kind === "counts") return countsStatements(env, body, receivedAt);
-  if (body.kind === "conflict") return [conflictInsert(env, body)];
-  return [body.kind === "review" ? reviewItemInsert(env, body, receivedAt) : shadowScoreInsert(env, body)];
+  if (body.kind === "conflict") return [conflictInsert(env, body, subject)];
+  return [body.kind === "review" ? reviewItemInsert(env, body, receivedAt, subject) : shadowScoreInsert(env, body)];
+}
+
+/** The digest erasure_events keeps of the message's account, for the "erased since" check. */
+async function subjectOf(body: HandoffMessage): Promise<string | null> {
+  const account = body.kind === "review" || body.kind === "conflict" ? body.accountRef : null;
+  return account === null ? null : sha256Hex(account);
 }
 
 /** `ack()`/`retry()` are not expected to throw; if one does, the handler must still not throw. */

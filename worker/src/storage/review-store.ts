@@ -6,10 +6,18 @@
 import type { Env } from "../env";
 import type { ConflictMessage, ReviewMessage, ShadowMessage } from "./messages";
 
+/**
+ * SQL condition, true unless the account (SHA-256 hex bound at `subject`) was erased from the review
+ * store at or after the time bound at `time`: a payment scored before an erasure and delivered after
+ * it (the queue is at-least-once and may lag) must not bring the account back.
+ */
+const notErasedSince = (subject: string, time: string) =>
+  `NOT EXISTS (SELECT 1 FROM erasure_events WHERE ${subject} IS NOT NULL AND subject_sha256 = ${subject} AND at >= ${time} AND scopes LIKE '%"review-store"%')`;
+
 const INSERT_REVIEW_ITEM = `INSERT INTO review_items (
   transaction_id, model_version, segment, account_ref, features_json, log_density, mahalanobis_sq,
   tail_probability, cutoff_mahalanobis_sq, reasons_json, selection, inclusion_probability, scored_at, received_at, log10_tail_probability
-) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15)
+) SELECT ?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15 WHERE ${notErasedSince("?16", "?13")}
 ON CONFLICT (transaction_id, model_version) DO NOTHING`;
 
 const INSERT_SHADOW_SCORE = `INSERT INTO shadow_scores (
@@ -22,10 +30,12 @@ ON CONFLICT (transaction_id, shadow_version) DO NOTHING`;
  * Prepares the idempotent insert of one review item.
  *
  * @param receivedAt ISO-8601 time the consumer writes it.
+ * @param subjectSha256 SHA-256 hex of the item's accountRef (null without one): an account erased
+ *   since the payment was scored is not written back.
  * @example
- * await env.DB.batch([reviewItemInsert(env, message, new Date().toISOString())]);
+ * await env.DB.batch([reviewItemInsert(env, message, new Date().toISOString(), null)]);
  */
-export function reviewItemInsert(env: Pick<Env, "DB">, item: ReviewMessage, receivedAt: string): D1PreparedStatement {
+export function reviewItemInsert(env: Pick<Env, "DB">, item: ReviewMessage, receivedAt: string, subjectSha256: string | null): D1PreparedStatement {
   return env.DB.prepare(INSERT_REVIEW_ITEM).bind(
     item.transactionId,
     item.modelVersion,
@@ -42,6 +52,7 @@ export function reviewItemInsert(env: Pick<Env, "DB">, item: ReviewMessage, rece
     item.scoredAt,
     receivedAt,
     item.log10TailProbability ?? null,
+    subjectSha256,
   );
 }
 
@@ -70,16 +81,16 @@ export function shadowScoreInsert(env: Pick<Env, "DB">, item: ShadowMessage): D1
 
 const INSERT_CONFLICT = `INSERT INTO payment_conflicts (
   transaction_id, first_seen_at, at, first_content_hash, content_hash, model_version, segment, account_ref, features_json
-) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)
+) SELECT ?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9 WHERE ${notErasedSince("?10", "?3")}
 ON CONFLICT (transaction_id, at, content_hash) DO NOTHING`;
 
 /**
  * Prepares the idempotent insert of one conflicting repeat.
  *
  * @example
- * await env.DB.batch([conflictInsert(env, message)]);
+ * await env.DB.batch([conflictInsert(env, message, await sha256Hex(message.accountRef))]);
  */
-export function conflictInsert(env: Pick<Env, "DB">, item: ConflictMessage): D1PreparedStatement {
+export function conflictInsert(env: Pick<Env, "DB">, item: ConflictMessage, subjectSha256: string | null): D1PreparedStatement {
   return env.DB.prepare(INSERT_CONFLICT).bind(
     item.transactionId,
     item.firstSeenAt,
@@ -90,6 +101,7 @@ export function conflictInsert(env: Pick<Env, "DB">, item: ConflictMessage): D1P
     item.segment,
     item.accountRef,
     JSON.stringify(item.features),
+    subjectSha256,
   );
 }
 
