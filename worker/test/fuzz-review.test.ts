@@ -169,28 +169,33 @@ function idRequests(method: string, suffix: string, token: string, body?: fc.Arb
   }));
 }
 
-/** Decision bodies broken in one definite way, sent to a real item (id 1) held by nobody. */
-function decisionRequests(token: string): fc.Arbitrary<FuzzRequest> {
-  const at = (body: string, broke: string): FuzzRequest => ({ method: "POST", path: "/v1/review/items/1/decision", headers: jsonHeaders(token), body, broke });
+/**
+ * Decision bodies broken in one definite way, sent to a real item (id 1) held by nobody; `base`
+ * joins every body (the account decision's `ids`), so the same breakers serve both decision routes.
+ */
+function decisionRequests(token: string, route = "decision", base: Record<string, unknown> = {}): fc.Arbitrary<FuzzRequest> {
+  const path = `/v1/review/items/1/${route}`;
+  const at = (body: string, broke: string): FuzzRequest => ({ method: "POST", path, headers: jsonHeaders(token), body, broke });
+  const json = (fields: Record<string, unknown>) => JSON.stringify({ ...base, ...fields });
   return fc.oneof(
     fc
       .oneof(hostileString, fc.string({ maxLength: 12 }))
       .filter((o) => o !== "fraud" && o !== "legitimate")
-      .map((o) => at(JSON.stringify({ outcome: o }), "outcome")),
-    notAString.map((o) => at(JSON.stringify({ outcome: o }), "outcome type")),
+      .map((o) => at(json({ outcome: o }), "outcome")),
+    notAString.map((o) => at(json({ outcome: o }), "outcome type")),
     fc.constantFrom("fraud", "legitimate").chain((o) =>
       fc
         .oneof(
           notAString.filter((n) => n !== undefined),
           fc.string({ minLength: 2001, maxLength: 2100 }),
         )
-        .map((n) => at(JSON.stringify({ outcome: o, note: n }), "note")),
+        .map((n) => at(json({ outcome: o, note: n }), "note")),
     ),
     fc
       .string({ minLength: 1, maxLength: 10 })
-      .filter((k) => k !== "outcome" && k !== "note")
-      .map((k) => at(JSON.stringify({ outcome: "fraud", [k]: 1 }), "unknown key")),
-    withProtoKey({ outcome: "fraud" }).map((t) => at(t, "__proto__ key")),
+      .filter((k) => k !== "outcome" && k !== "note" && !(k in base))
+      .map((k) => at(json({ outcome: "fraud", [k]: 1 }), "unknown key")),
+    withProtoKey({ ...base, outcome: "fraud" }).map((t) => at(t, "__proto__ key")),
     // Text that can mislead a reader: controls, bidirectional overrides and isolates, lone surrogates.
     fc
       .tuple(
@@ -199,12 +204,13 @@ function decisionRequests(token: string): fc.Arbitrary<FuzzRequest> {
         fc.string({ maxLength: 20 }),
       )
       .filter(([a, , b]) => !/[\uD800-\uDFFF]/.test(a + b))
-      .map(([a, bad, b]) => at(JSON.stringify({ outcome: "fraud", note: `${a}${bad}${b}` }), "note with a misleading character")),
-    deepNestingUpTo(15_000).map((t) => at(`{"outcome":"fraud","note":${t}}`, "deeply nested note")),
-    fc.constant(at("{}", "outcome missing")),
-    // A well-formed decision without a claim must be refused too (409 claim-required).
-    fc.constantFrom("fraud", "legitimate").map((o) => at(JSON.stringify({ outcome: o, note: "<b>x</b>' OR 1=1" }), "no claim")),
-    transportBreakers("POST", fc.constant("/v1/review/items/1/decision"), token, JSON.stringify({ outcome: "fraud" }), 16 * 1024),
+      .map(([a, bad, b]) => at(json({ outcome: "fraud", note: `${a}${bad}${b}` }), "note with a misleading character")),
+    deepNestingUpTo(15_000).map((t) => at(`${json({ outcome: "fraud" }).slice(0, -1)},"note":${t}}`, "deeply nested note")),
+    fc.constant(at(json({}), "outcome missing")),
+    // A well-formed decision without a claim must be refused too (409 claim-required; for the
+    // account decision, 409 no-account: the fuzzed items carry no account reference).
+    fc.constantFrom("fraud", "legitimate").map((o) => at(json({ outcome: o, note: "<b>x</b>' OR 1=1" }), "no claim")),
+    transportBreakers("POST", fc.constant(path), token, json({ outcome: "fraud" }), 16 * 1024),
   );
 }
 
@@ -279,6 +285,34 @@ describe("fuzzing the review API and the public routes", { timeout: 600_000 }, (
   test("POST /v1/review/items/{id}/decision refuses bad ids and every broken or unclaimed decision", async () => {
     const ids = idRequests("POST", "/decision", worker.tokens.analyst, fc.constant(JSON.stringify({ outcome: "fraud" })));
     await fuzzEndpoint(worker, "POST /v1/review/items/{id}/decision", fc.oneof({ weight: 1, arbitrary: ids }, { weight: 3, arbitrary: decisionRequests(worker.tokens.analyst) }));
+  });
+
+  // GET …/account-flags takes nothing but the id, read by the same itemId() the routes above fuzz.
+  test("POST /v1/review/items/{id}/account-decision refuses bad ids, every broken body and a payment without an account", async () => {
+    const token = worker.tokens.analyst;
+    const ids = idRequests("POST", "/account-decision", token, fc.constant(JSON.stringify({ ids: [1], outcome: "fraud" })));
+    const badIds = fc
+      .oneof(
+        notAString.filter((v) => !Array.isArray(v)),
+        fc.array(fc.oneof(fc.constantFrom(0, -1, 1.5, 2 ** 53, "1", null), hostileString), { minLength: 1, maxLength: 4 }),
+        fc.constant([]),
+        fc.constant(Array.from({ length: 51 }, (_, k) => k + 1)),
+        fc.constant([1, 1]),
+      )
+      .map(
+        (v): FuzzRequest => ({
+          method: "POST",
+          path: "/v1/review/items/1/account-decision",
+          headers: jsonHeaders(token),
+          body: JSON.stringify({ ids: v, outcome: "fraud" }),
+          broke: "ids",
+        }),
+      );
+    await fuzzEndpoint(
+      worker,
+      "POST /v1/review/items/{id}/account-decision",
+      fc.oneof({ weight: 1, arbitrary: ids }, { weight: 1, arbitrary: badIds }, { weight: 3, arbitrary: decisionRequests(token, "account-decision", { ids: [1, 2, 3] }) }),
+    );
   });
 
   for (const path of ["/v1/review/me", "/v1/review/facets", "/v1/review/summary"]) {
