@@ -140,6 +140,7 @@ export async function renewCommand(argv: string[], io: CommandIO = processIO()):
     const verdict = applyGate(
       {
         diagnostics: refit.fitReport.diagnostics,
+        liveDiagnostics: live.diagnostics,
         live: { prAuc: refit.backtest.live.averagePrecision, recallAtLiveRate: refit.backtest.recallAtLiveRate.live },
         candidate: { prAuc: refit.backtest.candidate.averagePrecision, recallAtLiveRate: refit.backtest.recallAtLiveRate.candidate },
         latestWeek: { payments: week.payments, candidateFlagRate: week.payments > 0 ? week.candidate / week.payments : null, designedRate: candidate.cutoff.flagRate },

@@ -4,6 +4,7 @@ import { applyGate, DEFAULT_GATE, type GateInputs } from "./gate";
 
 const good: GateInputs = {
   diagnostics: [{ code: "segment-fallback", severity: "info", message: "phone pooled" }],
+  liveDiagnostics: [],
   live: { prAuc: 0.84, recallAtLiveRate: 0.6 },
   candidate: { prAuc: 0.83, recallAtLiveRate: 0.6 },
   latestWeek: { payments: 1000, candidateFlagRate: 0.012, designedRate: 0.01 },
@@ -28,6 +29,15 @@ describe("the renew gate", () => {
     const verdict = applyGate({ ...good, diagnostics: [warning] });
     expect(verdict.passed).toBe(false);
     expect(verdict.checks[0].found).toBe("warning ill-conditioned: condition number 3e9");
+  });
+
+  it("passes a warning the live model's fit carried too (same code and columns), and says so", () => {
+    const warning: Diagnostic = { code: "power-at-bound", severity: "warning", message: "λ = -5", columns: ["shippingShare"] };
+    const verdict = applyGate({ ...good, diagnostics: [warning], liveDiagnostics: [{ ...warning, message: "λ = -4.9" }] });
+    expect(verdict.passed).toBe(true);
+    expect(verdict.checks[0].found).toBe("no new warning (1 the live model has too: power-at-bound)");
+    const other = applyGate({ ...good, diagnostics: [{ ...warning, columns: ["amount"] }], liveDiagnostics: [warning] });
+    expect(other.checks[0].passed).toBe(false);
   });
 
   it("allows a PR-AUC drop up to the margin and no further", () => {

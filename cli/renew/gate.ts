@@ -29,6 +29,8 @@ export const DEFAULT_GATE: GateThresholds = { maxPrAucDrop: 0.02, maxRecallDrop:
 export interface GateInputs {
   /** The candidate fit's diagnostics (all severities; a fit with an error was refused before the gate). */
   diagnostics: readonly Diagnostic[];
+  /** The live model's diagnostics: a warning it already carries (same code and columns) is known, not new. */
+  liveDiagnostics: readonly Diagnostic[];
   live: { prAuc: number; recallAtLiveRate: number };
   candidate: { prAuc: number; recallAtLiveRate: number };
   /** The candidate's flagged share of the latest week, and the rate its cutoff was set for. */
@@ -50,11 +52,22 @@ export function applyGate(inputs: GateInputs, thresholds: GateThresholds = DEFAU
   return { passed: checks.every((c) => c.passed), checks };
 }
 
-function diagnosticsCheck({ diagnostics }: GateInputs): GateCheck {
-  const rule = "the candidate's fit has no error or warning diagnostic";
+function diagnosticsCheck({ diagnostics, liveDiagnostics }: GateInputs): GateCheck {
+  const rule = "the candidate's fit has no warning the live model's fit did not have";
+  const key = (d: Diagnostic) => `${d.code}|${(d.columns ?? []).join(",")}`;
+  const known = new Set(liveDiagnostics.filter((d) => d.severity !== "info").map(key));
   const serious = diagnostics.filter((d) => d.severity !== "info");
-  if (serious.length === 0) return { name: "diagnostics", passed: true, rule, found: "clean" };
-  return { name: "diagnostics", passed: false, rule, found: serious.map((d) => `${d.severity} ${d.code}: ${d.message}`).join("; ") };
+  const fresh = serious.filter((d) => !known.has(key(d)));
+  const carried = serious.length - fresh.length;
+  const carriedText =
+    carried === 0
+      ? ""
+      : ` (${carried} the live model has too: ${serious
+          .filter((d) => known.has(key(d)))
+          .map((d) => d.code)
+          .join(", ")})`;
+  if (fresh.length === 0) return { name: "diagnostics", passed: true, rule, found: `no new warning${carriedText}` };
+  return { name: "diagnostics", passed: false, rule, found: fresh.map((d) => `${d.severity} ${d.code}: ${d.message}`).join("; ") + carriedText };
 }
 
 function prAucCheck({ live, candidate }: GateInputs, t: GateThresholds): GateCheck {
