@@ -4,6 +4,11 @@ import { defineConfig } from "vitest/config";
 // Worker suites that need workerd live in their own project (see worker/vitest.config.ts).
 export default defineConfig({
   test: {
+    // Most files wait on I/O (queues, workerd, a browser) more than they compute: three at a time
+    // keep the two cores busy. Files that must run alone say so (fileParallelism: false).
+    maxWorkers: 3,
+    // Console output of passing tests is noise; that of a failing one is its evidence.
+    silent: "passed-only",
     projects: [
       {
         test: {
@@ -13,8 +18,9 @@ export default defineConfig({
           testTimeout: 60_000,
         },
       },
-      // Worker suites (unit tests of worker/src in Node, integration tests on workerd).
+      // Worker suites: unit and in-process route tests in Node, then the integration suites on workerd.
       "worker/vitest.config.ts",
+      "worker/test/workerd/vitest.config.ts",
       // The review app's pure modules, then the browser tests against wrangler dev.
       "review-ui/vitest.config.ts",
       "test/e2e/vitest.config.ts",

@@ -14,12 +14,11 @@ import type { ModelArtifact } from "./artifact";
 import { FitRefusal, diagnoseRowCount } from "./diagnostics";
 import { chooseShape, FourthMomentAccumulator } from "./estimators";
 import { columnsOf, modelColumns, transformInto } from "./features";
-import { sealFit } from "./fit-artifact";
 import { checkOptions, checkRow } from "./fit-checks";
 import { CutoffSampler } from "./fit-cutoff-pass";
+import { finishFit } from "./fit-finish";
 import { checkConstantColumns, estimateSlots, hasError } from "./fit-estimate";
 import { countSegment } from "./fit-read-pass";
-import { fitReport } from "./fit-report";
 import { formatCount as count } from "./format-count";
 import { ModelSlots, segmentKey } from "./fit-slots";
 import { columnDeciles, powerAtBound } from "./fit-transforms";
@@ -139,8 +138,15 @@ export async function fitFromMoments(result: MomentsResult, sample: RowSample, o
   sample.rows.forEach((row, r) => raw.set(row.values, r * decls.length));
   const rowsExcludedAsFraud = options.rowsExcludedAsFraud ?? result.fraudRows;
   const rowsRead = options.rowsRead ?? rowsUsed + rowsExcludedAsFraud;
-  const training = { rowsUsed, rowsRead, rowsExcludedAsFraud };
-  const sealed = await sealFit({
+  const exact = sample.rows.length === rowsUsed;
+  const robustNote = exact
+    ? undefined
+    : options.estimator === "robust"
+      ? `robust estimate from a sample: FAST-MCD ran on ${count(sample.rows.length)} sampled rows (moments from all ${count(rowsUsed)}); past one machine the robust estimator works on a sampled query`
+      : options.estimator === "shrinkage"
+        ? `shrinkage intensity from a sample: fourth moments of ${count(sample.rows.length)} sampled rows, scaled to all ${count(rowsUsed)}`
+        : undefined;
+  const { artifact, report } = await finishFit({
     options: { ...options, rowsRead, rowsExcludedAsFraud },
     createdAt,
     features,
@@ -151,23 +157,17 @@ export async function fitFromMoments(result: MomentsResult, sample: RowSample, o
     slots,
     cutoffSample,
     columnReference: columnDeciles(raw, sample.rows.length, decls.length, features, n),
-    training,
+    training: { rowsUsed, rowsRead, rowsExcludedAsFraud },
+    segmentCounts,
+    seed,
+    robustNote,
   });
-  const exact = sample.rows.length === rowsUsed;
-  const robustNote = exact
-    ? undefined
-    : options.estimator === "robust"
-      ? `robust estimate from a sample: FAST-MCD ran on ${count(sample.rows.length)} sampled rows (moments from all ${count(rowsUsed)}); past one machine the robust estimator works on a sampled query`
-      : options.estimator === "shrinkage"
-        ? `shrinkage intensity from a sample: fourth moments of ${count(sample.rows.length)} sampled rows, scaled to all ${count(rowsUsed)}`
-        : undefined;
-  const report = fitReport({ options, sealed, slots, training, shape, shapeReason, segmentCounts, n, minSegmentRows, seed, robustNote });
   report.lines.splice(
     1,
     0,
     `moments of all ${count(rowsUsed)} rows ${origin}; cutoff and drift edges from ${exact ? "every row" : `a sample of ${count(sample.rows.length)} rows`}`,
   );
-  return { artifact: sealed.artifact, report };
+  return { artifact, report };
 }
 
 /** The features with the parameters the moments were computed with, and the observed raw ranges. */

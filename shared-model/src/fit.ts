@@ -8,8 +8,8 @@
  * 2. moments (`fit-moment-passes.ts`) — count, mean and co-moment per model; robust holds the rows.
  * 3. fourth-moments — shrinkage only.
  * 4. cutoff (`fit-cutoff-pass.ts`) — d² of every row under its own model, sampled.
- * Then estimation (`fit-estimate.ts`), the artifact (`fit-artifact.ts`) and the report
- * (`fit-report.ts`). The models being fitted live in `fit-slots.ts`.
+ * Then estimation (`fit-estimate.ts`), and the artifact and its report (`fit-finish.ts`:
+ * `fit-artifact.ts`, `fit-report.ts`). The models being fitted live in `fit-slots.ts`.
  *
  * Covariances are the estimators' own: classical and shrinkage divide by m (maximum likelihood);
  * robust is the reweighted FAST-MCD estimate. Pure TypeScript: no Node APIs, so the worker can refit.
@@ -18,13 +18,12 @@ import type { ModelArtifact } from "./artifact";
 import { FitRefusal, diagnoseRowCount } from "./diagnostics";
 import { chooseShape } from "./estimators";
 import { modelColumns } from "./features";
-import { sealFit } from "./fit-artifact";
 import { checkOptions, trainingCounts } from "./fit-checks";
 import { cutoffPass } from "./fit-cutoff-pass";
+import { finishFit } from "./fit-finish";
 import { checkConstantColumns, estimateSlots, hasError } from "./fit-estimate";
 import { fourthMomentsPass, momentsPass, type PassInput } from "./fit-moment-passes";
 import { readPass } from "./fit-read-pass";
-import { fitReport } from "./fit-report";
 import { ModelSlots } from "./fit-slots";
 import { columnDeciles, fitTransforms } from "./fit-transforms";
 import { DEFAULT_FIT_SEED, defaultMinSegmentRows, type FitOptions, type FitReport, type RowSource } from "./fit-types";
@@ -95,8 +94,7 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
   estimateSlots(slots, { estimator: options.estimator, shape, columns, seed, supportFraction: options.supportFraction });
   const cutoffSample = await cutoffPass(pass, seed, options.estimator === "classical" && shape === "full");
 
-  const training = { rowsUsed, ...trainingCounts(options, rowsUsed) };
-  const sealed = await sealFit({
+  return finishFit({
     options,
     createdAt,
     features,
@@ -107,8 +105,8 @@ export async function fitModel(source: RowSource, options: FitOptions): Promise<
     slots,
     cutoffSample,
     columnReference: columnDeciles(sample, sampleRows, decls.length, features, n),
-    training,
+    training: { rowsUsed, ...trainingCounts(options, rowsUsed) },
+    segmentCounts,
+    seed,
   });
-  const report = fitReport({ options, sealed, slots, training, shape, shapeReason, segmentCounts, n, minSegmentRows, seed });
-  return { artifact: sealed.artifact, report };
 }

@@ -1,6 +1,6 @@
 /**
- * The cases of an abuse probe run against the service as an attacker would, on the real worker
- * (workerd through Miniflare, real local KV, D1 and Queues): what did not hold before and must hold
+ * The cases of an abuse probe run against the service as an attacker would, in process
+ * (./in-process.ts: the app with real local KV, D1, Queues and Durable Objects): what did not hold before and must hold
  * now. Spreadsheet formulas in the CSV export, impossible calendar dates in the queue filters, an
  * audit trail that grew without bound and was served whole, text that can mislead in notes, and JSON
  * declared in another charset. (Durable idempotency and the credential limiter have their own suites:
@@ -16,14 +16,15 @@ import { readLabels } from "../../cli/labels";
 import type { EventPage, ItemDetail, QueuePage } from "../src/review/contract";
 import { DECISION_CHANGE_LIMIT } from "../src/review/settings";
 import { fitShopModel, SHOP_FEATURES, UNUSUAL_PAYMENT } from "./fixtures";
-import { eventually, makeTokens, startWorker, type D1Like, type RunningWorker } from "./harness";
+import { eventually, makeTokens, type D1Like, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 
 const tokens = makeTokens();
 let worker: RunningWorker;
 let db: D1Like;
 
 beforeAll(async () => {
-  worker = await startWorker({ tokens, vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" } });
+  worker = await startApp({ tokens, vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" } });
   db = await worker.db();
   const artifact = await fitShopModel({ version: "m20260302-probe01" });
   expect((await worker.post("/v1/models", artifact, tokens.admin)).status).toBe(201);

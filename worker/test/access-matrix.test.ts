@@ -1,5 +1,6 @@
 /**
- * The role × route access matrix on the real worker (workerd, local KV/D1/Queues).
+ * The role × route access matrix, in process (./in-process.ts: the app with real local KV, D1,
+ * Queues and Durable Objects).
  *
  * The route list is read from the Hono app itself (`app.routes`), so a route added later without
  * a row in {@link MATRIX} fails the first test until someone decides who may call it. Each route is
@@ -7,9 +8,10 @@
  * an admin — and only the intended roles get past authentication and the role check.
  *
  * Also here: rate limiting of credential failures (429 + Retry-After, per client), the security
- * headers of the API and of the review app's static files (served through the real assets path
- * with `_headers`), no token in the worker's logs, and no secret in the repository's tracked files.
- * Configuration errors and the OpenAPI security declarations stay in access.test.ts.
+ * headers of the API, no token in the worker's logs, and no secret in the repository's tracked
+ * files. Configuration errors and the OpenAPI security declarations stay in access.test.ts; the
+ * headers of the review app's static files, which only workerd's assets path serves, are in
+ * workerd/assets.test.ts.
  */
 import { execFileSync } from "node:child_process";
 import { readFileSync } from "node:fs";
@@ -18,7 +20,8 @@ import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { app } from "../src/app";
 import { FAILURE_LIMIT } from "../src/middleware/credential-limiter";
 import { fitShopModel, UNUSUAL_PAYMENT } from "./fixtures";
-import { publishModel, repoRoot, startWorker, type RunningWorker } from "./harness";
+import { publishModel, repoRoot, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 
 type Caller = "anonymous" | "unknown" | "flow" | "analyst" | "admin";
 const CALLERS: Caller[] = ["anonymous", "unknown", "flow", "analyst", "admin"];
@@ -83,7 +86,7 @@ let clientCounter = 0;
 const freshClient = () => `198.51.100.${(clientCounter++ % 250) + 1}`;
 
 beforeAll(async () => {
-  worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0" } });
   await publishModel(worker, await fitShopModel({ version: "mmatrix-1" }));
 });
 afterAll(async () => {
@@ -204,34 +207,6 @@ describe("rate limiting of credential failures", () => {
       expect((await call("GET", "/v1/review/me", undefined, null, client)).status).toBe(401);
       expect((await call("GET", "/v1/review/me", undefined, worker.tokens.analyst, client)).status).toBe(200);
     }
-  });
-});
-
-describe("the review app's static files", () => {
-  test("carry the Content-Security-Policy and the other headers of review-ui/public/_headers", async () => {
-    const index = await worker.fetch("/", { headers: { accept: "text/html" } });
-    expect(index.status).toBe(200);
-    expect(index.headers.get("content-type")).toMatch(/^text\/html/);
-    const html = await index.text();
-    expect(html).toContain("<script");
-    const csp = index.headers.get("content-security-policy") ?? "";
-    expect(csp).toContain("default-src 'self'");
-    expect(csp).toContain("script-src 'self'");
-    expect(csp).toContain("object-src 'none'");
-    expect(csp).toContain("frame-ancestors 'none'");
-    expect(csp).not.toContain("unsafe-inline");
-    expect(index.headers.get("x-content-type-options")).toBe("nosniff");
-    expect(index.headers.get("x-frame-options")).toBe("DENY");
-    expect(index.headers.get("referrer-policy")).toBe("no-referrer");
-    // A script the page loads comes through the same path with the same headers.
-    const script = /src="([^"]+\.js)"/.exec(html)?.[1];
-    expect(script, "index.html loads a script").toBeDefined();
-    const asset = await worker.fetch(script!);
-    expect(asset.status).toBe(200);
-    expect(asset.headers.get("content-security-policy")).toBe(csp);
-    // An app route (single-page fallback) gets the same policy.
-    const deep = await worker.fetch("/queue/anything", { headers: { accept: "text/html" } });
-    expect(deep.headers.get("content-security-policy")).toBe(csp);
   });
 });
 

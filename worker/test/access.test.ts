@@ -1,17 +1,18 @@
 /**
- * Access control on the real worker: malformed Authorization headers, per-user identities, JSON 404s
+ * Access control, in process (./in-process.ts): malformed Authorization headers, per-user identities, JSON 404s
  * with the security headers, the OpenAPI security declarations, and configuration errors that name
  * the secret or variable without revealing its value. The role × route matrix (every route against
  * every kind of caller) is in access-matrix.test.ts.
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
-import { publishModel, startWorker, type RunningWorker } from "./harness";
+import { publishModel, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 import { fitShopModel, UNUSUAL_PAYMENT } from "./fixtures";
 
 let worker: RunningWorker;
 
 beforeAll(async () => {
-  worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0" } });
   const artifact = await fitShopModel({ version: "macc-1" });
   await publishModel(worker, artifact);
   await publishModel(worker, await fitShopModel({ version: "macc-2", seed: 3 }), false);
@@ -106,7 +107,7 @@ describe("OpenAPI document", () => {
 describe("configuration errors", () => {
   test("a malformed secret or variable is a 500 that names it and never shows its value", async () => {
     const secretValue = "checkout-without-a-colon-0123456789abcdef";
-    const broken = await startWorker({
+    const broken = await startApp({
       vars: { MODEL_REFRESH_SECONDS: "soon" },
       secrets: { FLOW_CREDENTIALS: secretValue },
     });

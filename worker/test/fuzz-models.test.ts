@@ -1,5 +1,5 @@
 /**
- * Fuzzing the admin model routes on the real worker: FUZZ_RUNS (10,000) hostile requests to each of
+ * Fuzzing the admin model routes in process (./in-process.ts): FUZZ_RUNS (10,000) hostile requests to each of
  * upload, list, read one, activate, rollback and shadow. Uploads are a real sealed artifact with one
  * definite defect (a value changed, a key removed or added, a `__proto__` key, truncated, the wrong
  * transport); the routes with a version in the path get hostile or unknown versions. Every answer
@@ -24,7 +24,8 @@ import {
   withProtoKey,
   type FuzzRequest,
 } from "./fuzz-kit";
-import { publishModel, startWorker, type RunningWorker } from "./harness";
+import { publishModel, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 import { storedCounts } from "./stored-counts";
 
 let worker: RunningWorker;
@@ -35,7 +36,7 @@ let candidateText: string;
 const STORED = new Set(["mfuzz-live", "mfuzz-spare"]);
 
 beforeAll(async () => {
-  worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0" } });
   await publishModel(worker, await fitShopModel({ version: "mfuzz-live" }));
   await publishModel(worker, await fitShopModel({ version: "mfuzz-spare", seed: 4 }), false);
   // A sealed artifact under a version that is not stored: any accepted upload would store it.

@@ -1,5 +1,5 @@
 /**
- * Fuzzing the review API, the export and the public routes on the real worker: FUZZ_RUNS (10,000)
+ * Fuzzing the review API, the export and the public routes in process (./in-process.ts): FUZZ_RUNS (10,000)
  * hostile requests to each review route, to `GET /v1/health` and to `GET /openapi.json`.
  *
  * Routes that take input get inputs broken in one definite way (an unknown, repeated or malformed
@@ -26,7 +26,8 @@ import {
   withProtoKey,
   type FuzzRequest,
 } from "./fuzz-kit";
-import { countRows, eventually, publishModel, startWorker, type RunningWorker } from "./harness";
+import { countRows, eventually, publishModel, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 import { storedCounts } from "./stored-counts";
 
 let worker: RunningWorker;
@@ -34,7 +35,7 @@ let before: Record<string, number>;
 const FLAGS = 3;
 
 beforeAll(async () => {
-  worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" } });
+  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" } });
   await publishModel(worker, await fitShopModel({ version: "mfuzz-review" }));
   for (let k = 0; k < FLAGS; k++) {
     const response = await worker.post("/v1/score", { transactionId: `fz-review-${k}`, features: { ...UNUSUAL_PAYMENT, amount: 2000 + k }, segment: "web" }, worker.tokens.flow);

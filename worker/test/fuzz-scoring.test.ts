@@ -1,5 +1,5 @@
 /**
- * Fuzzing the scoring routes on the real worker: FUZZ_RUNS (10,000) generated hostile requests to
+ * Fuzzing the scoring routes in process (./in-process.ts): FUZZ_RUNS (10,000) generated hostile requests to
  * each of `POST /v1/score` and `POST /v1/score/batch`, every one broken on purpose (type
  * confusion, deep nesting, huge numbers, `__proto__` keys, hostile Unicode, truncated JSON, wrong
  * content types, oversized bodies, out-of-domain features). Each must be refused with a 4xx naming
@@ -12,14 +12,15 @@ import fc from "fast-check";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { fitShopModel, shopPayments } from "./fixtures";
 import { deepNesting, fuzzEndpoint, hostileString, hugeNumberText, jsonHeaders, notANumber, notAString, transportBreakers, withProtoKey, type FuzzRequest } from "./fuzz-kit";
-import { publishModel, startWorker, type RunningWorker } from "./harness";
+import { publishModel, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 import { storedCounts } from "./stored-counts";
 
 let worker: RunningWorker;
 let before: Record<string, number>;
 
 beforeAll(async () => {
-  worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "1" } });
+  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "1" } });
   await publishModel(worker, await fitShopModel({ version: "mfuzz-score" }));
   before = await storedCounts(worker);
 });

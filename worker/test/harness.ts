@@ -126,14 +126,20 @@ export interface StartOptions {
 /** Name of the worker that hosts a {@link StartOptions.historyStandIn}. */
 const HISTORY_STAND_IN = "history-stand-in";
 
+/** A Miniflare running the bundled worker, before anyone talks to it. */
+export interface LaunchedWorker {
+  mf: Miniflare;
+  tokens: TestTokens;
+  logs: CapturedLog[];
+}
+
 /**
- * Starts the bundled worker with wrangler.toml's bindings and applies the D1 migrations.
- *
- * @example
- * const worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+ * Starts Miniflare with the bundled worker and wrangler.toml's bindings, the test's vars and
+ * secrets laid over them. Shared by {@link startWorker} (HTTP into workerd) and
+ * `startApp` in ./in-process.ts (the app in this process, the same bindings from this Miniflare).
  */
-export async function startWorker(options: StartOptions = {}): Promise<RunningWorker> {
-  const { scriptPath, workerOptions, migrations } = await preparedWorker();
+export async function launchMiniflare(options: StartOptions = {}): Promise<LaunchedWorker> {
+  const { scriptPath, workerOptions } = await preparedWorker();
   const tokens = options.tokens ?? makeTokens();
   const secrets: Record<string, string> = {
     FLOW_CREDENTIALS: `checkout:${tokens.flow},replayer:${tokens.flow2}`,
@@ -177,6 +183,20 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
     : [];
   const mf = new Miniflare((standIn.length > 0 ? { ...shared, workers: [isodense, ...standIn] } : { ...isodense, ...shared }) as ConstructorParameters<typeof Miniflare>[0]);
   await mf.ready;
+  return { mf, tokens, logs };
+}
+
+/**
+ * A {@link RunningWorker} over a launched Miniflare whose requests go through `send` (workerd's
+ * HTTP entry for {@link startWorker}, the app's `request()` for in-process tests), with the
+ * migrations applied unless told otherwise.
+ */
+export async function runningWorker(
+  launched: LaunchedWorker,
+  send: (url: string, init: RequestInit) => Promise<Response>,
+  options: Pick<StartOptions, "skipMigrations"> & { dispose?: () => Promise<void> } = {},
+): Promise<RunningWorker> {
+  const { mf, tokens, logs } = launched;
   const worker: RunningWorker = {
     mf,
     tokens,
@@ -185,7 +205,7 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
       const { token, ...rest } = init;
       const headers = new Headers(rest.headers as HeadersInit | undefined);
       if (token) headers.set("authorization", `Bearer ${token}`);
-      return mf.dispatchFetch(`http://isodense.test${path}`, { ...rest, headers } as never) as unknown as Promise<Response>;
+      return send(`http://isodense.test${path}`, { ...rest, headers });
     },
     post(path, body, token) {
       return worker.fetch(path, {
@@ -208,10 +228,35 @@ export async function startWorker(options: StartOptions = {}): Promise<RunningWo
       };
       return namespace.get(namespace.idFromName(account));
     },
-    dispose: () => mf.dispose(),
+    dispose: options.dispose ?? (() => mf.dispose()),
   };
-  if (!options.skipMigrations) await applyMigrations(await worker.db(), migrations);
+  if (!options.skipMigrations) await applyMigrations(await worker.db());
   return worker;
+}
+
+/**
+ * Starts the bundled worker on workerd with wrangler.toml's bindings and applies the D1
+ * migrations. Tests talk HTTP to it through Miniflare's `dispatchFetch`.
+ *
+ * @example
+ * const worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+ */
+export async function startWorker(options: StartOptions = {}): Promise<RunningWorker> {
+  const launched = await launchMiniflare(options);
+  return runningWorker(launched, async (url, init) => buffered((await launched.mf.dispatchFetch(url, init as never)) as unknown as Response), options);
+}
+
+/** Statuses whose answers carry no body (the Response constructor refuses one). */
+const NULL_BODY_STATUSES = new Set([101, 204, 205, 304]);
+
+/**
+ * The answer with its body read to the end. A body left unread keeps its connection paused, and
+ * Miniflare's `dispose()` then waits on that connection for ever (an `afterAll` that hung once a
+ * test had not read a large static file); reading every body here means no test can cause that.
+ */
+async function buffered(response: Response): Promise<Response> {
+  const body = await response.arrayBuffer();
+  return new Response(NULL_BODY_STATUSES.has(response.status) ? null : body, { status: response.status, statusText: response.statusText, headers: response.headers });
 }
 
 /** Applies the migrations of worker/migrations in name order, one D1 batch per file. */

@@ -1,6 +1,6 @@
 /**
- * The loop's service half on the real worker (workerd through Miniflare, real local KV, D1 and
- * Queues): traffic counts flushed through the queue and upserted once however often a flush is
+ * The loop's service half in process (./in-process.ts: the app with real local KV, D1, Queues
+ * and Durable Objects): traffic counts flushed through the queue and upserted once however often a flush is
  * delivered; the labelled operating table and its estimates from decisions made through the
  * review API; the shadow comparison; the score histogram; publishing a retuned cutoff and rolling
  * it back; role checks and bad input on every new route. Payments are invented (fixtures.ts).
@@ -10,7 +10,8 @@ import { bucketIndex, parseArtifact, type ModelArtifact } from "../../shared-mod
 import type { CountsMessage } from "../src/insights/counts-message";
 import { dayBefore } from "../src/insights/traffic-queries";
 import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT } from "./fixtures";
-import { countRows, eventually, startWorker, type D1Like, type RunningWorker } from "./harness";
+import { countRows, eventually, type D1Like, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 
 let worker: RunningWorker;
 let db: D1Like;
@@ -37,7 +38,7 @@ const outcomes = new Map<string, "fraud" | "legitimate">();
 const today = dayBefore(new Date(), 0);
 
 beforeAll(async () => {
-  worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0.25", DRIFT_FLUSH_PAYMENTS: "10", DRIFT_FLUSH_SECONDS: "3600" } });
+  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0.25", DRIFT_FLUSH_PAYMENTS: "10", DRIFT_FLUSH_SECONDS: "3600" } });
   db = await worker.db();
   live = await parseArtifact(await fitShopModel({ version: "m20260302-loop01" }));
   shadowModel = await parseArtifact(await fitShopModel({ version: "m20260302-loop02", seed: 12, cutoffRate: 0.05 }));

@@ -1,5 +1,5 @@
 /**
- * Models in KV on the real worker: upload (verified by the core, immutable versions), list, read,
+ * Models in KV, in process (./in-process.ts, real local KV and D1): upload (verified by the core, immutable versions), list, read,
  * activate, roll back and shadow, each change logged in model_events with the admin's user name;
  * tampered artifacts refused at upload and never made live from KV; and KV failures with and
  * without a cached model.
@@ -9,7 +9,8 @@ import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import type { ModelArtifact } from "../../shared-model/src";
-import { publishModel, startWorker, type RunningWorker } from "./harness";
+import { publishModel, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 import { fitShopModel, UNUSUAL_PAYMENT } from "./fixtures";
 
 let first: ModelArtifact;
@@ -47,7 +48,7 @@ function putJson(worker: RunningWorker, path: string, body: unknown): Promise<Re
 describe("admin routes", () => {
   let worker: RunningWorker;
   beforeAll(async () => {
-    worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+    worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0" } });
   });
   afterAll(async () => {
     await worker?.dispose();
@@ -175,7 +176,7 @@ describe("KV failures with a cached model", () => {
   let stateDir: string;
   beforeAll(async () => {
     stateDir = await mkdtemp(join(tmpdir(), "isodense-kv-"));
-    worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0" }, persistDir: stateDir });
+    worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0" }, persistDir: stateDir });
     await publishModel(worker, first);
     expect((await scoreVersion(worker, "kv-warm")).version).toBe("mkv-1");
   });
@@ -240,7 +241,7 @@ describe("KV failures with a cached model", () => {
 
 describe("first model after an activation", () => {
   test("calls arriving while the isolate loads it wait for the load instead of answering no-model", async () => {
-    const worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "60" } });
+    const worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "60" } });
     try {
       // The isolate looks for a model once and finds none, so it would not look again for a second.
       expect((await scoreVersion(worker, "first-0")).status).toBe(503);
@@ -258,7 +259,7 @@ describe("first model after an activation", () => {
 
 describe("KV failures without a cached model", () => {
   test("with nothing loadable the flow gets a 503 it can act on, and scoring starts once a good model is stored", async () => {
-    const worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "7" } });
+    const worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "7" } });
     try {
       const empty = await worker.post("/v1/score", { transactionId: "cold-0", features: UNUSUAL_PAYMENT }, worker.tokens.flow);
       expect(empty.status).toBe(503);

@@ -1,18 +1,19 @@
 /**
- * The OpenAPI document served by the real worker describes every route the Hono app registers
+ * The OpenAPI document the app serves (in process, ./in-process.ts) describes every route the Hono app registers
  * (read from `app.routes`, so a route added later without documentation fails here), with the
  * bearer scheme on every operation but the public ones.
  */
 import { afterAll, beforeAll, expect, test } from "vitest";
 import { app } from "../src/app";
-import { startWorker, type RunningWorker } from "./harness";
+import type { RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 
 const PUBLIC = new Set(["GET /v1/health", "GET /openapi.json"]);
 
 let worker: RunningWorker;
 
 beforeAll(async () => {
-  worker = await startWorker();
+  worker = await startApp();
 });
 afterAll(async () => {
   await worker?.dispose();

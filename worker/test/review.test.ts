@@ -1,6 +1,6 @@
 /**
- * The review API on the real worker (workerd through Miniflare, real local D1 and KV, migrations
- * applied): claims and their races, expiry, decisions with their audit rows, undo, paging and
+ * The review API in process (./in-process.ts: the app with real local D1, KV and Queues,
+ * migrations applied): claims and their races, expiry, decisions with their audit rows, undo, paging and
  * filters, the payment view's evidence, the labelled-set export read back with the CLI's own CSV
  * and ledger readers, role checks and bad input.
  *
@@ -17,7 +17,8 @@ import { openLedger } from "../../cli/ledger";
 import type { AccountDecision, AccountFlags, ActionResult, AuditEvent, DaySummary, ItemDetail, QueuePage, QueueRow, StateCounts, WhoAmI } from "../src/review/contract";
 import { buildCountQuery, buildPageQuery } from "../src/review/queue-store";
 import { fitShopModel, SHOP_FEATURES, shopPayments, UNUSUAL_PAYMENT } from "./fixtures";
-import { countRows, eventually, makeTokens, startWorker, type D1Like, type RunningWorker } from "./harness";
+import { countRows, eventually, makeTokens, type D1Like, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 
 const tokens = makeTokens();
 /** A second analyst for the races. */
@@ -27,7 +28,7 @@ let db: D1Like;
 let modelVersion: string;
 
 beforeAll(async () => {
-  worker = await startWorker({
+  worker = await startApp({
     tokens,
     vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0", ANALYST_DAILY_CAPACITY: "120" },
     secrets: { ANALYST_CREDENTIALS: `rosa:${tokens.analyst},idris:${idrisToken}` },
@@ -861,7 +862,7 @@ describe("the labelled-set export", () => {
 
 describe("configuration", () => {
   it("answers 500 naming ANALYST_DAILY_CAPACITY when it is not a whole number", async () => {
-    const other = await startWorker({ vars: { ANALYST_DAILY_CAPACITY: "lots" } });
+    const other = await startApp({ vars: { ANALYST_DAILY_CAPACITY: "lots" } });
     try {
       const res = await other.fetch("/v1/review/summary", { token: other.tokens.analyst });
       expect(res.status).toBe(500);

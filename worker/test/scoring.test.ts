@@ -1,12 +1,13 @@
 /**
- * Scoring on the real worker: answers equal the model core's own Scorer, batches answer each
+ * Scoring in process (./in-process.ts): answers equal the model core's own Scorer, batches answer each
  * payment on its own, repeats are idempotent (409 on a conflicting repeat), flags and audit draws
  * reach the review store once, and a shadow model is recorded without touching the answer.
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { compileModel, parseArtifact, Scorer, type ModelArtifact } from "../../shared-model/src";
 import { auditPosition } from "../src/scoring/audit-sample";
-import { countRows, eventually, publishModel, startWorker, type RunningWorker } from "./harness";
+import { countRows, eventually, publishModel, type RunningWorker } from "./harness";
+import { startApp } from "./in-process";
 import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT, SHOP_FEATURES } from "./fixtures";
 
 let worker: RunningWorker;
@@ -16,7 +17,7 @@ let scorer: Scorer;
 beforeAll(async () => {
   artifact = await fitShopModel({ version: "mshop-live" });
   scorer = new Scorer(compileModel(await parseArtifact(artifact)));
-  worker = await startWorker({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0.05" } });
+  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0.05" } });
   await publishModel(worker, artifact);
 });
 afterAll(async () => {

@@ -11,15 +11,15 @@ import { mkdtemp, readFile, rm, writeFile } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, expect, test } from "vitest";
-import { renewCommand } from "../../cli/commands/renew";
-import { captureIO } from "../../cli/capture-io";
-import { demoLedgerCommand } from "../../demo-ledger/cli";
-import { generateLedger } from "../../demo-ledger/generate";
-import { runDemoLoop } from "../../scripts/demo-loop-core";
-import type { RenewReport } from "../../shared-model/src/renew-report";
-import { seedDemoQueue } from "../../test/e2e/demo-queue";
-import type { ModelPageData, ShadowData } from "../src/insights/contract";
-import { startWorker, type RunningWorker } from "./harness";
+import { renewCommand } from "../../../cli/commands/renew";
+import { captureIO } from "../../../cli/capture-io";
+import { demoLedgerCommand } from "../../../demo-ledger/cli";
+import { generateLedger } from "../../../demo-ledger/generate";
+import { runDemoLoop } from "../../../scripts/demo-loop-core";
+import type { RenewReport } from "../../../shared-model/src/renew-report";
+import { seedDemoQueue } from "../../../test/e2e/demo-queue";
+import type { ModelPageData, ShadowData } from "../../src/insights/contract";
+import { startWorker, type RunningWorker } from "../harness";
 
 const ROWS = 6000;
 /** Week 2 turns dearer from here on: the last three weeks of the eight the generator spans. */

@@ -9,10 +9,10 @@ import { mkdtemp, rm } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import type { ItemDetail } from "../src/review/contract";
-import type { ScoreAnswer } from "../src/routes/schemas";
-import { fitShopModel, UNUSUAL_PAYMENT, shopPayments } from "./fixtures";
-import { countRows, eventually, makeTokens, publishModel, startWorker, type RunningWorker } from "./harness";
+import type { ItemDetail } from "../../src/review/contract";
+import type { ScoreAnswer } from "../../src/routes/schemas";
+import { fitShopModel, UNUSUAL_PAYMENT, shopPayments } from "../fixtures";
+import { countRows, eventually, makeTokens, publishModel, startWorker, type RunningWorker } from "../harness";
 
 const tokens = makeTokens();
 let dir: string;

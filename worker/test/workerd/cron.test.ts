@@ -5,11 +5,11 @@
  * its top decile (PSI far above 0.25), one nudged (between 0.1 and 0.25), the rest as in training.
  */
 import { afterAll, beforeAll, expect, test } from "vitest";
-import { parseArtifact, type ModelArtifact } from "../../shared-model/src";
-import { dayBefore } from "../src/insights/traffic-queries";
-import type { CountsMessage } from "../src/insights/counts-message";
-import { fitShopModel } from "./fixtures";
-import { eventually, startWorker, type D1Like, type RunningWorker } from "./harness";
+import { parseArtifact, type ModelArtifact } from "../../../shared-model/src";
+import { dayBefore } from "../../src/insights/traffic-queries";
+import type { CountsMessage } from "../../src/insights/counts-message";
+import { fitShopModel } from "../fixtures";
+import { eventually, startWorker, type D1Like, type RunningWorker } from "../harness";
 
 let worker: RunningWorker;
 let db: D1Like;

@@ -5,7 +5,7 @@
  */
 import { connect, type Socket } from "node:net";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
-import { startWorker, type RunningWorker } from "./harness";
+import { startWorker, type RunningWorker } from "../harness";
 
 let worker: RunningWorker;
 let port: number;

@@ -9,10 +9,10 @@ import { createServer, type AddressInfo } from "node:net";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, expect, test } from "vitest";
-import { publishCommand } from "../../cli/commands/publish";
-import type { CommandIO } from "../../cli/io";
-import { startWorker, type RunningWorker } from "./harness";
-import { fitShopModel } from "./fixtures";
+import { publishCommand } from "../../../cli/commands/publish";
+import type { CommandIO } from "../../../cli/io";
+import { startWorker, type RunningWorker } from "../harness";
+import { fitShopModel } from "../fixtures";
 
 let worker: RunningWorker;
 let url: string;

@@ -6,9 +6,9 @@
  * batch nor vanishes silently.
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
-import type { ReviewMessage } from "../src/storage/messages";
-import { countRows, eventually, publishModel, startWorker, type RunningWorker } from "./harness";
-import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT } from "./fixtures";
+import type { ReviewMessage } from "../../src/storage/messages";
+import { countRows, eventually, publishModel, startWorker, type RunningWorker } from "../harness";
+import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT } from "../fixtures";
 
 let worker: RunningWorker;
 

@@ -9,12 +9,12 @@ import { mkdtemp, readFile, rm } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, expect, test } from "vitest";
-import { captureIO } from "../../cli/capture-io";
-import { deriveCommand } from "../../cli/commands/derive";
-import { openCsvTable } from "../../cli/csv";
-import { fitModel, parseRecordSpec, recordColumns, type FitRow, type RecordSpec } from "../../shared-model/src";
-import { byTestDepth } from "../../shared-model/src/test-support";
-import { publishModel, repoRoot, startWorker, type RunningWorker } from "./harness";
+import { captureIO } from "../../../cli/capture-io";
+import { deriveCommand } from "../../../cli/commands/derive";
+import { openCsvTable } from "../../../cli/csv";
+import { fitModel, parseRecordSpec, recordColumns, type FitRow, type RecordSpec } from "../../../shared-model/src";
+import { byTestDepth } from "../../../shared-model/src/test-support";
+import { publishModel, repoRoot, startWorker, type RunningWorker } from "../harness";
 
 const ledgerPath = join(repoRoot, "demo-ledger/sample.csv");
 const specPath = join(repoRoot, "demo-ledger/spec.json");

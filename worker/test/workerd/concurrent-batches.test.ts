@@ -9,8 +9,8 @@ import { mkdtemp, readdir, rm } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import { fitShopModel, scoreBody, shopPayments } from "./fixtures";
-import { publishModel, startWorker, type RunningWorker } from "./harness";
+import { fitShopModel, scoreBody, shopPayments } from "../fixtures";
+import { publishModel, startWorker, type RunningWorker } from "../harness";
 
 let dir: string;
 let worker: RunningWorker;
