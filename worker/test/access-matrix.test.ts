@@ -49,6 +49,7 @@ const MATRIX: Record<string, MatrixRow> = {
   "POST /v1/models/:version/activate": { allowed: ["admin"], path: "/v1/models/mmatrix-1/activate", body: {} },
   "POST /v1/models/rollback": { allowed: ["admin"], body: {} },
   "PUT /v1/models/shadow": { allowed: ["admin"], body: { version: null } },
+  "POST /v1/models/:version/renew-report": { allowed: ["admin"], path: "/v1/models/mmatrix-1/renew-report", body: {} },
   "DELETE /v1/accounts/:accountRef/history": { allowed: ["admin"], path: "/v1/accounts/acct-matrix/history" },
   "DELETE /v1/accounts/:accountRef": { allowed: ["admin"], path: "/v1/accounts/acct-matrix" },
   "GET /v1/audit/verify": { allowed: ["admin"] },
