@@ -249,9 +249,9 @@ export function canonicalJson(value: unknown): string {
   return parts.join("");
 }
 
-/** `$.a[1].b` from path parts; built only when an error is thrown. */
+/** `$.a[1].b` from path parts, written as every field path is (`field-path.ts`); built only when an error is thrown. */
 function pathText(path: readonly (string | number)[]): string {
-  return path.reduce<string>((acc, p) => (typeof p === "number" ? `${acc}[${p}]` : `${acc}.${p}`), "$");
+  return formatFieldPath(path, "$");
 }
 
 function writeCanonical(value: unknown, path: (string | number)[], out: string[]): void {

@@ -12,11 +12,11 @@ import fc from "fast-check";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { fitShopModel, shopPayments } from "./fixtures";
 import { deepNesting, fuzzEndpoint, hostileString, hugeNumberText, jsonHeaders, notANumber, notAString, transportBreakers, withProtoKey, type FuzzRequest } from "./fuzz-kit";
-import { publishModel, type RunningWorker } from "./harness";
-import { startApp } from "./in-process";
+import { publishModel, queueDelivered } from "./harness";
+import { startApp, type InProcessWorker } from "./in-process";
 import { storedCounts } from "./stored-counts";
 
-let worker: RunningWorker;
+let worker: InProcessWorker;
 let before: Record<string, number>;
 
 beforeAll(async () => {
@@ -185,8 +185,9 @@ describe("fuzzing the scoring routes", { timeout: 600_000 }, () => {
   });
 
   test("nothing of the refused requests was stored: no review row, no KV key, no queue delivery", async () => {
-    // Anything enqueued would reach D1 about a second after the send; wait well past that.
-    await new Promise((r) => setTimeout(r, 2500));
-    expect(await storedCounts(worker)).toEqual(before);
+    // Anything enqueued would have reached D1 before the marker's review row (one item, one queue line).
+    await worker.settle();
+    await queueDelivered(worker, "fz-marker");
+    expect(await storedCounts(worker)).toEqual({ ...before, review_items: before.review_items + 1, review_status: before.review_status + 1 });
   });
 });

@@ -14,6 +14,7 @@ import { fileURLToPath } from "node:url";
 import { Log, LogLevel, Miniflare } from "miniflare";
 import { inject } from "vitest";
 import type { HistoryFootprint, HistoryResult } from "../src/history/contract";
+import { UNUSUAL_PAYMENT } from "./fixtures";
 import { prepareWorker, type PreparedMigration, type PreparedWorker } from "./worker-build";
 
 export const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
@@ -276,6 +277,24 @@ export async function eventually<T>(check: () => Promise<T | undefined>, timeout
     if (Date.now() > deadline) throw new Error(`condition not met within ${timeoutMs} ms`);
     await new Promise((r) => setTimeout(r, intervalMs));
   }
+}
+
+/**
+ * Waits until the hand-off queue has delivered everything sent to it before this call: scores a
+ * payment the test models flag (`transactionId` names it) and waits for its review row. The local
+ * queue delivers in the order it was given messages, so a message sent earlier (a shadow score, a
+ * flag that should not exist) has reached D1 by then, or was never sent. In place of a fixed sleep.
+ *
+ * @example
+ * await queueDelivered(worker, "marker-1");
+ * expect(await countRows(db, "shadow_scores", "transaction_id = 'shadow-2'")).toBe(0);
+ */
+export async function queueDelivered(worker: RunningWorker, transactionId: string): Promise<void> {
+  const response = await worker.post("/v1/score", { transactionId, features: UNUSUAL_PAYMENT, segment: "web" }, worker.tokens.flow);
+  const text = await response.text();
+  if (response.status !== 200 || !text.includes('"decision":"review"')) throw new Error(`the queue marker ${transactionId} was not flagged: ${response.status} ${text}`);
+  const db = await worker.db();
+  await eventually(async () => ((await countRows(db, "review_items", "transaction_id = ?1", transactionId)) === 1 ? true : undefined), 30_000);
 }
 
 /** Counts rows of a table. */

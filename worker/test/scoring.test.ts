@@ -6,11 +6,11 @@
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { compileModel, parseArtifact, Scorer, type ModelArtifact } from "../../shared-model/src";
 import { auditPosition } from "../src/scoring/audit-sample";
-import { countRows, eventually, publishModel, type RunningWorker } from "./harness";
-import { startApp } from "./in-process";
+import { countRows, eventually, publishModel, queueDelivered } from "./harness";
+import { startApp, type InProcessWorker } from "./in-process";
 import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT, SHOP_FEATURES } from "./fixtures";
 
-let worker: RunningWorker;
+let worker: InProcessWorker;
 let artifact: ModelArtifact;
 let scorer: Scorer;
 
@@ -235,7 +235,9 @@ describe("shadow model", () => {
     });
     expect(cleared.status).toBe(200);
     expect((await worker.post("/v1/score", scoreBody("shadow-2", payment), worker.tokens.flow)).status).toBe(200);
-    await new Promise((r) => setTimeout(r, 2500));
+    // Whatever shadow-2 handed to waitUntil has been sent once settled; the marker comes after it.
+    await worker.settle();
+    await queueDelivered(worker, "shadow-marker");
     expect(await countRows(db, "shadow_scores", "transaction_id = 'shadow-2'")).toBe(0);
   });
 });

@@ -5,7 +5,7 @@
  * remembered answer: the same transactionId sent correctly afterwards is scored, not a 409).
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
-import { countRows, eventually, publishModel } from "./harness";
+import { countRows, eventually, publishModel, queueDelivered } from "./harness";
 import { startApp, type InProcessWorker } from "./in-process";
 import { fitShopModel, UNUSUAL_PAYMENT } from "./fixtures";
 import { describeRequest } from "./fuzz-kit";
@@ -200,10 +200,8 @@ describe("transport", () => {
 describe("nothing from a refused request is kept", () => {
   test("no review row exists for any refused id, and each is scored normally when sent correctly", async () => {
     const db = await worker.db();
-    // A marker scored after every refusal: the local queue delivers in the order it was given
-    // messages, so once the marker is stored anything a refused request had sent would be too.
-    expect((await worker.post("/v1/score", { transactionId: "v-marker", features: UNUSUAL_PAYMENT }, worker.tokens.flow)).status).toBe(200);
-    await eventually(async () => ((await countRows(db, "review_items", "transaction_id = 'v-marker'")) === 1 ? true : undefined), 15_000);
+    // Once a marker scored after every refusal is stored, anything a refused request had sent would be too.
+    await queueDelivered(worker, "v-marker");
     const ids = [...rejectedIds].filter((id) => id.length > 0 && id.length <= 128 && /^[\x21-\x7e]+$/.test(id));
     expect(ids.length).toBeGreaterThan(8);
     for (const id of ids) expect(await countRows(db, "review_items", "transaction_id = ?1", id), id).toBe(0);

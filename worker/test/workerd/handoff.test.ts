@@ -108,8 +108,9 @@ describe("queue consumer", () => {
     ]);
     await queue.send(reviewMessage("dup-1"), { contentType: "json" });
     const db = await worker.db();
-    await eventually(async () => ((await countRows(db, "review_items", "transaction_id = 'dup-1'")) === 1 ? true : undefined), 15_000);
-    await new Promise((r) => setTimeout(r, 2500));
+    // A marker sent last: the local queue delivers in order, so once it is stored every copy of dup-1 has been.
+    await queue.send(reviewMessage("dup-marker"), { contentType: "json" });
+    await eventually(async () => ((await countRows(db, "review_items", "transaction_id = 'dup-marker'")) === 1 ? true : undefined), 15_000);
     expect(await countRows(db, "review_items", "transaction_id = 'dup-1'")).toBe(1);
   });
 
