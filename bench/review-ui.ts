@@ -18,7 +18,7 @@ import { cpus } from "node:os";
 import { join } from "node:path";
 import { compileModel, fitModel, Scorer, type FitRow } from "../shared-model/src";
 import { generateLedger, type LedgerRow } from "../demo-ledger/generate";
-import type { QueuePage } from "../worker/src/review/contract";
+import type { QueuePage } from "../worker/src/contract";
 import { DEMO_FEATURES } from "../test/e2e/demo-queue";
 import { launchChromium, launchDev, repoRoot, startStack, wrangler, type Stack } from "../test/e2e/stack";
 

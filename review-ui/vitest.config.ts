@@ -1,4 +1,5 @@
 import { defineConfig } from "vitest/config";
+import { contractAlias } from "./vite.config.ts";
 
 // Unit tests of the review app's pure modules (formatting, plot geometry, keys). The screens
 // themselves are tested in a real browser by test/e2e.
@@ -9,4 +10,5 @@ export default defineConfig({
     environment: "node",
     include: ["review-ui/src/**/*.test.ts"],
   },
+  resolve: { alias: contractAlias },
 });

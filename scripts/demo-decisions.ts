@@ -3,7 +3,7 @@
  * would (claim, then decide). For the invented demo only: it stands in for a desk of analysts so
  * the loop (decisions → labels → tuning → refit) can run end to end on one machine.
  */
-import type { ActionResult, QueuePage } from "../worker/src/review/contract";
+import type { ActionResult, QueuePage } from "../worker/src/contract";
 
 async function call<T>(base: string, path: string, token: string, body?: unknown): Promise<T> {
   const send = () =>

@@ -12,7 +12,7 @@ import { join } from "node:path";
 import { renewCommand } from "../cli/commands/renew";
 import type { CommandIO } from "../cli/io";
 import type { RenewReport } from "../shared-model/src/renew-report";
-import type { ShadowData } from "../worker/src/insights/contract";
+import type { ShadowData } from "../worker/src/contract";
 import { decideFromLedger } from "./demo-decisions";
 
 /** Where the service is and who calls it. */

@@ -7,7 +7,7 @@
 import { readFileSync } from "node:fs";
 import { fitModel, parseRecordSpec, type FeatureDeclaration, type FitRow } from "../../shared-model/src";
 import { generateLedger, type LedgerRow } from "../../demo-ledger/generate";
-import type { StateCounts } from "../../worker/src/review/contract";
+import type { StateCounts } from "../../worker/src/contract";
 
 /** The demo model's features: skewed positives get log/log1p, the hour is cyclic. */
 export const DEMO_FEATURES: FeatureDeclaration[] = [

@@ -4,6 +4,7 @@
  * `worker/worker-configuration.d.ts`; `npm run check:env-types` fails when it is stale); secrets take
  * their names from `.dev.vars.example`. The `[vars]` are parsed in one place: `./settings.ts`.
  */
+import type { Problem } from "./contract/wire";
 
 /**
  * Worker bindings (KV `MODELS`, D1 `DB`, Queue `FLAGS`, `ASSETS`), plain-text variables (`[vars]`,
@@ -15,14 +16,8 @@ export type Env = Omit<Cloudflare.Env, Secret> & Partial<Pick<Cloudflare.Env, Se
 /** Secrets (named in `.dev.vars.example`): a deployment may leave a role without credentials. */
 type Secret = "FLOW_CREDENTIALS" | "ANALYST_CREDENTIALS" | "ADMIN_CREDENTIALS";
 
-/** A field/rule pair: what was wrong and which rule it broke. The unit of every error answer. */
-export interface Problem {
-  /** Dotted path of the offending field (`features.amount`, `payments[3].transactionId`), or a
-   *  header / variable name (`content-type`, `MAX_BATCH`). */
-  field: string;
-  /** The rule, with what was expected and what came. */
-  rule: string;
-}
+/** A field/rule pair: what was wrong and which rule it broke (declared in the API contract). */
+export type { Problem };
 
 /**
  * A deployment mistake (malformed variable or secret). Answered as a 500 that names the variable

@@ -12,7 +12,7 @@ export type { Env } from "./env";
 export { AccountHistoryObject } from "./history/account-history-object";
 export { IdempotencyObject } from "./idempotency/idempotency-object";
 export type { HandoffMessage, ReviewMessage, ShadowMessage } from "./storage/messages";
-export type { ScoreAnswer } from "./routes/schemas";
+export type { ScoreAnswer } from "./contract/scoring";
 
 export default {
   fetch: app.fetch,

@@ -7,15 +7,7 @@ import type { Context } from "hono";
 import type { ContentfulStatusCode } from "hono/utils/http-status";
 import type { z } from "zod";
 import { formatFieldPath } from "../../shared-model/src/field-path";
-import type { Problem } from "./env";
-
-/** Body of every error answer. */
-export interface ErrorBody {
-  error: string;
-  problems: Problem[];
-  /** Present on 503s the payment flow may retry. */
-  retryable?: boolean;
-}
+import type { ErrorBody, Problem } from "./contract/wire";
 
 /**
  * Sends an error answer.
@@ -95,13 +87,13 @@ const EXPECTED_LABEL: Record<string, string> = {
 
 /**
  * Turns zod issues into problems, reading the received values from the original input so that the
- * rule says what came. `accepted` lists the keys allowed at the root, for unknown-key rules.
+ * rule says what came. An unknown key's rule lists the keys `schema` (a strict object) accepts.
  *
  * @example
- * problemsFromZod(result.error, body, "", ["transactionId", "features"])
+ * problemsFromZod(result.error, body, "", scoreRequestSchema)
  * // → [{ field: "transactionId", rule: "is required: expected a string" }]
  */
-export function problemsFromZod(error: z.ZodError, input: unknown, prefix: string, accepted: readonly string[]): Problem[] {
+export function problemsFromZod(error: z.ZodError, input: unknown, prefix: string, schema: z.ZodObject): Problem[] {
   const problems: Problem[] = [];
   for (const issue of error.issues) {
     const received = valueAt(input, issue.path);
@@ -110,7 +102,7 @@ export function problemsFromZod(error: z.ZodError, input: unknown, prefix: strin
         for (const key of issue.keys) {
           problems.push({
             field: fieldPath(prefix, [...issue.path, key]),
-            rule: `is not an accepted field; accepted: ${accepted.join(", ")}`,
+            rule: `is not an accepted field; accepted: ${Object.keys(schema.shape).join(", ")}`,
           });
         }
         break;

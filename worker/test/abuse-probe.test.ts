@@ -13,7 +13,7 @@ import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { parseCsvChunks } from "../../cli/csv";
 import { readLabels } from "../../cli/labels";
-import type { EventPage, ItemDetail, QueuePage } from "../src/review/contract";
+import type { EventPage, ItemDetail, QueuePage } from "../src/contract";
 import { DECISION_CHANGE_LIMIT } from "../src/review/settings";
 import { fitShopModel, SHOP_FEATURES, UNUSUAL_PAYMENT } from "./fixtures";
 import { eventually, makeTokens, type D1Like, type RunningWorker } from "./harness";

@@ -10,9 +10,8 @@
  * seals are the real ones. All data are invented.
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
-import type { ChainReport } from "../src/audit/audit-chain";
+import type { ChainReport, RetentionRun } from "../src/contract";
 import { chainLink, eventDigest, type StoredEvent } from "../src/audit/audit-chain";
-import type { RetentionRun } from "../src/retention/retention";
 import type { ConflictMessage, ReviewMessage } from "../src/storage/messages";
 import { RETENTION_BATCH } from "../src/retention/retention";
 import { recordFromFields } from "../../shared-model/src";

@@ -5,22 +5,31 @@
  */
 import type {
   AccountDecision,
+  AccountDecisionRequest,
   AccountFlags,
   ActionResult,
   DaySummary,
+  DecisionRequest,
   EventPage,
   Facets,
+  HistogramData,
   ItemDetail,
+  ModelPageData,
+  OperatingData,
   Outcome,
+  PointerChange,
+  PublishCutoffRequest,
+  PublishedCutoff,
   QueuePage,
   ReviewState,
   Selection,
+  ShadowData,
+  ShadowRequest,
   SortDirection,
   SortKey,
   StateCounts,
   WhoAmI,
-} from "../../../worker/src/review/contract";
-import type { HistogramData, ModelPageData, ModelPointer, OperatingData, PublishedCutoff, ShadowData } from "../../../worker/src/insights/contract";
+} from "@contract";
 
 /** A failed call, already worded for the person at the keyboard. */
 export class ApiError extends Error {
@@ -92,7 +101,7 @@ function failure(status: number, body: unknown): ApiError {
   return new ApiError(status, `The review service failed (${status}). Try again in a moment.`, code, body);
 }
 
-/** Error answers are `{ error: <code>, problems: [{ field, rule }] }` (worker/src/problems.ts). */
+/** Error answers are `ErrorBody` of the contract: `{ error: <code>, problems: [{ field, rule }] }`. */
 function errorObject(body: unknown): Record<string, unknown> | null {
   return body && typeof body === "object" ? (body as Record<string, unknown>) : null;
 }
@@ -144,11 +153,11 @@ export const listEvents = (id: number, before: number, limit = 50): Promise<Even
 export const claimItem = (id: number): Promise<ActionResult> => send("POST", `/v1/review/items/${id}/claim`, {});
 export const releaseItem = (id: number): Promise<ActionResult> => send("POST", `/v1/review/items/${id}/release`, {});
 export const decideItem = (id: number, outcome: Outcome, note?: string): Promise<ActionResult> =>
-  send("POST", `/v1/review/items/${id}/decision`, note ? { outcome, note } : { outcome });
+  send("POST", `/v1/review/items/${id}/decision`, (note ? { outcome, note } : { outcome }) satisfies DecisionRequest);
 export const undoDecision = (id: number): Promise<ActionResult> => send("POST", `/v1/review/items/${id}/undo`, {});
 export const accountFlags = (id: number): Promise<AccountFlags> => send("GET", `/v1/review/items/${id}/account-flags`);
 export const decideAccount = (id: number, ids: number[], outcome: Outcome, note?: string): Promise<AccountDecision> =>
-  send("POST", `/v1/review/items/${id}/account-decision`, note ? { ids, outcome, note } : { ids, outcome });
+  send("POST", `/v1/review/items/${id}/account-decision`, (note ? { ids, outcome, note } : { ids, outcome }) satisfies AccountDecisionRequest);
 export const daySummary = (): Promise<DaySummary> => send("GET", "/v1/review/summary");
 export const facets = (): Promise<Facets> => send("GET", "/v1/review/facets");
 
@@ -157,10 +166,9 @@ export const modelPage = (): Promise<ModelPageData> => send("GET", "/v1/insights
 export const operatingTable = (version: string): Promise<OperatingData> => send("GET", "/v1/insights/operating", undefined, { version });
 export const shadowComparison = (): Promise<ShadowData> => send("GET", "/v1/insights/shadow");
 export const scoreHistogram = (): Promise<HistogramData> => send("GET", "/v1/insights/histogram");
-export const publishCutoff = (body: { fromVersion: string; cutoffMahalanobisSq: number; flagRate: number | null; reason: string; confirm: "publish" }): Promise<PublishedCutoff> =>
-  send("POST", "/v1/insights/publish-cutoff", body);
-export const rollbackModel = (): Promise<{ pointer: ModelPointer; changed: boolean }> => send("POST", "/v1/models/rollback", {});
+export const publishCutoff = (body: PublishCutoffRequest): Promise<PublishedCutoff> => send("POST", "/v1/insights/publish-cutoff", body);
+export const rollbackModel = (): Promise<PointerChange> => send("POST", "/v1/models/rollback", {});
 /** Promotes the shadow: the audited activate of its version. */
-export const activateModel = (version: string): Promise<{ pointer: ModelPointer; changed: boolean }> => send("POST", `/v1/models/${encodeURIComponent(version)}/activate`, {});
+export const activateModel = (version: string): Promise<PointerChange> => send("POST", `/v1/models/${encodeURIComponent(version)}/activate`, {});
 /** Discards the shadow: the audited shadow-clear (the version stays stored). */
-export const clearShadow = (): Promise<{ pointer: ModelPointer; changed: boolean }> => send("PUT", "/v1/models/shadow", { version: null });
+export const clearShadow = (): Promise<PointerChange> => send("PUT", "/v1/models/shadow", { version: null } satisfies ShadowRequest);

@@ -3,15 +3,12 @@
  * labelled operating table (no round trip per move): the operating point of the labelled set, the
  * Horvitz–Thompson estimates for all traffic with intervals, and the expected flags per day.
  */
+import type { OperatingData } from "@contract";
 import { estimateRates, type RateEstimates } from "../../../shared-model/src/estimates";
 import { operatingPoints, pointAtCutoff, TuningInputError, type OperatingPoint, type OperatingTable } from "../../../shared-model/src/tuning";
 
 /** Labelled rows as the insights API sends them (parallel arrays). */
-export interface LabelArrays {
-  mahalanobisSq: readonly number[];
-  fraud: readonly number[];
-  weight: readonly number[];
-}
+export type LabelArrays = Pick<OperatingData["labels"], "mahalanobisSq" | "fraud" | "weight">;
 
 /** The figures at one cutoff. */
 export interface CutoffView {

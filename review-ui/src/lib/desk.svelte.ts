@@ -5,7 +5,7 @@
  */
 import * as api from "./api";
 import type { ListQuery } from "./api";
-import type { AccountDecision, DaySummary, Facets, ItemDetail, Outcome, QueueRow, SortDirection, SortKey, StateCounts } from "../../../worker/src/review/contract";
+import type { AccountDecision, DaySummary, Facets, ItemDetail, Outcome, QueueRow, SortDirection, SortKey, StateCounts } from "@contract";
 import { describeAccountDecision } from "./words";
 
 export type Filters = Pick<ListQuery, "state" | "segment" | "modelVersion" | "selection" | "from" | "to">;

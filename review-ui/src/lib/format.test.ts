@@ -29,7 +29,7 @@ describe("plain-words formatting", () => {
 
   it("words an unbounded end (null from an older model) as 'up to' or 'or more'", () => {
     const reason = (low: number | null, high: number | null) =>
-      describeReason({ feature: "shippingShare", actual: 0.41, expected: { center: 0.12, low, high } as never, standardizedResidual: 3.1 });
+      describeReason({ feature: "shippingShare", actual: 0.41, expected: { center: 0.12, low, high }, standardizedResidual: 3.1 });
     expect(reason(0.05, null)).toBe("shippingShare 0.41 — expected 0.05 or more given the other features");
     expect(reason(null, 0.3)).toBe("shippingShare 0.41 — expected up to 0.3 given the other features");
     expect(reason(null, null)).toBe("shippingShare 0.41 — expected any value given the other features");

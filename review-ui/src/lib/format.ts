@@ -2,7 +2,7 @@
  * Plain-words formatting for numbers, probabilities and times shown to analysts.
  * Everything returns text; nothing here builds markup.
  */
-import type { Reason } from "../../../shared-model/src/types";
+import type { WireReason } from "@contract";
 
 const grouped = new Intl.NumberFormat("en-US", { maximumFractionDigits: 0 });
 
@@ -98,7 +98,7 @@ export function formatAge(iso: string, now: number = Date.now()): string {
  * One reason in plain words: "amount 1,240 — expected 60–140 given the other features".
  * The range is the central 95 % of the feature given all the others, in raw units.
  */
-export function describeReason(reason: Reason): string {
+export function describeReason(reason: WireReason): string {
   const { low, high, outsideTraining } = reason.expected;
   const expected = outsideTraining
     ? `expected ${outsideTraining} anything seen in training`
@@ -130,9 +130,4 @@ function describeRange(low: number | null, high: number | null): string {
   if (!bounded(low)) return `up to ${formatValue(high as number)}`;
   if (!bounded(high)) return `${formatValue(low)} or more`;
   return low < 0 || high < 0 ? `${formatValue(low)} to ${formatValue(high)}` : `${formatValue(low)}–${formatValue(high)}`;
-}
-
-/** "higher" or "lower" than expected, for screen-reader friendly captions. */
-export function direction(reason: Reason): "higher" | "lower" {
-  return reason.actual >= reason.expected.center ? "higher" : "lower";
 }

@@ -4,7 +4,7 @@
  * promote or discard the shadow).
  */
 import type { OperatingTable } from "../../../shared-model/src/tuning";
-import type { HistogramData, ModelPageData, OperatingData, ShadowData } from "../../../worker/src/insights/contract";
+import type { HistogramData, ModelPageData, OperatingData, ShadowData } from "@contract";
 import { activateModel, ApiError, clearShadow, modelPage, operatingTable, publishCutoff, rollbackModel, scoreHistogram, shadowComparison } from "./api";
 import { buildTable, cutoffView, sliderMax, type CutoffView } from "./cutoff-figures";
 

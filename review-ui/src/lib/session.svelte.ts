@@ -3,7 +3,7 @@
  * the tab and is never written to disk by the app.
  */
 import { ApiError, useCredential, whenUnauthorized, whoAmI } from "./api";
-import type { WhoAmI } from "../../../worker/src/review/contract";
+import type { WhoAmI } from "@contract";
 
 const STORAGE_KEY = "isodense.review.credential";
 

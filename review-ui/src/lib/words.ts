@@ -5,7 +5,7 @@
  */
 import type { CutoffBasis } from "../../../shared-model/src/tuning";
 import type { CovarianceShape, EstimatorName, TransformKind } from "../../../shared-model/src/types";
-import type { AccountDecision, ClaimView, Outcome, RefusedItem, ReviewState, Selection } from "../../../worker/src/review/contract";
+import type { AccountDecision, ClaimView, Outcome, RefusedItem, ReviewState, Selection } from "@contract";
 
 /** The three states of a review item, as the API names them (`open`, `claimed`, `decided`). */
 export const STATE_WORDS: Record<ReviewState, string> = { open: "Open", claimed: "Claimed", decided: "Decided" };

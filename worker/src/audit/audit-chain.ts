@@ -17,6 +17,7 @@
  * every cron run) outside D1 too; a later head that does not extend it is the evidence.
  */
 import { sha256Hex } from "../../../shared-model/src";
+import type { BrokenLink, ChainReport } from "../contract/privacy";
 import type { Env } from "../env";
 
 /** The `chain` value the first event links to: 64 zeros. */
@@ -61,29 +62,6 @@ export function eventDigest(event: Pick<StoredEvent, "id" | "item_id" | "at" | "
  */
 export function chainLink(previousChain: string, digest: string): Promise<string> {
   return sha256Hex(`${previousChain}\n${digest}`);
-}
-
-/** Where the chain first breaks, and how. */
-export interface BrokenLink {
-  /** The first event that does not verify. */
-  eventId: number;
-  kind: "content-changed" | "link-broken" | "events-missing" | "unsealed-before-sealed" | "tombstone-without-digest";
-  /** Plain words for the operator. */
-  explanation: string;
-}
-
-/** What {@link verifyAuditTrail} found. */
-export interface ChainReport {
-  ok: boolean;
-  /** Events checked (all of them, tombstones included). */
-  events: number;
-  /** Of those, erased to tombstones by erasure or retention. */
-  tombstones: number;
-  /** Events written but not sealed yet when the walk ended (sealed on the next action or run). */
-  unsealed: number;
-  /** The last sealed event and its chain value: keep it outside D1 to compare later. */
-  head: { eventId: number; chain: string } | null;
-  firstBroken: BrokenLink | null;
 }
 
 /** Running state of a walk along the chain: the last event checked and its chain value. */

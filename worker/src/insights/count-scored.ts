@@ -15,7 +15,7 @@
  * and flag-rate checks use the counted scored and flagged together, so a loss biases neither.
  */
 import type { Env } from "../env";
-import type { ScoreAnswer } from "../routes/schemas";
+import type { ScoreAnswer } from "../contract/scoring";
 import type { LoadedModel } from "../scoring/model-cache";
 import { readSettings, type Settings } from "../settings";
 import { TrafficTally, type TallyModel } from "./tally";

@@ -6,7 +6,7 @@
 import { bonferroniConfidence, driftEntriesFor, flagRateCheck } from "../../../shared-model/src";
 import type { TallyModel } from "./tally";
 import type { BucketTotals, DayVolume } from "./traffic-queries";
-import type { DayFlagRate, DriftEntry } from "./contract";
+import type { DayFlagRate, DriftEntry } from "../contract";
 export type { DayFlagRate, DriftEntry };
 
 /**

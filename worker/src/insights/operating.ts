@@ -6,7 +6,7 @@
  */
 import { EstimateInputError, estimateRates, operatingPoints, pointAtCutoff, TuningInputError } from "../../../shared-model/src";
 import type { LabelledRows } from "./traffic-queries";
-import type { CutoffFigures } from "./contract";
+import type { CutoffFigures } from "../contract";
 export type { CutoffFigures };
 
 /**

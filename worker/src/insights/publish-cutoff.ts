@@ -9,7 +9,7 @@ import type { Env, Problem } from "../env";
 import { changePointer, loadModel, ModelLoadError } from "../scoring/model-cache";
 import { activatedPointer, readArtifactText, readPointer, storeArtifact } from "../storage/model-store";
 import { markModelEventFailed, recordModelEvent, type ModelEventAction } from "../storage/review-store";
-import type { PublishedCutoff } from "./contract";
+import type { PublishedCutoff } from "../contract";
 export type { PublishedCutoff };
 
 /** A validated publish request (see `publishCutoffSchema`). */

@@ -3,7 +3,7 @@
  * how often they agree, and how much their flags overlap — the evidence for promoting a shadow.
  */
 import type { Env } from "../env";
-import type { Disagreement, ShadowComparison } from "./contract";
+import type { Disagreement, ShadowComparison } from "../contract";
 export type { Disagreement, ShadowComparison };
 
 /**

@@ -7,7 +7,7 @@ import { onFullyDecidedDays } from "../../../shared-model/src";
 import type { Env } from "../env";
 import type { TallyModel } from "./tally";
 import { SCORE_ROW } from "./tally";
-import type { DayVolume, LabelCounts } from "./contract";
+import type { DayVolume, LabelCounts } from "../contract";
 export type { DayVolume, LabelCounts };
 
 /** Bucket counts summed over segments and days, aligned with the artifact's reference edges. */

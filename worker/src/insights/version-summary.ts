@@ -4,7 +4,7 @@
  */
 import type { ModelArtifact } from "../../../shared-model/src";
 import type { Env } from "../env";
-import type { VersionSummary } from "./contract";
+import type { VersionSummary } from "../contract";
 export type { VersionSummary };
 
 /**

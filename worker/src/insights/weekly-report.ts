@@ -12,7 +12,7 @@ import { readPointer } from "../storage/model-store";
 import { dayFlagRates, driftEntries, refitReasons } from "./drift-report";
 import { readSettings } from "../settings";
 import { bucketTotals, dailyVolumes, dayBefore, labelCounts, liveSince } from "./traffic-queries";
-import type { FailedReport, WeeklyReport } from "./contract";
+import type { FailedReport, WeeklyReport } from "../contract";
 import { shadowSetAt } from "./shadow-comparison";
 export type { FailedReport, WeeklyReport };
 

@@ -13,6 +13,7 @@
  * - Undecided items stay: they are work in the queue, not history.
  * - Account histories expire in their Durable Objects under the same setting (history/).
  */
+import type { RetentionRun } from "../contract/privacy";
 import type { Env } from "../env";
 import { readSettings, type Settings } from "../settings";
 import { deletionCounts, itemDeletionBatch, runSealedBatch } from "./item-deletion";
@@ -31,21 +32,6 @@ export const EXPORT_COMMIT_MARGIN_MS = 5 * 60_000;
 /** A run still `running` after this long was cut short (the cron's wall time is far below it). */
 const STALE_RUN_MS = 60 * 60_000;
 const DAY_MS = 86_400_000;
-
-/** The run as stored and answered. */
-export interface RetentionRun {
-  id: number;
-  startedAt: string;
-  finishedAt: string | null;
-  runBy: string;
-  retentionDays: number;
-  cutoffAt: string;
-  status: "running" | "done" | "more" | "failed" | "interrupted";
-  deleted: { items: number; notes: number; auditEvents: number; paymentConflicts: number; shadowScores: number };
-  keptUnexported: number;
-  /** Why anything was kept, or why the run failed; null when nothing was. */
-  detail: { reason: string; lastFinishedExportAt?: string | null } | { error: string } | null;
-}
 
 /**
  * SQL condition on a `review_status s` line: a finished label export (of every version, or of the

@@ -8,7 +8,7 @@
  */
 import type { Env } from "../env";
 import { claimItem, decideItem, type Actor, type ActionResult } from "./actions";
-import type { AccountDecision, AccountFlags, Outcome } from "./contract";
+import type { AccountDecision, AccountFlags, Outcome } from "../contract";
 import { STATUS_COLUMNS, toQueueRow, type StatusRow } from "./queue-store";
 import { ACCOUNT_FLAGS_LIMIT } from "./settings";
 

@@ -17,7 +17,7 @@
  */
 import { sealAuditTrail } from "../audit/audit-chain";
 import type { Env, Problem } from "../env";
-import type { ClaimView, Outcome } from "./contract";
+import type { ClaimView, Outcome } from "../contract";
 import { STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
 import { CLAIM_TTL_MS, DECISION_CHANGE_LIMIT, DECISION_CHANGE_WINDOW_MS, UNDO_WINDOW_MS } from "./settings";
 

@@ -3,7 +3,7 @@
  * last line of the page (its sort value and id); the next page starts strictly after that line.
  * Base64url of a small JSON document: opaque to clients, but nothing secret is in it.
  */
-import type { ReviewState, SortDirection, SortKey } from "./contract";
+import type { ReviewState, SortDirection, SortKey } from "../contract";
 
 export interface CursorPosition {
   sort: SortKey;

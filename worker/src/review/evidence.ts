@@ -8,10 +8,10 @@
  * or the estimator's own scaling as recorded in the artifact).
  */
 import { conditionalReasons, rawVectorFromRecord, selectSegment, transformInto } from "../../../shared-model/src";
-import type { Reason } from "../../../shared-model/src";
 import type { Env } from "../env";
 import { modelCache, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
-import type { PairEvidence } from "./contract";
+import type { PairEvidence, WireReason } from "../contract";
+import { toWireReasons } from "../scoring/wire-reasons";
 
 /**
  * The verified, compiled model of a version, from the isolate's model cache (shared with scoring
@@ -23,7 +23,8 @@ export function modelFor(env: Pick<Env, "MODELS">, version: string): Promise<Loa
 }
 
 export interface Evidence {
-  residuals: Reason[] | null;
+  /** In their wire form: an unbounded expected range is null, as in the stored reasons. */
+  residuals: WireReason[] | null;
   pair: PairEvidence | null;
   /** Plain-words reason when residuals or pair are missing. */
   gap: string | null;
@@ -63,7 +64,7 @@ export async function evidenceFor(env: Pick<Env, "MODELS">, version: string, seg
     .filter((i) => i >= 0 && compiled.features[i].columns.length === 1)
     .slice(0, 2);
   if (axes.length < 2) {
-    return { residuals, pair: null, gap: "The model has fewer than two single-column features, so there is no pair to plot." };
+    return { residuals: toWireReasons(residuals), pair: null, gap: "The model has fewer than two single-column features, so there is no pair to plot." };
   }
   const [a, b] = axes.map((i) => compiled.columns.indexOf(compiled.features[i].columns[0]));
   const n = compiled.n;
@@ -81,5 +82,5 @@ export async function evidenceFor(env: Pick<Env, "MODELS">, version: string, seg
     point: [x[a], x[b]],
     rawPoint: [raw.values[axes[0]], raw.values[axes[1]]],
   };
-  return { residuals, pair, gap: null };
+  return { residuals: toWireReasons(residuals), pair, gap: null };
 }

@@ -2,9 +2,8 @@
  * Reads for the payment view: the stored item with its queue line, the account's recent flags and
  * the audit trail, in one D1 batch.
  */
-import type { Reason } from "../../../shared-model/src";
 import type { Env } from "../env";
-import type { AuditAction, ConflictView, EventPage, HistoryRow, Outcome } from "./contract";
+import type { AuditAction, ConflictView, EventPage, HistoryRow, Outcome, WireReason } from "../contract";
 import { log10TailOf, STATUS_COLUMNS, stateOf, type StatusRow } from "./queue-store";
 import { EVENT_PAGE, HISTORY_LIMIT } from "./settings";
 
@@ -44,7 +43,7 @@ const CONFLICTS_SHOWN = 20;
 export interface StoredItem {
   status: StatusRow;
   features: Record<string, unknown>;
-  reasons: Reason[];
+  reasons: WireReason[];
   logDensity: number;
   cutoffMahalanobisSq: number;
   inclusionProbability: number;
@@ -83,7 +82,7 @@ export async function readItem(env: Pick<Env, "DB">, id: number, nowMs: number):
   return {
     status: row,
     features: parseObject(row.features_json),
-    reasons: parseArray(row.reasons_json) as Reason[],
+    reasons: parseArray(row.reasons_json) as WireReason[],
     logDensity: row.log_density,
     cutoffMahalanobisSq: row.cutoff_mahalanobis_sq,
     inclusionProbability: row.inclusion_probability,

@@ -4,7 +4,7 @@
  * the covering counts index only. Query functions take `env` first; SQL uses numbered parameters.
  */
 import type { Env } from "../env";
-import type { DaySummary, Facets, QueueRow, ReviewState, Selection, SortDirection, SortKey, StateCounts } from "./contract";
+import type { DaySummary, Facets, QueueRow, ReviewState, Selection, SortDirection, SortKey, StateCounts } from "../contract";
 import { encodeCursor, type CursorPosition } from "./cursor";
 import { utcDayStart } from "./settings";
 

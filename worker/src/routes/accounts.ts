@@ -11,8 +11,9 @@ import { accountHistoryEraser, eraseAccount, ERASURE_SETTINGS, type Eraser } fro
 import { reviewStoreEraser } from "../erasure/review-store-eraser";
 import { readSettings } from "../settings";
 import { allow, authenticate } from "../middleware/auth";
-import { describeValue, problemResponse } from "../problems";
-import { accountRefParamSchema } from "./schemas";
+import { problemResponse } from "../problems";
+import { accountRefParamSchema, type ErasureAnswer } from "../contract";
+import { parseValue } from "./validate";
 
 /** Account routes, mounted under `/v1`. */
 export const accountRoutes = new Hono<AppEnv>();
@@ -24,14 +25,11 @@ accountRoutes.delete("/accounts/:accountRef", authenticate(), allow("admin"), (c
 accountRoutes.delete("/accounts/:accountRef/history", authenticate(), allow("admin"), (c) => erase(c, [accountHistoryEraser]));
 
 async function erase(c: Context<AppEnv>, erasers: readonly Eraser[]): Promise<Response> {
-  const raw = c.req.param("accountRef");
-  const parsed = accountRefParamSchema.safeParse(raw);
-  if (!parsed.success) {
-    return problemResponse(c, 400, "invalid-request", [{ field: "accountRef", rule: `${parsed.error.issues[0].message}. Actual: ${describeValue(raw)}` }]);
-  }
+  const accountRef = parseValue(c, "accountRef", c.req.param("accountRef"), accountRefParamSchema);
+  if (accountRef instanceof Response) return accountRef;
   const settings = readSettings(c.env, ERASURE_SETTINGS);
-  const outcome = await eraseAccount(c.env, settings, c.get("principal").user, parsed.data, erasers);
-  if (outcome.ok) return c.json({ eventId: outcome.eventId, at: outcome.at, erased: outcome.erased, ...beyondReach(outcome.erased) });
+  const outcome = await eraseAccount(c.env, settings, c.get("principal").user, accountRef, erasers);
+  if (outcome.ok) return c.json({ eventId: outcome.eventId, at: outcome.at, erased: outcome.erased, ...beyondReach(outcome.erased) } satisfies ErasureAnswer);
   if (outcome.stage === "log") {
     console.error(JSON.stringify({ event: "erasure-log-unavailable", error: String(outcome.error) }));
     const rule = "the erasure could not be recorded in the review store, so nothing was erased; send the same request again";

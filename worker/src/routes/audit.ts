@@ -6,6 +6,7 @@
 import { Hono } from "hono";
 import type { AppEnv } from "../app-env";
 import { verifyAuditTrail } from "../audit/audit-chain";
+import type { ChainReport } from "../contract";
 import { allow, authenticate } from "../middleware/auth";
 
 /** Audit routes, mounted under `/v1`. */
@@ -14,5 +15,5 @@ export const auditRoutes = new Hono<AppEnv>();
 auditRoutes.get("/audit/verify", authenticate(), allow("admin"), async (c) => {
   const report = await verifyAuditTrail(c.env);
   if (!report.ok) console.error(JSON.stringify({ event: "audit-chain-broken", firstBroken: report.firstBroken }));
-  return c.json(report);
+  return c.json(report satisfies ChainReport);
 });

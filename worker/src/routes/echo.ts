@@ -8,8 +8,9 @@ import { Hono } from "hono";
 import type { AppEnv } from "../app-env";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
+import type { EchoBody } from "../contract";
 
 /** Echo route, mounted under `/v1`. */
 export const echoRoutes = new Hono<AppEnv>();
 
-echoRoutes.post("/echo", authenticate(), allow("flow"), jsonBody(BODY_LIMITS.score), (c) => c.json(c.get("body") as object));
+echoRoutes.post("/echo", authenticate(), allow("flow"), jsonBody(BODY_LIMITS.score), (c) => c.json(c.get("body") as EchoBody));

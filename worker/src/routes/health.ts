@@ -9,6 +9,7 @@ import type { AppEnv } from "../app-env";
 import { counters } from "../scoring/counters";
 import { modelCache } from "../scoring/model-cache";
 import { readSettings } from "../settings";
+import type { Health } from "../contract";
 
 /** Health route, mounted under `/v1`. */
 export const healthRoutes = new Hono<AppEnv>();
@@ -17,8 +18,8 @@ healthRoutes.get("/health", async (c) => {
   const { MODEL_REFRESH_SECONDS } = readSettings(c.env, ["MODEL_REFRESH_SECONDS"]);
   const snapshot = await modelCache.snapshot(c.env, MODEL_REFRESH_SECONDS * 1000);
   const status = modelCache.status();
-  const body = {
-    status: snapshot ? ("ready" as const) : ("no-model" as const),
+  const body: Health = {
+    status: snapshot ? "ready" : "no-model",
     model: snapshot
       ? {
           version: snapshot.live.version,

@@ -15,31 +15,33 @@
 import { Hono, type Context } from "hono";
 import { canonicalJson } from "../../../shared-model/src";
 import type { AppEnv } from "../app-env";
-import type { HistogramData, ModelEventRow, ModelPageData, OperatingData, ShadowData, StoredReport } from "../insights/contract";
+import {
+  modelQuerySchema,
+  operatingQuerySchema,
+  publishCutoffSchema,
+  shadowQuerySchema,
+  windowQuerySchema,
+  type HistogramData,
+  type ModelEventRow,
+  type ModelPageData,
+  type ModelPointer,
+  type OperatingData,
+  type PublishedCutoff,
+  type ShadowData,
+  type StoredReport,
+} from "../contract";
 import { publishCutoff } from "../insights/publish-cutoff";
 import { figuresAtCutoff } from "../insights/operating";
 import { dayFlagRates, driftEntries } from "../insights/drift-report";
-import {
-  MODEL_QUERY_KEYS,
-  modelQuerySchema,
-  OPERATING_QUERY_KEYS,
-  operatingQuerySchema,
-  PUBLISH_CUTOFF_KEYS,
-  publishCutoffSchema,
-  SHADOW_QUERY_KEYS,
-  shadowQuerySchema,
-  WINDOW_QUERY_KEYS,
-  windowQuerySchema,
-} from "../insights/schemas";
 import { shadowComparison, shadowDisagreements, shadowSetAt } from "../insights/shadow-comparison";
 import { bucketTotals, dailyVolumes, dayBefore, labelledRows } from "../insights/traffic-queries";
 import { versionSummary } from "../insights/version-summary";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
-import { problemResponse, problemsFromZod } from "../problems";
-import { parseQuery } from "./query";
+import { problemResponse } from "../problems";
+import { parseBody, parseQuery } from "./validate";
 import { modelCache, ModelLoadError, type LoadedModel } from "../scoring/model-cache";
-import { readArtifactText, readPointer, type ModelPointer } from "../storage/model-store";
+import { readArtifactText, readPointer } from "../storage/model-store";
 import { renewReportsForPage } from "../storage/renew-store";
 
 type InsightsContext = Context<AppEnv>;
@@ -53,7 +55,7 @@ export const insightRoutes = new Hono<AppEnv>();
 insightRoutes.use("*", authenticate(), allow("analyst"));
 
 insightRoutes.get("/model", async (c) => {
-  const query = parseQuery(c, modelQuerySchema, MODEL_QUERY_KEYS);
+  const query = parseQuery(c, modelQuerySchema);
   if (query instanceof Response) return query;
   const days = query.days ?? DEFAULT_DAYS;
   const pointer = await readPointer(c.env);
@@ -89,7 +91,7 @@ insightRoutes.get("/model", async (c) => {
 });
 
 insightRoutes.get("/operating", async (c) => {
-  const query = parseQuery(c, operatingQuerySchema, OPERATING_QUERY_KEYS);
+  const query = parseQuery(c, operatingQuerySchema);
   if (query instanceof Response) return query;
   const resolved = await versionOrLive(c, query.version);
   if (resolved instanceof Response) return resolved;
@@ -115,7 +117,7 @@ insightRoutes.get("/operating", async (c) => {
 });
 
 insightRoutes.get("/shadow", async (c) => {
-  const query = parseQuery(c, shadowQuerySchema, SHADOW_QUERY_KEYS);
+  const query = parseQuery(c, shadowQuerySchema);
   if (query instanceof Response) return query;
   const pointer = await readPointer(c.env);
   if (pointer === null) return noActiveModel(c);
@@ -126,7 +128,7 @@ insightRoutes.get("/shadow", async (c) => {
 });
 
 insightRoutes.get("/histogram", async (c) => {
-  const query = parseQuery(c, windowQuerySchema, WINDOW_QUERY_KEYS);
+  const query = parseQuery(c, windowQuerySchema);
   if (query instanceof Response) return query;
   const resolved = await versionOrLive(c, query.version);
   if (resolved instanceof Response) return resolved;
@@ -148,11 +150,10 @@ insightRoutes.get("/histogram", async (c) => {
 });
 
 insightRoutes.post("/publish-cutoff", allow("admin"), jsonBody(BODY_LIMITS.small), async (c) => {
-  const body = c.get("body");
-  const parsed = publishCutoffSchema.safeParse(body);
-  if (!parsed.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(parsed.error, body, "", PUBLISH_CUTOFF_KEYS));
-  const outcome = await publishCutoff(c.env, c.get("principal").user, parsed.data);
-  if (outcome.ok) return c.json(outcome.value, 201);
+  const body = parseBody(c, publishCutoffSchema);
+  if (body instanceof Response) return body;
+  const outcome = await publishCutoff(c.env, c.get("principal").user, body);
+  if (outcome.ok) return c.json(outcome.value satisfies PublishedCutoff, 201);
   return problemResponse(c, outcome.status, outcome.error, outcome.problems, outcome.retryable ? { retryable: true } : {});
 });
 

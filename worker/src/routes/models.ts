@@ -10,12 +10,23 @@ import { renewReportSchema } from "../../../shared-model/src/renew-report";
 import type { AppEnv } from "../app-env";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
-import { problemResponse, problemsFromZod } from "../problems";
+import { problemResponse } from "../problems";
 import { changePointer, loadModel, ModelLoadError } from "../scoring/model-cache";
-import { activatedPointer, listVersions, readArtifactText, readPointer, storeArtifact, type ModelPointer, type VersionPage } from "../storage/model-store";
+import { activatedPointer, listVersions, readArtifactText, readPointer, storeArtifact, type VersionPage } from "../storage/model-store";
 import { fileRenewReport } from "../storage/renew-store";
 import { markModelEventFailed, recordModelEvent, type ModelEventAction } from "../storage/review-store";
-import { shadowRequestSchema, versionParamSchema } from "./schemas";
+import {
+  shadowRequestSchema,
+  versionParamSchema,
+  type ModelList,
+  type ModelPointer,
+  type ModelSummary,
+  type PointerChange,
+  type RenewFiling,
+  type StoredModel,
+  type UploadAnswer,
+} from "../contract";
+import { parseBody, parseValue } from "./validate";
 
 /** Model routes, mounted under `/v1`. Admin only. */
 export const modelRoutes = new Hono<AppEnv>();
@@ -49,7 +60,7 @@ modelRoutes.post("/models", jsonBody(BODY_LIMITS.artifact), async (c) => {
   const existingText = await readArtifactText(c.env, artifact.version);
   if (existingText !== null) {
     const existingChecksum = checksumOf(existingText);
-    if (existingChecksum === artifact.checksum) return c.json({ version: artifact.version, stored: false, identical: true }, 200);
+    if (existingChecksum === artifact.checksum) return c.json({ version: artifact.version, stored: false, identical: true } satisfies UploadAnswer, 200);
     return problemResponse(c, 409, "version-exists", [
       {
         field: "version",
@@ -60,7 +71,7 @@ modelRoutes.post("/models", jsonBody(BODY_LIMITS.artifact), async (c) => {
   const principal = c.get("principal");
   return changeWithEvent(c, { action: "upload", fromVersion: null, toVersion: artifact.version, detail: artifact.checksum }, async () => {
     await storeArtifact(c.env, artifact.version, JSON.stringify(body), { createdAt: artifact.createdAt, checksum: artifact.checksum });
-    return c.json({ version: artifact.version, stored: true, identical: false, uploadedBy: principal.user }, 201);
+    return c.json({ version: artifact.version, stored: true, identical: false, uploadedBy: principal.user } satisfies UploadAnswer, 201);
   });
 });
 
@@ -84,7 +95,7 @@ modelRoutes.get("/models", async (c) => {
       return text === null ? null : summarize(version, text, pointer);
     }),
   );
-  return c.json({ pointer, models: models.filter((m) => m !== null), cursor: page.cursor });
+  return c.json({ pointer, models: models.filter((m) => m !== null), cursor: page.cursor } satisfies ModelList);
 });
 
 modelRoutes.post("/models/rollback", async (c) => {
@@ -104,15 +115,14 @@ modelRoutes.post("/models/rollback", async (c) => {
   };
   return changeWithEvent(c, { action: "rollback", fromVersion: pointer.version, toVersion: target }, async () => {
     await changePointer(c.env, next);
-    return c.json({ pointer: next, changed: true });
+    return c.json({ pointer: next, changed: true } satisfies PointerChange);
   });
 });
 
 modelRoutes.put("/models/shadow", jsonBody(BODY_LIMITS.small), async (c) => {
-  const body = c.get("body");
-  const parsed = shadowRequestSchema.safeParse(body);
-  if (!parsed.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(parsed.error, body, "", ["version"]));
-  const wanted = parsed.data.version;
+  const body = parseBody(c, shadowRequestSchema);
+  if (body instanceof Response) return body;
+  const wanted = body.version;
   const pointer = await readPointer(c.env);
   if (pointer === null) {
     return problemResponse(c, 409, "no-active-model", [{ field: "version", rule: "a shadow scores beside the live model; activate a model first" }]);
@@ -126,12 +136,12 @@ modelRoutes.put("/models/shadow", jsonBody(BODY_LIMITS.small), async (c) => {
     const unusable = await verifyStored(c, wanted, "version");
     if (unusable) return unusable;
   }
-  if (pointer.shadow === wanted) return c.json({ pointer, changed: false });
+  if (pointer.shadow === wanted) return c.json({ pointer, changed: false } satisfies PointerChange);
   const next: ModelPointer = { ...pointer, shadow: wanted, updatedAt: new Date().toISOString(), updatedBy: c.get("principal").user };
   const action: ModelEventAction = wanted === null ? "shadow-clear" : "shadow-set";
   return changeWithEvent(c, { action, fromVersion: pointer.shadow, toVersion: wanted }, async () => {
     await changePointer(c.env, next);
-    return c.json({ pointer: next, changed: true });
+    return c.json({ pointer: next, changed: true } satisfies PointerChange);
   });
 });
 
@@ -142,7 +152,8 @@ modelRoutes.get("/models/:version", async (c) => {
   const text = await readArtifactText(c.env, version);
   if (text === null) return notStored(c, version, "version");
   const pointer = await readPointer(c.env);
-  return c.json({ version, active: pointer?.version === version, shadow: pointer?.shadow === version, artifact: JSON.parse(text) as unknown });
+  const answer = { version, active: pointer?.version === version, shadow: pointer?.shadow === version, artifact: JSON.parse(text) as StoredModel["artifact"] };
+  return c.json(answer satisfies StoredModel);
 });
 
 modelRoutes.post("/models/:version/activate", async (c) => {
@@ -152,11 +163,11 @@ modelRoutes.post("/models/:version/activate", async (c) => {
   const unusable = await verifyStored(c, version, "version");
   if (unusable) return unusable;
   const pointer = await readPointer(c.env);
-  if (pointer?.version === version) return c.json({ pointer, changed: false });
+  if (pointer?.version === version) return c.json({ pointer, changed: false } satisfies PointerChange);
   const next = activatedPointer(pointer, version, c.get("principal").user);
   return changeWithEvent(c, { action: "activate", fromVersion: pointer?.version ?? null, toVersion: version }, async () => {
     await changePointer(c.env, next);
-    return c.json({ pointer: next, changed: true });
+    return c.json({ pointer: next, changed: true } satisfies PointerChange);
   });
 });
 
@@ -164,10 +175,8 @@ modelRoutes.post("/models/:version/renew-report", jsonBody(BODY_LIMITS.renewRepo
   const version = c.req.param("version");
   const badParam = checkVersionParam(c, version, "version");
   if (badParam) return badParam;
-  const body = c.get("body");
-  const parsed = renewReportSchema.safeParse(body);
-  if (!parsed.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(parsed.error, body, "", Object.keys(renewReportSchema.shape)));
-  const report = parsed.data;
+  const report = parseBody(c, renewReportSchema);
+  if (report instanceof Response) return report;
   if (report.candidateVersion !== version) {
     return problemResponse(c, 422, "report-mismatch", [
       { field: "candidateVersion", rule: `must be the version in the path (${version}). Actual: ${JSON.stringify(report.candidateVersion)}` },
@@ -181,7 +190,7 @@ modelRoutes.post("/models/:version/renew-report", jsonBody(BODY_LIMITS.renewRepo
   const unusable = await verifyStored(c, version, "version");
   if (unusable) return unusable;
   const filed = await fileRenewReport(c.env, c.get("principal").user, report);
-  return c.json({ version, outcome: report.outcome, filed }, filed ? 201 : 200);
+  return c.json({ version, outcome: report.outcome, filed } satisfies RenewFiling, filed ? 201 : 200);
 });
 
 /**
@@ -235,9 +244,8 @@ function notStored(c: Context<AppEnv>, version: string, field: string): Response
 }
 
 function checkVersionParam(c: Context<AppEnv>, version: string, field: string): Response | null {
-  const parsed = versionParamSchema.safeParse(version);
-  if (parsed.success) return null;
-  return problemResponse(c, 400, "invalid-request", [{ field, rule: `${parsed.error.issues[0].message}. Actual: ${JSON.stringify(version.slice(0, 80))}` }]);
+  const parsed = parseValue(c, field, version, versionParamSchema);
+  return parsed instanceof Response ? parsed : null;
 }
 
 function checksumOf(text: string): string | null {
@@ -250,7 +258,7 @@ function checksumOf(text: string): string | null {
 }
 
 /** Summary of a stored artifact for the list (read as stored, not re-verified). */
-function summarize(version: string, text: string, pointer: ModelPointer | null) {
+function summarize(version: string, text: string, pointer: ModelPointer | null): ModelSummary {
   let artifact: Partial<ModelArtifact>;
   try {
     artifact = JSON.parse(text) as Partial<ModelArtifact>;
@@ -267,8 +275,8 @@ function summarize(version: string, text: string, pointer: ModelPointer | null) 
     segmentBy: artifact.segmentBy ?? null,
     segments: Object.keys(artifact.segments ?? {}),
     cutoff: {
-      mahalanobisSq: artifact.cutoff?.mahalanobisSq ?? Number.NaN,
-      tailProbability: artifact.cutoff?.tailProbability ?? Number.NaN,
+      mahalanobisSq: artifact.cutoff?.mahalanobisSq ?? null,
+      tailProbability: artifact.cutoff?.tailProbability ?? null,
       basis: artifact.cutoff?.basis ?? "",
       flagRate: artifact.cutoff?.flagRate ?? null,
     },

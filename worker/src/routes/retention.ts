@@ -8,6 +8,7 @@ import type { AppEnv } from "../app-env";
 import { allow, authenticate } from "../middleware/auth";
 import { problemResponse } from "../problems";
 import { recentRetentionRuns, runRetention } from "../retention/retention";
+import type { RetentionRun, RetentionRuns } from "../contract";
 
 /** Retention routes, mounted under `/v1`. */
 export const retentionRoutes = new Hono<AppEnv>();
@@ -21,7 +22,7 @@ retentionRoutes.post("/retention/run", authenticate(), allow("admin"), async (c)
     const rule = `the retention run failed and was recorded as failed; what it deleted before is counted, nothing else changed: ${"error" in (run.detail ?? {}) ? (run.detail as { error: string }).error : "see the run"}`;
     return problemResponse(c, 503, "retention-failed", [{ field: "retention", rule }], { retryable: true, headers: { "retry-after": "5" } });
   }
-  return c.json(run);
+  return c.json(run satisfies RetentionRun);
 });
 
-retentionRoutes.get("/retention/runs", authenticate(), allow("admin"), async (c) => c.json({ runs: await recentRetentionRuns(c.env, RUNS_LISTED) }));
+retentionRoutes.get("/retention/runs", authenticate(), allow("admin"), async (c) => c.json({ runs: await recentRetentionRuns(c.env, RUNS_LISTED) } satisfies RetentionRuns));

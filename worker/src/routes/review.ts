@@ -24,31 +24,38 @@ import { Hono, type Context } from "hono";
 import type { AppEnv } from "../app-env";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
-import { problemResponse, problemsFromZod } from "../problems";
-import { parseQuery } from "./query";
+import { problemResponse } from "../problems";
+import { parseBody, parseQuery, parseValue } from "./validate";
 import { decideAccountItems, readAccountFlags } from "../review/account-decision";
 import { claimItem, decideItem, releaseItem, undoDecision, type Actor, type ActionResult as StoreResult } from "../review/actions";
-import type { AccountDecision, ActionResult, ItemDetail, QueuePage, SortDirection, SortKey, WhoAmI } from "../review/contract";
+import {
+  accountDecisionBodySchema,
+  countsQuerySchema,
+  decisionBodySchema,
+  eventsQuerySchema,
+  exportQuerySchema,
+  itemIdParamSchema,
+  listQuerySchema,
+  timeRange,
+  type AccountDecision,
+  type AccountFlags,
+  type ActionResult,
+  type DaySummary,
+  type ErrorBody,
+  type EventPage,
+  type Facets,
+  type ItemDetail,
+  type QueuePage,
+  type SortDirection,
+  type SortKey,
+  type StateCounts,
+  type WhoAmI,
+} from "../contract";
 import { decodeCursor } from "../review/cursor";
 import { evidenceFor } from "../review/evidence";
 import { ExportColumnClash, exportFeatureColumns, exportStream, recordExportFinish, recordExportStart } from "../review/export";
 import { readEvents, readItem } from "../review/item-store";
 import { countStates, daySummary, listFacets, listPage, toQueueRow, type StatusRow } from "../review/queue-store";
-import {
-  ACCOUNT_DECISION_BODY_KEYS,
-  accountDecisionBodySchema,
-  COUNTS_QUERY_KEYS,
-  countsQuerySchema,
-  DECISION_BODY_KEYS,
-  decisionBodySchema,
-  EVENTS_QUERY_KEYS,
-  eventsQuerySchema,
-  EXPORT_QUERY_KEYS,
-  exportQuerySchema,
-  LIST_QUERY_KEYS,
-  listQuerySchema,
-  timeRange,
-} from "../review/schemas";
 import { CLAIM_TTL_MS, UNDO_WINDOW_MS } from "../review/settings";
 import { readSettings } from "../settings";
 
@@ -69,7 +76,7 @@ reviewRoutes.get("/me", (c) => {
 });
 
 reviewRoutes.get("/items", async (c) => {
-  const query = parseQuery(c, listQuerySchema, LIST_QUERY_KEYS);
+  const query = parseQuery(c, listQuerySchema);
   if (query instanceof Response) return query;
   const direction = query.direction ?? NATURAL_DIRECTION[query.sort];
   let after = null;
@@ -100,18 +107,19 @@ reviewRoutes.get("/items", async (c) => {
 });
 
 reviewRoutes.get("/counts", async (c) => {
-  const query = parseQuery(c, countsQuerySchema, COUNTS_QUERY_KEYS);
+  const query = parseQuery(c, countsQuerySchema);
   if (query instanceof Response) return query;
   const range = checkedRange(c, query.from, query.to);
   if (range instanceof Response) return range;
-  return c.json(await countStates(c.env, { segment: query.segment, modelVersion: query.modelVersion, selection: query.selection, ...range }, Date.now()));
+  const counts: StateCounts = await countStates(c.env, { segment: query.segment, modelVersion: query.modelVersion, selection: query.selection, ...range }, Date.now());
+  return c.json(counts);
 });
 
-reviewRoutes.get("/facets", async (c) => c.json(await listFacets(c.env)));
+reviewRoutes.get("/facets", async (c) => c.json((await listFacets(c.env)) satisfies Facets));
 
 reviewRoutes.get("/summary", async (c) => {
   const { ANALYST_DAILY_CAPACITY: capacity } = readSettings(c.env, ["ANALYST_DAILY_CAPACITY"]);
-  return c.json(await daySummary(c.env, c.get("principal").user, Date.now(), capacity));
+  return c.json((await daySummary(c.env, c.get("principal").user, Date.now(), capacity)) satisfies DaySummary);
 });
 
 reviewRoutes.get("/items/:id", async (c) => {
@@ -149,11 +157,11 @@ reviewRoutes.get("/items/:id", async (c) => {
 reviewRoutes.get("/items/:id/events", async (c) => {
   const id = itemId(c);
   if (id instanceof Response) return id;
-  const query = parseQuery(c, eventsQuerySchema, EVENTS_QUERY_KEYS);
+  const query = parseQuery(c, eventsQuerySchema);
   if (query instanceof Response) return query;
   const page = await readEvents(c.env, id, query.before ?? null, query.limit);
   if (!page) return problemResponse(c, 404, "not-found", [{ field: "id", rule: `no review item has id ${id}` }]);
-  return c.json(page);
+  return c.json(page satisfies EventPage);
 });
 
 reviewRoutes.post("/items/:id/claim", (c) => act(c, (env, id, actor) => claimItem(env, id, actor)));
@@ -161,11 +169,10 @@ reviewRoutes.post("/items/:id/release", (c) => act(c, (env, id, actor) => releas
 reviewRoutes.post("/items/:id/undo", (c) => act(c, (env, id, actor) => undoDecision(env, id, actor)));
 
 reviewRoutes.post("/items/:id/decision", jsonBody(BODY_LIMITS.score), async (c) => {
-  const raw = c.get("body");
-  const parsed = decisionBodySchema.safeParse(raw);
-  if (!parsed.success) return problemResponse(c, 400, "invalid-body", problemsFromZod(parsed.error, raw, "", DECISION_BODY_KEYS));
-  const note = parsed.data.note === undefined || parsed.data.note.trim() === "" ? null : parsed.data.note;
-  return act(c, (env, id, actor) => decideItem(env, id, actor, parsed.data.outcome, note));
+  const body = parseBody(c, decisionBodySchema, "invalid-body");
+  if (body instanceof Response) return body;
+  const note = body.note === undefined || body.note.trim() === "" ? null : body.note;
+  return act(c, (env, id, actor) => decideItem(env, id, actor, body.outcome, note));
 });
 
 reviewRoutes.get("/items/:id/account-flags", async (c) => {
@@ -173,17 +180,16 @@ reviewRoutes.get("/items/:id/account-flags", async (c) => {
   if (id instanceof Response) return id;
   const flags = await readAccountFlags(c.env, id, Date.now());
   if (!flags) return problemResponse(c, 404, "not-found", [{ field: "id", rule: `no review item has id ${id}` }]);
-  return c.json(flags);
+  return c.json(flags satisfies AccountFlags);
 });
 
 reviewRoutes.post("/items/:id/account-decision", jsonBody(BODY_LIMITS.score), async (c) => {
   const id = itemId(c);
   if (id instanceof Response) return id;
-  const raw = c.get("body");
-  const parsed = accountDecisionBodySchema.safeParse(raw);
-  if (!parsed.success) return problemResponse(c, 400, "invalid-body", problemsFromZod(parsed.error, raw, "", ACCOUNT_DECISION_BODY_KEYS));
-  const { ids, outcome } = parsed.data;
-  const note = parsed.data.note === undefined || parsed.data.note.trim() === "" ? null : parsed.data.note;
+  const body = parseBody(c, accountDecisionBodySchema, "invalid-body");
+  if (body instanceof Response) return body;
+  const { ids, outcome } = body;
+  const note = body.note === undefined || body.note.trim() === "" ? null : body.note;
   const { user, role } = c.get("principal");
   let result: Awaited<ReturnType<typeof decideAccountItems>>;
   try {
@@ -204,7 +210,7 @@ reviewRoutes.post("/items/:id/account-decision", jsonBody(BODY_LIMITS.score), as
 });
 
 reviewRoutes.get("/export", async (c) => {
-  const query = parseQuery(c, exportQuerySchema, EXPORT_QUERY_KEYS);
+  const query = parseQuery(c, exportQuerySchema);
   if (query instanceof Response) return query;
   let columns: string[];
   try {
@@ -256,7 +262,7 @@ async function act(c: ReviewContext, run: (env: AppEnv["Bindings"], id: number, 
     );
   }
   if (!result.ok) {
-    const body: Record<string, unknown> = { error: result.error, problems: result.problems };
+    const body: ErrorBody = { error: result.error, problems: result.problems };
     if (result.claim) body.claim = result.claim;
     if (result.retryAfterSeconds !== undefined) c.header("retry-after", String(result.retryAfterSeconds));
     return c.json(body, result.status);
@@ -271,14 +277,7 @@ function undoableUntil(row: StatusRow, user: string, nowMs: number): string | nu
 
 /** The `:id` path parameter as a positive safe integer, or the 400 answer. */
 function itemId(c: ReviewContext): number | Response {
-  const text = c.req.param("id") ?? "";
-  const id = /^[1-9]\d{0,15}$/.test(text) ? Number(text) : NaN;
-  if (!Number.isSafeInteger(id)) {
-    return problemResponse(c, 400, "invalid-path", [
-      { field: "id", rule: `must be a positive whole number (an item id from GET /v1/review/items). Actual: ${JSON.stringify(text.slice(0, 40))}` },
-    ]);
-  }
-  return id;
+  return parseValue(c, "id", c.req.param("id") ?? "", itemIdParamSchema, "invalid-path");
 }
 
 /** `from` and `to` as a half-open ms range, refusing a range that ends before it starts. */

@@ -8,11 +8,12 @@ import type { AppEnv } from "../app-env";
 import { batchAccounts } from "../history/payment-form";
 import { allow, authenticate } from "../middleware/auth";
 import { BODY_LIMITS, jsonBody } from "../middleware/json-body";
-import { problemResponse, problemsFromZod } from "../problems";
+import { problemResponse } from "../problems";
 import { modelCache } from "../scoring/model-cache";
 import { SCORING_SETTINGS, scoreMany, type ScoringCall } from "../scoring/score-many";
 import { readSettings } from "../settings";
-import { batchRequestSchema } from "./schemas";
+import { batchRequestSchema, type BatchAnswer } from "../contract/scoring";
+import { parseBody } from "./validate";
 
 /** Scoring routes, mounted under `/v1`. */
 export const scoreRoutes = new Hono<AppEnv>();
@@ -29,10 +30,9 @@ scoreRoutes.post("/score", authenticate(), allow("flow"), jsonBody(BODY_LIMITS.s
 scoreRoutes.post("/score/batch", authenticate(), allow("flow"), jsonBody(BODY_LIMITS.batch), async (c) => {
   const call = await scoringCall(c);
   if (call instanceof Response) return call;
-  const body = c.get("body");
-  const envelope = batchRequestSchema.safeParse(body);
-  if (!envelope.success) return problemResponse(c, 400, "invalid-request", problemsFromZod(envelope.error, body, "", ["payments"]));
-  const payments = envelope.data.payments;
+  const envelope = parseBody(c, batchRequestSchema);
+  if (envelope instanceof Response) return envelope;
+  const payments = envelope.payments;
   if (payments.length < 1 || payments.length > call.settings.MAX_BATCH) {
     return problemResponse(c, 400, "invalid-request", [{ field: "payments", rule: `must hold 1 to ${call.settings.MAX_BATCH} payments (MAX_BATCH). Actual: ${payments.length}` }]);
   }
@@ -54,7 +54,7 @@ scoreRoutes.post("/score/batch", authenticate(), allow("flow"), jsonBody(BODY_LI
     if (entry.result.decision === "review") counts.review++;
     if (entry.result.auditSample) counts.auditSample++;
   }
-  return c.json({ modelVersion: call.snapshot.live.version, results, counts });
+  return c.json({ modelVersion: call.snapshot.live.version, results, counts } satisfies BatchAnswer);
 });
 
 /** The settings and models a scoring request needs, or the 503 answered when no model is loaded. */

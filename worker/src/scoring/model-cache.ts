@@ -14,7 +14,8 @@
 import { compileModel, parseArtifact, recordSpecFromArtifact, Scorer, ArtifactError } from "../../../shared-model/src";
 import type { CompiledModel, ModelArtifact, RecordSpec } from "../../../shared-model/src";
 import type { Env } from "../env";
-import { PointerFormatError, readArtifactText, readPointer, writePointer, type ModelPointer } from "../storage/model-store";
+import type { ModelPointer } from "../contract/wire";
+import { PointerFormatError, readArtifactText, readPointer, writePointer } from "../storage/model-store";
 
 /** A verified, compiled model ready to score. */
 export interface LoadedModel {

@@ -14,7 +14,7 @@
  */
 import type { Env, Problem } from "../env";
 import { countScored } from "../insights/count-scored";
-import type { ScoreAnswer } from "../routes/schemas";
+import type { BatchItem, ScoreAnswer } from "../contract/scoring";
 import type { Settings } from "../settings";
 import type { ConflictMessage, ReviewMessage, ShadowMessage } from "../storage/messages";
 import { claimTransactions, contentHash, rememberAnswers, type Claim } from "../idempotency/claims";
@@ -38,19 +38,8 @@ export const SCORING_SETTINGS = [
   "HISTORY_TIMEOUT_MS",
 ] as const;
 
-/** How one payment ended: its answer, or the refusal it would have had alone. */
-export type Outcome =
-  | { index: number; outcome: "scored"; result: ScoreAnswer }
-  | {
-      index: number;
-      outcome: "refused";
-      /** The status this payment would have had alone. */
-      status: 400 | 409 | 503;
-      error: string;
-      problems: Problem[];
-      /** On 503: the same request may be sent again. */
-      retryable?: boolean;
-    };
+/** How one payment ended: its answer, or the refusal it would have had alone (declared in the API contract). */
+export type Outcome = BatchItem;
 
 /** What the idempotency store keeps for an answered id: the answer and its review item, if any. */
 interface StoredOutcome {

@@ -6,7 +6,7 @@
 import { rawVectorFromRecord, ScoreInputError, type ScoreResult } from "../../../shared-model/src";
 import type { Problem } from "../env";
 import { fieldPath, problemsFromZod } from "../problems";
-import { SCORE_REQUEST_KEYS, scoreRequestSchema, type ScoreAnswer } from "../routes/schemas";
+import { scoreRequestSchema, type ScoreAnswer } from "../contract/scoring";
 import type { ReviewMessage, ShadowMessage } from "../storage/messages";
 import { isAudited } from "./audit-sample";
 import { counters } from "./counters";
@@ -46,7 +46,7 @@ export const REASONS_PER_ANSWER = 3;
  */
 export function validatePayment(input: unknown, model: LoadedModel, prefix: string, clock: PaymentClock): Checked<ValidPayment | PendingPayment> {
   const parsed = scoreRequestSchema.safeParse(input);
-  const problems: Problem[] = parsed.success ? [] : problemsFromZod(parsed.error, input, prefix, SCORE_REQUEST_KEYS);
+  const problems: Problem[] = parsed.success ? [] : problemsFromZod(parsed.error, input, prefix, scoreRequestSchema);
   const sent = (key: string) => isRecord(input) && Object.hasOwn(input, key);
   if (sent("features") && sent("payment")) {
     problems.push({ field: fieldPath(prefix, ["payment"]), rule: "cannot be sent together with features: send ready features or a payment record, not both" });

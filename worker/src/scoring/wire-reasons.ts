@@ -6,14 +6,7 @@
  * silently or letting a schema refuse the whole review item.
  */
 import type { Reason } from "../../../shared-model/src";
-
-/** A reason with every non-finite number replaced by null. */
-export interface WireReason {
-  feature: string;
-  actual: number;
-  expected: { center: number | null; low: number | null; high: number | null; outsideTraining?: "below" | "above" };
-  standardizedResidual: number | null;
-}
+import type { WireReason } from "../contract/scoring";
 
 /**
  * Maps the core's reasons to their wire form.

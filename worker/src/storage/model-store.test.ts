@@ -1,5 +1,6 @@
 import { describe, expect, test } from "vitest";
-import { activatedPointer, MAX_PREVIOUS_VERSIONS, type ModelPointer } from "./model-store";
+import { MAX_PREVIOUS_VERSIONS, type ModelPointer } from "../contract/wire";
+import { activatedPointer } from "./model-store";
 
 const at = new Date("2026-12-04T10:00:00.000Z");
 const pointer = (version: string, shadow: string | null, previous: string[]): ModelPointer => ({

@@ -7,37 +7,18 @@
  * KV has no compare-and-set: two admins changing the pointer at the same instant both succeed and
  * the last write wins. Admin changes are rare and each one is logged in `model_events`.
  */
-import { z } from "zod";
+import { MAX_PREVIOUS_VERSIONS, modelPointerSchema, type ModelPointer } from "../contract/wire";
 import type { Env } from "../env";
 
 /** KV key of the active-model pointer. */
 export const POINTER_KEY = "pointer:active";
 /** Prefix of the artifact keys. */
 export const MODEL_KEY_PREFIX = "model:";
-/** Versions a rollback can go back through. */
-export const MAX_PREVIOUS_VERSIONS = 20;
 
 /** KV key of one artifact. */
 export function modelKey(version: string): string {
   return `${MODEL_KEY_PREFIX}${version}`;
 }
-
-/** Schema of the pointer document. */
-export const modelPointerSchema = z.strictObject({
-  /** Version scoring live. */
-  version: z.string().min(1),
-  /** Version scoring in shadow (results recorded, never returned), or null. */
-  shadow: z.string().min(1).nullable(),
-  /** Versions that were live before, newest first; rollback pops the first. */
-  previous: z.array(z.string().min(1)).max(MAX_PREVIOUS_VERSIONS),
-  /** ISO-8601 time of the last change. */
-  updatedAt: z.string(),
-  /** User who made the last change. */
-  updatedBy: z.string(),
-});
-
-/** The active-model pointer. */
-export type ModelPointer = z.infer<typeof modelPointerSchema>;
 
 /** The pointer in KV is not a pointer document (written by hand, or by another tool). */
 export class PointerFormatError extends Error {

@@ -4,7 +4,7 @@
  */
 import type { RenewReport } from "../../../shared-model/src/renew-report";
 import type { Env } from "../env";
-import type { StoredRenewReport } from "../insights/contract";
+import type { StoredRenewReport } from "../contract";
 
 /**
  * Files a report; an identical candidate's report with the same outcome is kept as first filed.

@@ -18,7 +18,7 @@ import { generateLedger } from "../../../demo-ledger/generate";
 import { runDemoLoop } from "../../../scripts/demo-loop-core";
 import type { RenewReport } from "../../../shared-model/src/renew-report";
 import { seedDemoQueue } from "../../../test/e2e/demo-queue";
-import type { ModelPageData, ShadowData } from "../../src/insights/contract";
+import type { ModelPageData, ShadowData } from "../../src/contract";
 import { startWorker, type RunningWorker } from "../harness";
 
 const ROWS = 6000;

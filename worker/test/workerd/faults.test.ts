@@ -20,7 +20,7 @@ import { mkdtemp, rm } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
-import type { ActionResult, AuditEvent, ItemDetail } from "../../src/review/contract";
+import type { ActionResult, AuditEvent, ItemDetail } from "../../src/contract";
 import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT } from "../fixtures";
 import { fitRecordModel, shopLedger } from "../record-fixtures";
 import { countRows, eventually, makeTokens, publishModel, startWorker, type D1Like, type RunningWorker } from "../harness";

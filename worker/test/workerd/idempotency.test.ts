@@ -9,8 +9,8 @@ import { mkdtemp, rm } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
-import type { ItemDetail } from "../../src/review/contract";
-import type { ScoreAnswer } from "../../src/routes/schemas";
+import type { ItemDetail } from "../../src/contract";
+import type { ScoreAnswer } from "../../src/contract";
 import { fitShopModel, UNUSUAL_PAYMENT, shopPayments } from "../fixtures";
 import { countRows, eventually, makeTokens, publishModel, startWorker, type RunningWorker } from "../harness";
 

@@ -1,6 +1,6 @@
 import { describe, expect, it } from "vitest";
-import { countsQuerySchema, decisionBodySchema, isCalendarDay, listQuerySchema, timeRange } from "./schemas";
-import { utcDayStart } from "./settings";
+import { countsQuerySchema, decisionBodySchema, isCalendarDay, listQuerySchema, timeRange } from "./review";
+import { utcDayStart } from "../review/settings";
 
 describe("review inputs", () => {
   it("turns a day range into a half-open range that includes the whole last day", () => {
