@@ -38,18 +38,15 @@ export function needsFittedParameters(decls: readonly FeatureDeclaration[]): boo
  * @param sample raw rows, row-major, `k` values each
  */
 export function columnDeciles(sample: Float64Array, rows: number, k: number, features: FittedFeature[], n: number): DecileReference[] {
-  const transformed = new Float64Array(rows * n);
+  // Column-major, written as each row is transformed: one contiguous run per column to select in.
+  const byColumn = new Float64Array(rows * n);
   const x = new Float64Array(n);
   for (let r = 0; r < rows; r++) {
     transformInto(features, sample.subarray(r * k, r * k + k), x);
-    transformed.set(x, r * n);
+    for (let c = 0; c < n; c++) byColumn[c * rows + r] = x[c];
   }
   const references: DecileReference[] = [];
-  const column = new Float64Array(rows);
-  for (let c = 0; c < n; c++) {
-    for (let r = 0; r < rows; r++) column[r] = transformed[r * n + c];
-    references.push(decileReference(column));
-  }
+  for (let c = 0; c < n; c++) references.push(decileReference(byColumn.subarray(c * rows, (c + 1) * rows)));
   return references;
 }
 

@@ -15,6 +15,7 @@
 import type { CovarianceEstimate } from "./estimators";
 import { regularizedGammaP, chiSquareQuantile } from "./distributions";
 import { cholesky, logDetFromCholesky } from "./linalg";
+import { selectRank } from "./order-statistics";
 import { createRandom, type RandomSource } from "./random";
 
 /** Options of {@link fastMcd}; every field is optional. */
@@ -935,7 +936,7 @@ function invertLower(lower: Float64Array, n: number, out: Float64Array): void {
  */
 function selectSmallest(values: Float64Array, count: number, h: number, out: Int32Array, scratch: Float64Array): void {
   for (let i = 0; i < count; i++) scratch[i] = values[i];
-  const threshold = kthSmallest(scratch, count, h - 1);
+  const threshold = selectRank(scratch, h - 1, count);
   let below = 0;
   for (let i = 0; i < count; i++) if (values[i] < threshold) below++;
   let tiesLeft = h - below;
@@ -949,39 +950,4 @@ function selectSmallest(values: Float64Array, count: number, h: number, out: Int
       tiesLeft--;
     }
   }
-}
-
-/** k-th smallest (0-based) of a[0..count) by quickselect with a median-of-three pivot; reorders a. */
-function kthSmallest(a: Float64Array, count: number, k: number): number {
-  let lo = 0;
-  let hi = count - 1;
-  while (hi > lo) {
-    const mid = (lo + hi) >>> 1;
-    // Median of three into a[mid]; guards against sorted input.
-    if (a[mid] < a[lo]) swap(a, mid, lo);
-    if (a[hi] < a[lo]) swap(a, hi, lo);
-    if (a[hi] < a[mid]) swap(a, hi, mid);
-    const pivot = a[mid];
-    let i = lo;
-    let j = hi;
-    while (i <= j) {
-      while (a[i] < pivot) i++;
-      while (a[j] > pivot) j--;
-      if (i <= j) {
-        swap(a, i, j);
-        i++;
-        j--;
-      }
-    }
-    if (k <= j) hi = j;
-    else if (k >= i) lo = i;
-    else return a[k];
-  }
-  return a[k];
-}
-
-function swap(a: Float64Array, i: number, j: number): void {
-  const t = a[i];
-  a[i] = a[j];
-  a[j] = t;
 }

@@ -3,6 +3,7 @@
  * keeps of the rows it does not hold (Yeo–Johnson λ, drift edges, the cutoff quantile).
  */
 import type { RandomSource } from "./random";
+import { selectRanks } from "./order-statistics";
 
 /**
  * A uniform random sample of at most `capacity` rows of `width` values from a stream of unknown
@@ -81,12 +82,20 @@ export class Reservoir {
  * @example quantiles(Float64Array.of(1, 2, 3, 4), [0.5]) // [2.5]
  */
 export function quantiles(values: Float64Array, ps: readonly number[]): number[] {
-  const sorted = Float64Array.from(values).sort();
-  const m = sorted.length;
-  return ps.map((p) => {
+  const m = values.length;
+  const positions = ps.map((p) => {
     const h = (m - 1) * p;
     const lo = Math.floor(h);
-    const hi = Math.min(lo + 1, m - 1);
-    return sorted[lo] + (h - lo) * (sorted[hi] - sorted[lo]);
+    return { h, lo, hi: Math.min(lo + 1, m - 1) };
   });
+  // Only the ranks read below need their sorted values: select them rather than sort (same values
+  // bit for bit; a sort still handles NaN, which selection cannot order).
+  const ordered = values.slice();
+  if (ordered.some(Number.isNaN)) ordered.sort();
+  else
+    selectRanks(
+      ordered,
+      [...new Set(positions.flatMap(({ lo, hi }) => [lo, hi]))].sort((a, b) => a - b),
+    );
+  return positions.map(({ h, lo, hi }) => ordered[lo] + (h - lo) * (ordered[hi] - ordered[lo]));
 }
