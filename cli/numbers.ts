@@ -39,27 +39,8 @@ export function whyNotANumber(text: string): string | null {
   return `'${text}' is not a number`;
 }
 
-/**
- * Formats a number for people: whole numbers as they are, others with `significant` significant
- * digits and without trailing zeros; very large or small magnitudes in exponent form.
- * @example formatForPeople(1240) // "1240"
- * @example formatForPeople(0.0123456) // "0.01235"
- */
-export function formatForPeople(value: number, significant = 4): string {
-  if (!Number.isFinite(value)) return String(value);
-  if (Number.isInteger(value) && Math.abs(value) < 1e15) return String(value);
-  const magnitude = Math.abs(value);
-  if (magnitude !== 0 && (magnitude < 1e-4 || magnitude >= 1e15)) return value.toExponential(significant - 1);
-  return String(Number(value.toPrecision(significant)));
-}
-
 /** Counts with thousands separators, as the model core writes them (`12,000`). */
 export { formatCount } from "../shared-model/src/format-count";
 
-/**
- * Formats a fraction as a percentage with two decimals (`0.0123` → `1.23 %`).
- * @example formatPercent(0.01) // "1.00 %"
- */
-export function formatPercent(fraction: number): string {
-  return Number.isFinite(fraction) ? `${(fraction * 100).toFixed(2)} %` : "n/a";
-}
+/** Numbers and percentages for people, as the model core writes them. */
+export { formatForPeople, formatPercent } from "../shared-model/src/format-number";

@@ -422,11 +422,11 @@ async function sameCutoffRate(live: ModelArtifact, source: RowSource): Promise<{
     throw new UsageError(
       "--cutoff-rate",
       "required",
-      `the live cutoff (basis ${live.cutoff.basis}, d² > ${num(live.cutoff.mahalanobisSq)}) flags ${formatCount(flagged)} of the ${formatCount(rows)} training rows, ` +
+      `the live cutoff (basis ${live.cutoff.basis}, d² > ${formatForPeople(live.cutoff.mahalanobisSq)}) flags ${formatCount(flagged)} of the ${formatCount(rows)} training rows, ` +
         "so there is no share to match; give --cutoff-rate",
     );
   }
-  return { rate, why: `the share of them the live cutoff d² > ${num(live.cutoff.mahalanobisSq)} flags` };
+  return { rate, why: `the share of them the live cutoff d² > ${formatForPeople(live.cutoff.mahalanobisSq)} flags` };
 }
 
 function required(value: string | undefined, option: string, what: string): string {
@@ -486,12 +486,12 @@ export function compareOnLabels(
   const weighting = labels.weightColumn === null ? "unweighted" : `weighted by '${labels.weightColumn}'`;
   const rows: string[][] = [
     ["", `live ${live.version}`, `candidate ${candidate.version}`],
-    ["PR-AUC (average precision)", num(liveTable.averagePrecision), num(candidateTable.averagePrecision)],
-    ["own cutoff d² >", num(live.cutoff.mahalanobisSq), num(candidate.cutoff.mahalanobisSq)],
+    ["PR-AUC (average precision)", formatForPeople(liveTable.averagePrecision), formatForPeople(candidateTable.averagePrecision)],
+    ["own cutoff d² >", formatForPeople(live.cutoff.mahalanobisSq), formatForPeople(candidate.cutoff.mahalanobisSq)],
     ["flag rate at own cutoff", formatPercent(liveOwn.flagRate), formatPercent(candidateOwn.flagRate)],
     ["precision at own cutoff", precisionText(liveOwn), precisionText(candidateOwn)],
-    ["recall at own cutoff", num(liveOwn.recall), num(candidateOwn.recall)],
-    [`recall at the live flag rate (≤ ${formatPercent(rate)})`, num(liveAtRate.recall), num(candidateAtRate.recall)],
+    ["recall at own cutoff", formatForPeople(liveOwn.recall), formatForPeople(candidateOwn.recall)],
+    [`recall at the live flag rate (≤ ${formatPercent(rate)})`, formatForPeople(liveAtRate.recall), formatForPeople(candidateAtRate.recall)],
   ];
   const widths = [0, 1, 2].map((c) => Math.max(...rows.map((r) => r[c].length)));
   return {
@@ -562,9 +562,5 @@ async function compareOnLedger(
 }
 
 function precisionText(p: OperatingPoint): string {
-  return p.precision === null ? "n/a" : num(p.precision);
-}
-
-function num(value: number): string {
-  return formatForPeople(value, 4);
+  return p.precision === null ? "n/a" : formatForPeople(p.precision);
 }

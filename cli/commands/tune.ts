@@ -128,8 +128,8 @@ export async function tuneCommand(argv: string[], io: CommandIO = processIO()): 
 
     writeLines(io.stdout, [
       ...labelLines(labels, artifact),
-      `PR-AUC (average precision, step-wise): ${num(table.averagePrecision)}   (trapezoidal rule: ${num(table.trapezoidArea)})`,
-      `live cutoff d² > ${num(artifact.cutoff.mahalanobisSq)}: ${pointSummary(live)}`,
+      `PR-AUC (average precision, step-wise): ${formatForPeople(table.averagePrecision)}   (trapezoidal rule: ${formatForPeople(table.trapezoidArea)})`,
+      `live cutoff d² > ${formatForPeople(artifact.cutoff.mahalanobisSq)}: ${pointSummary(live)}`,
       "",
       ...pointTable(table, tuned, objective, dailyPayments, artifact.columns.length),
       "",
@@ -275,8 +275,8 @@ function labelLines(labels: LabelSet, artifact: ModelArtifact): string[] {
 }
 
 function pointSummary(p: OperatingPoint): string {
-  const precision = p.precision === null ? "n/a" : num(p.precision);
-  return `precision ${precision}, recall ${num(p.recall)}, F1 ${num(p.f1)}, flag rate ${formatPercent(p.flagRate)}`;
+  const precision = p.precision === null ? "n/a" : formatForPeople(p.precision);
+  return `precision ${precision}, recall ${formatForPeople(p.recall)}, F1 ${formatForPeople(p.f1)}, flag rate ${formatPercent(p.flagRate)}`;
 }
 
 /**
@@ -303,18 +303,18 @@ function pointTable(table: OperatingTable, tuned: TunedCutoff, objective: Tuning
     const chosen = p.mahalanobisSq === tuned.point.mahalanobisSq;
     const cells = [
       chosen ? "→" : "",
-      num(p.mahalanobisSq),
-      num(chiSquareSurvival(p.mahalanobisSq, n)),
+      formatForPeople(p.mahalanobisSq),
+      formatForPeople(chiSquareSurvival(p.mahalanobisSq, n)),
       formatCount(p.flaggedRows),
-      p.precision === null ? "n/a" : num(p.precision),
-      num(p.recall),
-      num(p.f1),
+      p.precision === null ? "n/a" : formatForPeople(p.precision),
+      formatForPeople(p.recall),
+      formatForPeople(p.f1),
       formatPercent(p.flagRate),
     ];
     if (perDay !== undefined) cells.push(formatForPeople(p.flagRate * perDay, 3));
     if (objective.kind === "cost") {
       const c = expectedCost(p, { ...objective, paymentsPerDay: perDay }, table.totalWeight);
-      cells.push(num(c.perDay ?? c.perPayment));
+      cells.push(formatForPeople(c.perDay ?? c.perPayment));
     }
     return cells;
   });
@@ -324,13 +324,13 @@ function pointTable(table: OperatingTable, tuned: TunedCutoff, objective: Tuning
 function chosenLine(tuned: TunedCutoff, artifact: ModelArtifact, dailyPayments: number | undefined): string {
   const n = artifact.columns.length;
   let text =
-    `chosen (${describeObjective(tuned)}): flag when d² > ${num(tuned.cutoff.mahalanobisSq)} ` +
-    `(tail probability P(χ²${n} > d²) < ${num(tuned.cutoff.tailProbability)}); ${pointSummary(tuned.point)}`;
+    `chosen (${describeObjective(tuned)}): flag when d² > ${formatForPeople(tuned.cutoff.mahalanobisSq)} ` +
+    `(tail probability P(χ²${n} > d²) < ${formatForPeople(tuned.cutoff.tailProbability)}); ${pointSummary(tuned.point)}`;
   const daily = tuned.expectedDailyFlags ?? (dailyPayments === undefined ? null : tuned.point.flagRate * dailyPayments);
   if (daily !== null) text += `; about ${formatForPeople(daily, 3)} flags per day`;
   if (tuned.expectedCost !== null) {
-    text += `; expected cost ${num(tuned.expectedCost.perPayment)} per payment`;
-    if (tuned.expectedCost.perDay !== null) text += ` (${num(tuned.expectedCost.perDay)} per day)`;
+    text += `; expected cost ${formatForPeople(tuned.expectedCost.perPayment)} per payment`;
+    if (tuned.expectedCost.perDay !== null) text += ` (${formatForPeople(tuned.expectedCost.perDay)} per day)`;
   }
   return text;
 }
@@ -368,14 +368,10 @@ function estimateLines(e: RateEstimates): string[] {
 
 function shareText(estimate: Estimate, asPercent: boolean): string {
   if (estimate.value === null) return "n/a";
-  const show = (x: number): string => (asPercent ? formatPercent(x) : num(x));
+  const show = (x: number): string => (asPercent ? formatPercent(x) : formatForPeople(x));
   if (estimate.exact) return `${show(estimate.value)}  (exact: every flag decided)`;
   if (estimate.low === null || estimate.high === null) return `${show(estimate.value)}  (no interval: no audit sample)`;
   return `${show(estimate.value)}  (${show(estimate.low)} – ${show(estimate.high)})`;
-}
-
-function num(value: number): string {
-  return formatForPeople(value, 4);
 }
 
 /** Pads every column to its widest cell; the first column (marker) is left as is. */

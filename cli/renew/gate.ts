@@ -75,8 +75,8 @@ function prAucCheck({ live, candidate }: GateInputs, t: GateThresholds): GateChe
   return {
     name: "pr-auc",
     passed: drop <= t.maxPrAucDrop + 1e-12,
-    rule: `PR-AUC on the labels at most ${num(t.maxPrAucDrop)} below live's`,
-    found: `candidate ${num(candidate.prAuc)}, live ${num(live.prAuc)} (${drop > 0 ? `${num(drop)} lower` : drop < 0 ? `${num(-drop)} higher` : "equal"})`,
+    rule: `PR-AUC on the labels at most ${formatForPeople(t.maxPrAucDrop)} below live's`,
+    found: `candidate ${formatForPeople(candidate.prAuc)}, live ${formatForPeople(live.prAuc)} (${drop > 0 ? `${formatForPeople(drop)} lower` : drop < 0 ? `${formatForPeople(-drop)} higher` : "equal"})`,
   };
 }
 
@@ -85,14 +85,14 @@ function recallCheck({ live, candidate }: GateInputs, t: GateThresholds): GateCh
   return {
     name: "recall",
     passed: drop <= t.maxRecallDrop + 1e-12,
-    rule: t.maxRecallDrop === 0 ? "recall at the live flag rate not lower than live's" : `recall at the live flag rate at most ${num(t.maxRecallDrop)} below live's`,
-    found: `candidate ${num(candidate.recallAtLiveRate)}, live ${num(live.recallAtLiveRate)}`,
+    rule: t.maxRecallDrop === 0 ? "recall at the live flag rate not lower than live's" : `recall at the live flag rate at most ${formatForPeople(t.maxRecallDrop)} below live's`,
+    found: `candidate ${formatForPeople(candidate.recallAtLiveRate)}, live ${formatForPeople(live.recallAtLiveRate)}`,
   };
 }
 
 function flagRateCheck({ latestWeek }: GateInputs, t: GateThresholds): GateCheck {
   const [low, high] = t.flagRateBand;
-  const rule = `flag rate on the latest week between ${num(low)}× and ${num(high)}× the rate the cutoff was set for`;
+  const rule = `flag rate on the latest week between ${formatForPeople(low)}× and ${formatForPeople(high)}× the rate the cutoff was set for`;
   const { candidateFlagRate: rate, designedRate, payments } = latestWeek;
   if (rate === null || payments === 0) return { name: "flag-rate", passed: false, rule, found: "the ledger holds no payment in the latest week" };
   if (designedRate === null)
@@ -102,10 +102,6 @@ function flagRateCheck({ latestWeek }: GateInputs, t: GateThresholds): GateCheck
     name: "flag-rate",
     passed: ratio >= low && ratio <= high,
     rule,
-    found: `${formatPercent(rate)} of ${payments} payments, ${num(ratio)}× the designed ${formatPercent(designedRate)}`,
+    found: `${formatPercent(rate)} of ${payments} payments, ${formatForPeople(ratio)}× the designed ${formatPercent(designedRate)}`,
   };
-}
-
-function num(value: number): string {
-  return formatForPeople(value, 4);
 }

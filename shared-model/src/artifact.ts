@@ -10,6 +10,7 @@ import { InputError } from "./input-error";
 import { z } from "zod";
 import { chiSquareSurvival } from "./distributions";
 import { formatFieldPath, joinFieldPath } from "./field-path";
+import { formatForPeople } from "./format-number";
 import { logDensityAt } from "./log-density";
 import { columnsOf } from "./features";
 import { cholesky, inverseFromCholesky, logDetFromCholesky, symmetrize, toRows } from "./linalg";
@@ -210,9 +211,9 @@ export class NotPositiveDefiniteError extends Error {
   /** The pivot Σ_kk − Σ_j L_kj²: the variance of the column left unexplained by earlier columns. */
   readonly pivot: number;
   constructor(column: number, columnName: string, pivot: number, variance: number) {
-    const share = pivot > 0 && variance > 0 ? ` (${formatNumber(pivot / variance)} of its variance ${formatNumber(variance)})` : "";
+    const share = pivot > 0 && variance > 0 ? ` (${formatForPeople(pivot / variance, 6)} of its variance ${formatForPeople(variance, 6)})` : "";
     super(
-      `covariance is not positive definite: the Cholesky pivot of ${columnName} is ${formatNumber(pivot)}${share}, ` +
+      `covariance is not positive definite: the Cholesky pivot of ${columnName} is ${formatForPeople(pivot, 6)}${share}, ` +
         `so the column has zero variance or is (numerically) a linear combination of earlier columns`,
     );
     this.name = "NotPositiveDefiniteError";
@@ -385,7 +386,7 @@ export function buildSegment(mean: Float64Array, covariance: Float64Array, n: nu
   if (asym.relative > SYMMETRY_TOLERANCE) {
     throw new RangeError(
       `covariance must be symmetric: covariance[${asym.i}][${asym.j}] differs from [${asym.j}][${asym.i}] by ` +
-        `${formatNumber(asym.relative)} relative (limit ${SYMMETRY_TOLERANCE})`,
+        `${formatForPeople(asym.relative, 6)} relative (limit ${SYMMETRY_TOLERANCE})`,
     );
   }
   const sym = symmetrize(covariance, n);
@@ -403,7 +404,7 @@ export function buildSegment(mean: Float64Array, covariance: Float64Array, n: nu
   if (!(dev.worst <= INVERSE_TOLERANCE)) {
     throw new RangeError(
       `covariance is numerically singular: precision·covariance deviates from the identity by ` +
-        `${formatNumber(dev.worst)} at [${dev.i}][${dev.j}] (limit ${INVERSE_TOLERANCE}, scaled to unit variances); ` +
+        `${formatForPeople(dev.worst, 6)} at [${dev.i}][${dev.j}] (limit ${INVERSE_TOLERANCE}, scaled to unit variances); ` +
         `drop one of ${name(dev.i)} and ${name(dev.j)} or use the shrinkage estimator`,
     );
   }
@@ -695,7 +696,7 @@ function checkSegment(a: ModelArtifact, key: string, n: number, add: (path: stri
       symmetric = false;
       add(
         `${base}.${which}[${asym.i}][${asym.j}]`,
-        `must equal ${which}[${asym.j}][${asym.i}] (symmetric): relative asymmetry ${formatNumber(asym.relative)} > ${SYMMETRY_TOLERANCE}`,
+        `must equal ${which}[${asym.j}][${asym.i}] (symmetric): relative asymmetry ${formatForPeople(asym.relative, 6)} > ${SYMMETRY_TOLERANCE}`,
       );
     }
     if (a.covarianceShape === "diagonal") {
@@ -727,14 +728,14 @@ function checkSegment(a: ModelArtifact, key: string, n: number, add: (path: stri
     if (!(dev.worst <= INVERSE_TOLERANCE)) {
       add(
         `${base}.precision`,
-        `precision·covariance must equal the identity: deviation ${formatNumber(dev.worst)} at [${dev.i}][${dev.j}] ` + `> ${INVERSE_TOLERANCE} (scaled to unit variances)`,
+        `precision·covariance must equal the identity: deviation ${formatForPeople(dev.worst, 6)} at [${dev.i}][${dev.j}] ` + `> ${INVERSE_TOLERANCE} (scaled to unit variances)`,
       );
     }
   }
 }
 
 function notPdRule(chol: CholeskyResult, colName: (k: number) => string): string {
-  return `must be positive definite: the Cholesky pivot of ${colName(chol.failedAt)} (index ${chol.failedAt}) ` + `is ${formatNumber(chol.failedPivot)}, not > 0`;
+  return `must be positive definite: the Cholesky pivot of ${colName(chol.failedAt)} (index ${chol.failedAt}) ` + `is ${formatForPeople(chol.failedPivot, 6)}, not > 0`;
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -806,12 +807,6 @@ function firstDecrease(values: readonly number[]): number {
 
 function sameStrings(a: readonly string[], b: readonly string[]): boolean {
   return a.length === b.length && a.every((v, i) => v === b[i]);
-}
-
-function formatNumber(x: number): string {
-  if (!Number.isFinite(x)) return String(x);
-  if (x !== 0 && (Math.abs(x) < 1e-3 || Math.abs(x) >= 1e6)) return x.toExponential(2);
-  return String(Number(x.toPrecision(6)));
 }
 
 function describe(value: unknown): string {

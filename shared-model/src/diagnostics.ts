@@ -12,6 +12,7 @@ import type { CovarianceShape, Diagnostic } from "./types";
 import { EstimationInputError, type MomentAccumulator } from "./moments";
 import { FULL_COVARIANCE_ROWS_PER_COLUMN } from "./estimators";
 import { countOf, formatCount } from "./format-count";
+import { formatForPeople } from "./format-number";
 import { symmetrize } from "./linalg";
 
 /**
@@ -126,7 +127,7 @@ export function diagnoseColumns(acc: MomentAccumulator, columns: readonly string
     out.push({
       code: "constant-column",
       severity: "error",
-      message: `column ${name} is constant (${formatNumber(mean)} in all ${formatCount(m)} rows): its variance is zero, so it carries no evidence and the covariance cannot be inverted`,
+      message: `column ${name} is constant (${formatForPeople(mean)} in all ${formatCount(m)} rows): its variance is zero, so it carries no evidence and the covariance cannot be inverted`,
       columns: [name],
       remedy: `drop the feature that produces ${name} from the feature list`,
     });
@@ -264,7 +265,7 @@ export function diagnoseCovariance(covariance: Float64Array, n: number, columns:
       severity: shape === "full" ? "error" : "warning",
       message:
         `${dep.subject} is a linear function of ${listNames(dep.columns.slice(1))} in the training rows: ${dep.equation}` +
-        (dep.residualShare < 1e-12 ? " (exactly, up to round-off)" : ` (to within ${formatNumber(dep.residualShare)} of ${dep.subject}'s standard deviation)`) +
+        (dep.residualShare < 1e-12 ? " (exactly, up to round-off)" : ` (to within ${formatForPeople(dep.residualShare)} of ${dep.subject}'s standard deviation)`) +
         (shape === "full" ? "; a full covariance with such a column cannot be inverted" : "; the diagonal model counts this evidence more than once"),
       columns: dep.columns,
       equation: dep.equation,
@@ -310,11 +311,11 @@ export function diagnoseCovariance(covariance: Float64Array, n: number, columns:
 
 function conditionDiagnostic(condition: number, lambdaMax: number, lambdaMin: number, correlationCondition: number): Diagnostic {
   const warn = !(condition <= CONDITION_NUMBER_WARNING);
-  const unitFree = Number.isNaN(correlationCondition) ? "" : `; ${formatNumber(correlationCondition)} once every column is scaled to unit variance`;
+  const unitFree = Number.isNaN(correlationCondition) ? "" : `; ${formatForPeople(correlationCondition)} once every column is scaled to unit variance`;
   const message =
     condition === Number.POSITIVE_INFINITY
-      ? `condition number ∞: the smallest eigenvalue of the covariance (${formatNumber(lambdaMin)}) is zero within round-off of the largest (${formatNumber(lambdaMax)})${unitFree}`
-      : `condition number ${formatNumber(condition)} (largest / smallest eigenvalue of the covariance: ${formatNumber(lambdaMax)} / ${formatNumber(lambdaMin)})${unitFree}`;
+      ? `condition number ∞: the smallest eigenvalue of the covariance (${formatForPeople(lambdaMin)}) is zero within round-off of the largest (${formatForPeople(lambdaMax)})${unitFree}`
+      : `condition number ${formatForPeople(condition)} (largest / smallest eigenvalue of the covariance: ${formatForPeople(lambdaMax)} / ${formatForPeople(lambdaMin)})${unitFree}`;
   const diagnostic: Diagnostic = { code: "condition-number", severity: warn ? "warning" : "info", message };
   if (warn) {
     diagnostic.remedy =
@@ -493,15 +494,4 @@ function checkColumns(columns: readonly string[], n: number): void {
 function listNames(names: readonly string[], conjunction = "and"): string {
   if (names.length <= 1) return names.join("");
   return `${names.slice(0, -1).join(", ")} ${conjunction} ${names[names.length - 1]}`;
-}
-
-/** Short human form of a number for messages: 4 significant digits, exponent outside [1e-3, 1e6). */
-function formatNumber(x: number): string {
-  if (Number.isNaN(x)) return "NaN";
-  if (x === Number.POSITIVE_INFINITY) return "∞";
-  if (x === Number.NEGATIVE_INFINITY) return "−∞";
-  if (x === 0) return "0";
-  const abs = Math.abs(x);
-  const text = abs >= 1e-3 && abs < 1e6 ? String(Number(abs.toPrecision(4))) : abs.toExponential(2);
-  return x < 0 ? `−${text}` : text;
 }

@@ -11,6 +11,7 @@ import type { ModelSlot, ModelSlots } from "./fit-slots";
 import { fromRows } from "./linalg";
 import { ExactFitError, robustEstimate } from "./mcd";
 import type { CovarianceShape, Diagnostic, EstimatorName } from "./types";
+import { formatForPeople } from "./format-number";
 
 /** What estimation needs to know. */
 export interface EstimationInput {
@@ -142,7 +143,7 @@ function exactFitDiagnostic(error: ExactFitError, slot: ModelSlot, columns: read
   const others = terms.slice(1).map((t) => ({ k: -t.c / lead.c, name: t.name }));
   const constant = error.offset / lead.c;
   let right = others.map((t, i) => `${t.k < 0 ? (i === 0 ? "−" : "− ") : i === 0 ? "" : "+ "}${Math.abs(t.k).toFixed(2)}·${t.name}`).join(" ");
-  if (right === "") right = String(Number(constant.toPrecision(4)));
+  if (right === "") right = formatForPeople(constant);
   else if (Math.abs(constant) >= 0.005) right += ` ${constant < 0 ? "−" : "+"} ${Math.abs(constant).toFixed(2)}`;
   const equation = `${lead.name} = ${right}`;
   const where = slot.key === "*" ? "" : ` of segment '${slot.key}'`;

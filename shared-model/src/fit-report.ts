@@ -2,6 +2,7 @@
 import type { SealedFit } from "./fit-artifact";
 import type { FitOptions, FitReport } from "./fit-types";
 import { formatCount as count } from "./format-count";
+import { formatForPeople as num, formatPercent as pct } from "./format-number";
 import type { ModelSlot, ModelSlots } from "./fit-slots";
 import type { CovarianceShape, Diagnostic, EstimatorName } from "./types";
 
@@ -121,15 +122,4 @@ function estimatorBrief(slot: ModelSlot): string {
   if (details?.estimator === "shrinkage") return `δ = ${num(details.shrinkage)}`;
   if (details?.estimator === "robust") return `h = ${count(details.h)}, ${count(details.reweightedRows)} rows kept`;
   return "classical";
-}
-
-function num(value: number): string {
-  if (!Number.isFinite(value)) return String(value);
-  const magnitude = Math.abs(value);
-  if (magnitude !== 0 && (magnitude < 1e-3 || magnitude >= 1e6)) return value.toExponential(3);
-  return String(Number(value.toPrecision(4)));
-}
-
-function pct(fraction: number): string {
-  return `${(fraction * 100).toFixed(2)} %`;
 }

@@ -12,6 +12,7 @@ export * from "./artifact";
 export * from "./quadratic-form";
 export * from "./field-path";
 export * from "./format-count";
+export * from "./format-number";
 export * from "./log-density";
 export * from "./score";
 export * from "./reasons";

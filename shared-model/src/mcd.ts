@@ -17,6 +17,7 @@ import { regularizedGammaP, chiSquareQuantile } from "./distributions";
 import { cholesky, logDetFromCholesky } from "./linalg";
 import { selectRank } from "./order-statistics";
 import { createRandom, type RandomSource } from "./random";
+import { formatForPeople } from "./format-number";
 
 /** Options of {@link fastMcd}; every field is optional. */
 export interface McdOptions {
@@ -756,7 +757,7 @@ function formatHyperplane(normal: Float64Array, offset: number): string {
     const sign = c < 0 ? "−" : "+";
     terms.push(terms.length === 0 ? `${c < 0 ? "−" : ""}${magnitude}·x[${j}]` : `${sign} ${magnitude}·x[${j}]`);
   }
-  return `${terms.join(" ")} = ${Number(offset.toPrecision(6))} (x[j] = column j)`;
+  return `${terms.join(" ")} = ${formatForPeople(offset, 6)} (x[j] = column j)`;
 }
 
 // ───────────────────────────── kernels ─────────────────────────────

@@ -4,7 +4,10 @@
  */
 import type { WireReason } from "@contract";
 
-const grouped = new Intl.NumberFormat("en-US", { maximumFractionDigits: 0 });
+import { formatCount } from "../../../shared-model/src/format-count";
+import { formatForPeople } from "../../../shared-model/src/format-number";
+
+export { formatCount };
 
 /**
  * A raw feature value with sensible precision: whole numbers from 100 up, three significant
@@ -15,7 +18,7 @@ export function formatValue(value: number | null | undefined): string {
   if (value === null || value === undefined || !Number.isFinite(value)) return "—";
   const magnitude = Math.abs(value);
   if (magnitude === 0) return "0";
-  const text = magnitude >= 100 ? grouped.format(value) : new Intl.NumberFormat("en-US", { maximumSignificantDigits: 3 }).format(value);
+  const text = magnitude >= 100 ? formatCount(Math.round(value)) : formatForPeople(value, 3);
   // A true minus sign: "−0.17–0.87" reads as a range from a negative number, "-0.17–0.87" does not.
   return text.replace("-", "\u2212");
 }
@@ -25,11 +28,6 @@ const SUPERSCRIPT: Record<string, string> = { "0": "⁰", "1": "¹", "2": "²", 
 /** 10 to a power, with a superscript exponent: power10(16) // "10¹⁶" */
 function power10(exponent: number): string {
   return `10${[...String(exponent)].map((c) => SUPERSCRIPT[c] ?? c).join("")}`;
-}
-
-/** A count with thousands separators. @example formatCount(9812) // "9,812" */
-export function formatCount(value: number): string {
-  return grouped.format(value);
 }
 
 /**
@@ -55,7 +53,7 @@ export function formatTail(p: number): string {
     return `1 in ${mantissa} × ${power10(Number(exponent))}`;
   }
   const rounded = Number(oneIn.toPrecision(2));
-  return `1 in ${grouped.format(rounded)}`;
+  return `1 in ${formatCount(rounded)}`;
 }
 
 /**

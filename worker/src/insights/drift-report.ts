@@ -4,6 +4,7 @@
  * (if any) the live model is due for refit. Pure: the worker reads, this computes.
  */
 import { bonferroniConfidence, driftEntriesFor, flagRateCheck } from "../../../shared-model/src";
+import { formatPercent } from "../../../shared-model/src/format-number";
 import type { TallyModel } from "./tally";
 import type { BucketTotals, DayVolume } from "./traffic-queries";
 import type { DayFlagRate, DriftEntry } from "../contract";
@@ -60,8 +61,8 @@ export function refitReasons(drift: readonly DriftEntry[], rates: readonly DayFl
     const check = day.check;
     if (check && check.verdict !== "as-expected") {
       reasons.push(
-        `flag rate on ${day.day} is ${check.verdict} the expected ${pct(check.expectedRate)} (observed ${pct(check.observedRate)}, ` +
-          `${pct(check.confidence)} interval ${pct(check.low)}–${pct(check.high)}, ${correctionText(rates.filter((r) => r.check).length)})`,
+        `flag rate on ${day.day} is ${check.verdict} the expected ${formatPercent(check.expectedRate)} (observed ${formatPercent(check.observedRate)}, ` +
+          `${formatPercent(check.confidence)} interval ${formatPercent(check.low)}–${formatPercent(check.high)}, ${correctionText(rates.filter((r) => r.check).length)})`,
       );
     }
   }
@@ -71,8 +72,4 @@ export function refitReasons(drift: readonly DriftEntry[], rates: readonly DayFl
 
 function correctionText(tests: number): string {
   return tests === 1 ? "one day tested, no correction needed" : `Bonferroni-corrected for ${tests} daily tests`;
-}
-
-function pct(share: number): string {
-  return `${(share * 100).toFixed(2)} %`;
 }

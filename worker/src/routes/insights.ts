@@ -57,16 +57,13 @@ insightRoutes.use("*", authenticate(), allow("analyst"));
 insightRoutes.get("/model", async (c) => {
   const query = parseQuery(c, modelQuerySchema);
   if (query instanceof Response) return query;
-  const days = query.days ?? DEFAULT_DAYS;
+  const { fromDay, toDay } = dayWindow(query.days);
   const pointer = await readPointer(c.env);
   if (pointer === null) return noActiveModel(c);
   const live = await modelOrProblem(c, pointer.version, "pointer.version");
   if (live instanceof Response) return live;
   const shadow = pointer.shadow === null ? null : await modelOrProblem(c, pointer.shadow, "pointer.shadow");
   if (shadow instanceof Response) return shadow;
-  const now = new Date();
-  const fromDay = dayBefore(now, days - 1);
-  const toDay = dayBefore(now, 0);
   const [activeSummary, shadowSummary, totals, volumes, report, events, renew, shadowSince] = await Promise.all([
     versionSummary(c.env, live.artifact),
     shadow ? versionSummary(c.env, shadow.artifact) : Promise.resolve(null),
@@ -93,13 +90,11 @@ insightRoutes.get("/model", async (c) => {
 insightRoutes.get("/operating", async (c) => {
   const query = parseQuery(c, operatingQuerySchema);
   if (query instanceof Response) return query;
-  const resolved = await versionOrLive(c, query.version);
-  if (resolved instanceof Response) return resolved;
-  const { model } = resolved;
-  const days = query.days ?? DEFAULT_DAYS;
-  const now = new Date();
-  const sources = await sameParameterVersions(c.env, model, resolved.pointer);
-  const [rows, volumes] = await Promise.all([labelledRows(c.env, sources), dailyVolumes(c.env, model.version, dayBefore(now, days - 1), dayBefore(now, 0))]);
+  const span = await modelWindow(c, query);
+  if (span instanceof Response) return span;
+  const { model, days } = span;
+  const sources = await sameParameterVersions(c.env, model, span.pointer);
+  const [rows, volumes] = await Promise.all([labelledRows(c.env, sources), dailyVolumes(c.env, model.version, span.fromDay, span.toDay)]);
   const scored = volumes.reduce((a, v) => a + v.scored, 0);
   const flagged = volumes.reduce((a, v) => a + v.flagged, 0);
   const scoredPerDay = volumes.length > 0 ? scored / volumes.length : null;
@@ -130,12 +125,10 @@ insightRoutes.get("/shadow", async (c) => {
 insightRoutes.get("/histogram", async (c) => {
   const query = parseQuery(c, windowQuerySchema);
   if (query instanceof Response) return query;
-  const resolved = await versionOrLive(c, query.version);
-  if (resolved instanceof Response) return resolved;
-  const { model } = resolved;
-  const days = query.days ?? DEFAULT_DAYS;
-  const now = new Date();
-  const totals = await bucketTotals(c.env, model, dayBefore(now, days - 1), dayBefore(now, 0));
+  const span = await modelWindow(c, query);
+  if (span instanceof Response) return span;
+  const { model, days } = span;
+  const totals = await bucketTotals(c.env, model, span.fromDay, span.toDay);
   const edges = model.artifact.reference.scoreEdges;
   return c.json({
     version: model.version,
@@ -171,6 +164,26 @@ async function modelOrProblem(c: InsightsContext, version: string, field: string
     if (error.code === "artifact-invalid") return problemResponse(c, 422, "artifact-refused", [{ field, rule: `the stored artifact of ${version} does not verify` }]);
     throw error;
   }
+}
+
+/** The UTC days an insight reads: the last `days` (default 7), today included. */
+interface DayWindow {
+  days: number;
+  fromDay: string;
+  toDay: string;
+}
+
+/** The model an insight reads (the requested version, or the live one) and its window of days. */
+async function modelWindow(c: InsightsContext, query: { version?: string; days?: number }): Promise<({ model: LoadedModel; pointer: ModelPointer | null } & DayWindow) | Response> {
+  const resolved = await versionOrLive(c, query.version);
+  if (resolved instanceof Response) return resolved;
+  return { ...resolved, ...dayWindow(query.days) };
+}
+
+/** The window of `days` UTC days ending today. */
+function dayWindow(days = DEFAULT_DAYS): DayWindow {
+  const now = new Date();
+  return { days, fromDay: dayBefore(now, days - 1), toDay: dayBefore(now, 0) };
 }
 
 /** The requested version, or the live one. */

@@ -3,10 +3,11 @@
  * Everything returns text; nothing here builds markup.
  */
 import type { Estimate } from "../../../../shared-model/src/estimates";
+import { formatPercent } from "../../../../shared-model/src/format-number";
 
 /** A share as a percentage with one decimal ("—" when unknown). @example percent(0.0412) // "4.1 %" */
 export function percent(share: number | null | undefined, digits = 1): string {
-  return share === null || share === undefined || !Number.isFinite(share) ? "—" : `${(share * 100).toFixed(digits)} %`;
+  return formatPercent(share, digits, "—");
 }
 
 /**
