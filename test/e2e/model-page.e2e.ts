@@ -158,6 +158,17 @@ describe("the model page in Chromium", () => {
     expect(await text("version-id")).toBe(liveVersion);
   });
 
+  it("asks before discarding the shadow, and Cancel leaves the shadow scoring beside live", async () => {
+    await page.getByTestId("discard-start").click();
+    const box = page.getByRole("group", { name: "Confirm discarding" });
+    expect(await box.innerText()).toMatch(/stops scoring beside live; its version stays stored\./);
+    expect(await page.getByTestId("discard-confirm").innerText()).toBe("Discard now");
+    await box.getByRole("button", { name: "Cancel" }).click();
+    expect(await box.count()).toBe(0);
+    await page.getByTestId("discard-start").waitFor();
+    await page.getByTestId("shadow-panel").waitFor();
+  });
+
   it("shows an analyst the page read-only", async () => {
     const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });
     const analystPage = await context.newPage();
