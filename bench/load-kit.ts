@@ -67,6 +67,22 @@ export function correlatedGaussian(features: number, seed: number, spread: numbe
   return { names, sample };
 }
 
+/**
+ * Score request bodies in the features form, numbered by the caller (so another body form can share
+ * the numbering): body `n` carries transactionId `${idPrefix}-${n}` (fresh for each n, so no answer
+ * comes from the idempotency memory), accountRef `acct-${n % accounts}` and the features of one of
+ * `count` invented payments drawn once from `sample` (rounded to 4 decimals, cycled through).
+ */
+export function featureBodies(names: string[], sample: () => number[], options: { idPrefix: string; accounts: number; count?: number }): (n: number) => string {
+  const payloads = Array.from({ length: options.count ?? 4096 }, () => sample().map((v) => Number(v.toFixed(4))));
+  return (n) => {
+    const values = payloads[(n - 1) % payloads.length];
+    const features: Record<string, number> = {};
+    for (let i = 0; i < names.length; i++) features[names[i]] = values[i];
+    return JSON.stringify({ transactionId: `${options.idPrefix}-${n}`, features, accountRef: `acct-${n % options.accounts}` });
+  };
+}
+
 /** The q-quantile of ascending values (nearest rank); NaN when empty. */
 export function percentile(sorted: Float64Array, q: number): number {
   if (sorted.length === 0) return Number.NaN;

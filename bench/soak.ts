@@ -30,7 +30,7 @@ import { bundleWorker } from "../scripts/bundle-worker";
 import type { CommandIO } from "../cli/io";
 import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
 import { isolateHeap } from "./isolate-heap";
-import { autocannon, correlatedGaussian, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
+import { autocannon, correlatedGaussian, featureBodies, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
 const TOTAL = Number(process.env.SOAK_REQUESTS ?? 200_000);
 const CONNECTIONS = Number(process.env.SOAK_CONNECTIONS ?? 48);
@@ -113,15 +113,10 @@ function rssMiB(pid: number): number {
 
 // --- load ------------------------------------------------------------------------------------
 
-const payloads = Array.from({ length: 4096 }, () => sample().map((v) => Number(v.toFixed(4))));
-const runId = randomBytes(4).toString("hex");
+const scoreBody = featureBodies(names, sample, { idPrefix: `soak-${randomBytes(4).toString("hex")}`, accounts: 1499 });
 let counter = 0;
 function nextBody(): string {
-  const values = payloads[counter % payloads.length];
-  const features: Record<string, number> = {};
-  for (let i = 0; i < FEATURES; i++) features[names[i]] = values[i];
-  counter++;
-  return JSON.stringify({ transactionId: `soak-${runId}-${counter}`, features, accountRef: `acct-${counter % 1499}` });
+  return scoreBody(++counter);
 }
 
 async function score(url: string, token: string, amount: number, onTime?: (ms: number) => void) {

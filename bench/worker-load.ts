@@ -34,7 +34,7 @@ import { publishCommand } from "../cli/commands/publish";
 import type { CommandIO } from "../cli/io";
 import { emptyHistory, fitModel, recordFromFields, recordPayment, type AccountHistory, type FeatureDeclaration, type FitRow } from "../shared-model/src";
 import { fitRecordModel, SHOP_RECORD_SPEC, shopLedger } from "../worker/test/record-fixtures";
-import { autocannon, correlatedGaussian, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
+import { autocannon, correlatedGaussian, featureBodies, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
 const seconds = Number(process.env.BENCH_SECONDS ?? 10);
 const PHASE = process.env.BENCH_PHASE ?? "all";
@@ -92,17 +92,13 @@ interface CaseResult {
   errors: number;
 }
 
-const payloads = Array.from({ length: 4096 }, () => sample().map((v) => Number(v.toFixed(4))));
 let counter = 0;
 const runId = randomBytes(4).toString("hex");
+const scoreBody = featureBodies(names, sample, { idPrefix: `bench-${runId}`, accounts: 997 });
 
 /** A score body with a fresh transactionId (bodies cycle through 4,096 invented payments). */
 function nextBody(): string {
-  const values = payloads[counter % payloads.length];
-  const features: Record<string, number> = {};
-  for (let i = 0; i < FEATURES; i++) features[names[i]] = values[i];
-  counter++;
-  return JSON.stringify({ transactionId: `bench-${runId}-${counter}`, features, accountRef: `acct-${counter % 997}` });
+  return scoreBody(++counter);
 }
 
 /** Accounts the payment-form bodies spread over (one Durable Object each). */
