@@ -9,10 +9,11 @@
  */
 import { basename, resolve } from "node:path";
 import type { ModelArtifact } from "../../shared-model/src/artifact";
+import { FitRefusal } from "../../shared-model/src/diagnostics";
 import { fitModel, type FitReport, type FitRow, type RowSource } from "../../shared-model/src/fit";
 import { compileModel, Scorer } from "../../shared-model/src/score";
 import { operatingPoints, pointAtCutoff, pointAtFlagRate, type OperatingPoint, type OperatingTable } from "../../shared-model/src/tuning";
-import type { FeatureDeclaration } from "../../shared-model/src/types";
+import type { Diagnostic, FeatureDeclaration } from "../../shared-model/src/types";
 import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
 import { EXIT_OK, InputError, reportFailure } from "../errors";
 import { DriftTally } from "../drift-tally";
@@ -242,6 +243,31 @@ export interface RefitOutcome {
   window: TimeWindow | null;
 }
 
+/** What a refit had read when its candidate's fit was refused. */
+export interface RefitReadSoFar {
+  /** The ledger's label (file, table or query). */
+  source: string;
+  counts: RefitCounts;
+  labels: Pick<LabelSet, "rows" | "fraudCount">;
+  window: TimeWindow | null;
+}
+
+/**
+ * The candidate's fit was refused by its diagnostics (exit 1, as any {@link FitRefusal}), with what
+ * the refit had read by then, so `isodense renew` can report the window and rows behind the refusal.
+ */
+export class RefitRefusal extends FitRefusal {
+  /** The ledger, counts, labels and window of the refused refit. */
+  readonly read: RefitReadSoFar;
+
+  /** @param diagnostics the refused fit's findings; @param read what the refit had read */
+  constructor(diagnostics: Diagnostic[], read: RefitReadSoFar) {
+    super(diagnostics);
+    this.name = "RefitRefusal";
+    this.read = read;
+  }
+}
+
 /** The latest week of a window: the last seven days before its end. */
 export const LATEST_WEEK_MS = 7 * 86_400_000;
 
@@ -250,7 +276,7 @@ export const LATEST_WEEK_MS = 7 * 86_400_000;
  * candidate with the live model's spec on the ledger (window) without the confirmed fraud and with
  * the dismissed flags, and backtests both models on the labels and the ledger.
  * @throws InputError (exit 2) for a labelled set without fraud, a ledger without an id column, a
- *   window on a ledger without a time column; FitRefusal when the candidate's data cannot support it
+ *   window on a ledger without a time column; RefitRefusal (a FitRefusal) when the candidate's data cannot support it
  */
 export async function refitCandidate(input: RefitInput): Promise<RefitOutcome> {
   const { live, ledger, labelsPath } = input;
@@ -327,6 +353,9 @@ export async function refitCandidate(input: RefitInput): Promise<RefitOutcome> {
       return source.counts.excludedConfirmedFraud + source.counts.excludedLedgerFraud;
     },
     onProgress: progress,
+  }).catch((error: unknown) => {
+    if (error instanceof FitRefusal) throw new RefitRefusal(error.diagnostics, { source: ledger.label, counts: { ...source.counts }, labels, window });
+    throw error;
   });
   const backtest = compareOnLabels(live, candidate, labels);
   const ledgerComparison = await compareOnLedger(live, candidate, ledger, request, window, (window?.toMs ?? Number.NaN) - LATEST_WEEK_MS, (rows) => progress("compare", rows));

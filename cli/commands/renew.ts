@@ -11,7 +11,7 @@ import { mkdir, writeFile } from "node:fs/promises";
 import { join, resolve } from "node:path";
 import { parseArtifact, type ModelArtifact } from "../../shared-model/src/artifact";
 import { parseDuration } from "../../shared-model/src/records/time";
-import type { RenewOutcome, RenewReport } from "../../shared-model/src/renew-report";
+import type { RenewOutcome, RenewReport, RenewRunReport } from "../../shared-model/src/renew-report";
 import { formatHelp, numberOption, parseArgs, stringOption, UsageError, type CommandSpec } from "../args";
 import { EXIT_INTERNAL, EXIT_OK, EXIT_REFUSED, reportFailure } from "../errors";
 import { checkOutputPath, writeFileAtomic } from "../files";
@@ -19,10 +19,10 @@ import { processIO, writeLines, type CommandIO } from "../io";
 import { parseIsoTime } from "../ledger";
 import { createProgress } from "../progress";
 import { applyGate, DEFAULT_GATE, type GateThresholds } from "../renew/gate";
-import { buildReport, reportFileName, reportLines } from "../renew/report";
+import { buildRefusedReport, buildReport, reportFileName, reportLines } from "../renew/report";
 import { callService, refusal, serviceToken, serviceUrl, TOKEN_ENV, UnreachableError, type ServiceTarget } from "../service/client";
 import { SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
-import { refitCandidate } from "./refit";
+import { RefitRefusal, refitCandidate, type RefitOutcome } from "./refit";
 
 /** Exit code: the candidate was held back by the gate (or its fit refused by diagnostics). */
 export const EXIT_HELD_BACK = EXIT_REFUSED;
@@ -85,7 +85,7 @@ export const renewSpec: CommandSpec = {
   notes: [
     "Exit codes: 0 published as the shadow, or nothing new to publish (the same candidate is already the shadow or live);",
     "1 held back by the gate (each failed check printed; the candidate is stored on the service, not scoring, with its report)",
-    "or the fit refused by diagnostics; 2 usage or input error (including a refusal by the service: token, no live model);",
+    "or the fit refused by diagnostics (the report, outcome refused, names the check); 2 usage or input error (including a refusal by the service: token, no live model);",
     "3 the service could not be reached or answered unexpectedly.",
     "Drift of the window against the live model's training traffic is reported, not gated. Promote or discard the shadow on the model page.",
   ],
@@ -122,18 +122,28 @@ export async function renewCommand(argv: string[], io: CommandIO = processIO()):
     const labelsPath = join(keep, "labels.csv");
     await writeFile(labelsPath, await readLabelExport(target));
 
-    const refit = await refitCandidate({
-      ledger,
-      labelsPath,
-      live,
-      labelColumns: {},
-      idColumn: stringOption(args, "id-column"),
-      labelColumn: stringOption(args, "label-column"),
-      timeColumn: stringOption(args, "time-column"),
-      seed: numberOption(args, "seed"),
-      window: { lengthMs: windowMs, untilMs },
-      onProgress: (pass, rows) => progress.update(pass, rows),
-    });
+    let refit: RefitOutcome;
+    try {
+      refit = await refitCandidate({
+        ledger,
+        labelsPath,
+        live,
+        labelColumns: {},
+        idColumn: stringOption(args, "id-column"),
+        labelColumn: stringOption(args, "label-column"),
+        timeColumn: stringOption(args, "time-column"),
+        seed: numberOption(args, "seed"),
+        window: { lengthMs: windowMs, untilMs },
+        onProgress: (pass, rows) => progress.update(pass, rows),
+      });
+    } catch (error) {
+      if (!(error instanceof RefitRefusal)) throw error;
+      // A scheduled job reads the report: a refused fit writes one too, naming the check that refused.
+      progress.done();
+      const exitCode = reportFailure(error, io, renewSpec.command);
+      await writeReport(buildRefusedReport({ refusal: error, liveVersion: live.version, shadowBefore: pointer.shadow, exitCode, createdAt: new Date() }), keep, reportPath);
+      return exitCode;
+    }
     progress.done();
     const { candidate } = refit;
     const week = refit.ledger.latestWeek;
@@ -152,9 +162,7 @@ export async function renewCommand(argv: string[], io: CommandIO = processIO()):
     const report = buildReport({ refit, verdict, thresholds, window: refit.window!, shadowBefore: pointer.shadow, outcome, createdAt: new Date() });
     await writeFile(join(keep, `${candidate.version}.json`), `${JSON.stringify(candidate, null, 2)}\n`);
     if (outcome !== "unchanged") await sendCandidate(target, candidate, report);
-    const reportText = `${JSON.stringify(report, null, 2)}\n`;
-    await writeFile(join(keep, reportFileName(report)), reportText);
-    if (reportPath !== undefined) await writeFileAtomic(reportPath, reportText);
+    await writeReport(report, keep, reportPath);
     writeLines(io.stdout, reportLines(report, refit));
     return outcome === "held" ? EXIT_HELD_BACK : EXIT_OK;
   } catch (error) {
@@ -165,6 +173,13 @@ export async function renewCommand(argv: string[], io: CommandIO = processIO()):
     }
     return reportFailure(error, io, renewSpec.command);
   }
+}
+
+/** Writes the JSON report into the keep folder and, when asked, to `--report`. */
+async function writeReport(report: RenewRunReport, keep: string, reportPath: string | undefined): Promise<void> {
+  const text = `${JSON.stringify(report, null, 2)}\n`;
+  await writeFile(join(keep, reportFileName(report)), text);
+  if (reportPath !== undefined) await writeFileAtomic(reportPath, text);
 }
 
 /**

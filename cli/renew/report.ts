@@ -2,10 +2,10 @@
  * The renew report: built from the refit's outcome and the gate's verdict (the JSON that is kept
  * and sent to the service), and its short form for people.
  */
-import { RENEW_REPORT_FORMAT, type RenewOutcome, type RenewReport } from "../../shared-model/src/renew-report";
+import { RENEW_REPORT_FORMAT, type RenewOutcome, type RenewRefusedReport, type RenewReport, type RenewRunReport } from "../../shared-model/src/renew-report";
 import type { Diagnostic } from "../../shared-model/src/types";
 import { formatCount, formatForPeople } from "../numbers";
-import { jaccard, LATEST_WEEK_MS, type RefitOutcome, type TimeWindow } from "../commands/refit";
+import { jaccard, LATEST_WEEK_MS, type RefitCounts, type RefitOutcome, type RefitRefusal, type TimeWindow } from "../commands/refit";
 import type { GateThresholds, GateVerdict } from "./gate";
 
 /** Everything a report is made from. */
@@ -42,16 +42,8 @@ export function buildReport(inputs: ReportInputs): RenewReport {
     liveVersion: live.version,
     candidateVersion: candidate.version,
     shadowBefore: inputs.shadowBefore,
-    window: { from: iso(window.fromMs), to: iso(window.toMs), days: (window.toMs - window.fromMs) / 86_400_000 },
-    ledger: {
-      source: candidate.training.source ?? "",
-      rowsRead: counts.rowsRead,
-      rowsInWindow: counts.rowsRead - counts.outsideWindow,
-      confirmedFraudLeftOut: counts.excludedConfirmedFraud,
-      ledgerFraudLeftOut: counts.excludedLedgerFraud,
-      dismissedKept: counts.dismissedKept,
-      rowsUsed: counts.rowsUsed,
-    },
+    window: windowPart(window),
+    ledger: ledgerPart(candidate.training.source ?? "", counts),
     labels: { rows: labels.rows, fraud: labels.fraudCount },
     live: figures(live, backtest.live, backtest.recallAtLiveRate.live, week.live),
     candidate: figures(candidate, backtest.candidate, backtest.recallAtLiveRate.candidate, week.candidate),
@@ -59,9 +51,65 @@ export function buildReport(inputs: ReportInputs): RenewReport {
     latestWeek: { from: iso(Math.max(window.fromMs, window.toMs - LATEST_WEEK_MS)), to: iso(window.toMs), payments: week.payments },
     overlap: ledger.overlap,
     gate: { passed: verdict.passed, thresholds, checks: verdict.checks },
-    diagnostics: refit.fitReport.diagnostics.map((d: Diagnostic) => ({ severity: d.severity, code: d.code, message: d.message })),
+    diagnostics: diagnosticsPart(refit.fitReport.diagnostics),
     drift: ledger.drift.entries(),
   };
+}
+
+/** Everything the report of a refused fit is made from. */
+export interface RefusedReportInputs {
+  refusal: RefitRefusal;
+  liveVersion: string;
+  shadowBefore: string | null;
+  /** The exit code the run ends with. */
+  exitCode: number;
+  createdAt: Date;
+}
+
+/**
+ * The report of a run whose candidate's fit was refused: the run's fields as in {@link buildReport},
+ * the refusal (first error's check and message, exit code) and every error as a reason.
+ * @example const report = buildRefusedReport({ refusal, liveVersion, shadowBefore: null, exitCode: 1, createdAt: new Date() });
+ */
+export function buildRefusedReport(inputs: RefusedReportInputs): RenewRefusedReport {
+  const { diagnostics, read } = inputs.refusal;
+  const errors = diagnostics.filter((d) => d.severity === "error");
+  const first = errors[0] ?? diagnostics[0];
+  if (read.window === null) throw new Error("a renew refit always has a training window");
+  return {
+    format: RENEW_REPORT_FORMAT,
+    createdAt: inputs.createdAt.toISOString(),
+    outcome: "refused",
+    reasons: errors.slice(0, 20).map((d) => `${d.code}: ${d.message}`),
+    refusal: { check: first?.code ?? "fit", message: first?.message ?? inputs.refusal.message, exitCode: inputs.exitCode },
+    liveVersion: inputs.liveVersion,
+    candidateVersion: null,
+    shadowBefore: inputs.shadowBefore,
+    window: windowPart(read.window),
+    ledger: ledgerPart(read.source, read.counts),
+    labels: { rows: read.labels.rows, fraud: read.labels.fraudCount },
+    diagnostics: diagnosticsPart(diagnostics),
+  };
+}
+
+function windowPart(window: TimeWindow): RenewReport["window"] {
+  return { from: iso(window.fromMs), to: iso(window.toMs), days: (window.toMs - window.fromMs) / 86_400_000 };
+}
+
+function ledgerPart(source: string, counts: RefitCounts): RenewReport["ledger"] {
+  return {
+    source,
+    rowsRead: counts.rowsRead,
+    rowsInWindow: counts.rowsRead - counts.outsideWindow,
+    confirmedFraudLeftOut: counts.excludedConfirmedFraud,
+    ledgerFraudLeftOut: counts.excludedLedgerFraud,
+    dismissedKept: counts.dismissedKept,
+    rowsUsed: counts.rowsUsed,
+  };
+}
+
+function diagnosticsPart(diagnostics: readonly Diagnostic[]): RenewReport["diagnostics"] {
+  return diagnostics.map((d) => ({ severity: d.severity, code: d.code, message: d.message }));
 }
 
 /** The short report for people: the verdict first, then the figures behind it. */
@@ -91,7 +139,8 @@ function iso(ms: number): string {
   return new Date(ms).toISOString();
 }
 
-/** The report's file name inside the keep folder. */
-export function reportFileName(report: RenewReport): string {
+/** The report's file name inside the keep folder (a refusal, without a candidate, is named by its time). */
+export function reportFileName(report: RenewRunReport): string {
+  if (report.outcome === "refused") return `renew-refused-${report.createdAt.replace(/[:.]/g, "")}.json`;
   return `renew-${report.candidateVersion}-${report.outcome}.json`;
 }

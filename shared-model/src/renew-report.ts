@@ -53,28 +53,39 @@ const driftRowSchema = z.strictObject({
   note: z.string().max(500).nullable(),
 });
 
+const windowSchema = z.strictObject({ from: isoTime, to: isoTime, days: z.number().positive() });
+
+const ledgerSchema = z.strictObject({
+  source: z.string().max(500),
+  rowsRead: z.number().int().min(0),
+  rowsInWindow: z.number().int().min(0),
+  confirmedFraudLeftOut: z.number().int().min(0),
+  ledgerFraudLeftOut: z.number().int().min(0),
+  dismissedKept: z.number().int().min(0),
+  rowsUsed: z.number().int().min(0),
+});
+
+const labelsSchema = z.strictObject({ rows: z.number().int().min(0), fraud: z.number().int().min(0) });
+
+const diagnosticsSchema = z.array(z.strictObject({ severity: z.enum(["error", "warning", "info"]), code: z.string().max(100), message: z.string().max(2000) })).max(200);
+
+/** The reasons a candidate was held back or refused, each `check: what was found`. */
+const reasonsSchema = z.array(z.string().max(2000)).max(20);
+
 /** zod schema of a renew report (every object strict). */
 export const renewReportSchema = z.strictObject({
   format: z.literal(RENEW_REPORT_FORMAT),
   createdAt: isoTime,
   outcome: z.enum(RENEW_OUTCOMES),
   /** The reasons it was held back (empty unless `held`). */
-  reasons: z.array(z.string().max(2000)).max(20),
+  reasons: reasonsSchema,
   liveVersion: version,
   candidateVersion: version,
   /** The shadow before this run (null when there was none). */
   shadowBefore: version.nullable(),
-  window: z.strictObject({ from: isoTime, to: isoTime, days: z.number().positive() }),
-  ledger: z.strictObject({
-    source: z.string().max(500),
-    rowsRead: z.number().int().min(0),
-    rowsInWindow: z.number().int().min(0),
-    confirmedFraudLeftOut: z.number().int().min(0),
-    ledgerFraudLeftOut: z.number().int().min(0),
-    dismissedKept: z.number().int().min(0),
-    rowsUsed: z.number().int().min(0),
-  }),
-  labels: z.strictObject({ rows: z.number().int().min(0), fraud: z.number().int().min(0) }),
+  window: windowSchema,
+  ledger: ledgerSchema,
+  labels: labelsSchema,
   live: modelFiguresSchema,
   candidate: modelFiguresSchema,
   /** The live model's flag rate on the labelled set, at which both recalls are read. */
@@ -87,7 +98,7 @@ export const renewReportSchema = z.strictObject({
     thresholds: z.strictObject({ maxPrAucDrop: share, maxRecallDrop: share, flagRateBand: z.tuple([finite, finite]) }),
     checks: z.array(gateCheckSchema).max(GATE_CHECKS.length),
   }),
-  diagnostics: z.array(z.strictObject({ severity: z.enum(["error", "warning", "info"]), code: z.string().max(100), message: z.string().max(2000) })).max(200),
+  diagnostics: diagnosticsSchema,
   /** PSI of the window's normal payments against the live model's training traffic (reported, not gated). */
   drift: z.array(driftRowSchema).max(1000),
 });
@@ -97,3 +108,34 @@ export type RenewReport = z.infer<typeof renewReportSchema>;
 
 /** One check of a report's gate. */
 export type GateCheck = RenewReport["gate"]["checks"][number];
+
+/**
+ * The report of a run whose candidate's fit was refused by its diagnostics (too few rows in the
+ * window, a constant column, a linear dependency…): nothing was fitted or sent to the service, so it
+ * is written to `--report` and the keep folder only. It shares the run's fields with
+ * {@link renewReportSchema} (`candidateVersion` is null) and adds `refusal`; the backtest, gate,
+ * overlap and drift do not exist without a candidate.
+ */
+export const renewRefusedReportSchema = z.strictObject({
+  format: z.literal(RENEW_REPORT_FORMAT),
+  createdAt: isoTime,
+  outcome: z.literal("refused"),
+  /** One `code: message` per error diagnostic of the refused fit. */
+  reasons: reasonsSchema,
+  /** The first error: the check that refused (its diagnostic code), its message, and the run's exit code. */
+  refusal: z.strictObject({ check: z.string().max(100), message: z.string().max(2000), exitCode: z.number().int().min(0).max(255) }),
+  liveVersion: version,
+  candidateVersion: z.null(),
+  shadowBefore: version.nullable(),
+  window: windowSchema,
+  /** What the refit had read when the fit was refused. */
+  ledger: ledgerSchema,
+  labels: labelsSchema,
+  diagnostics: diagnosticsSchema,
+});
+
+/** The report of a run whose candidate's fit was refused. */
+export type RenewRefusedReport = z.infer<typeof renewRefusedReportSchema>;
+
+/** Any report `isodense renew` writes: a candidate's (published, unchanged or held) or a refusal. */
+export type RenewRunReport = RenewReport | RenewRefusedReport;

@@ -5,9 +5,10 @@
  * ledger's labels; then `isodense renew` refits on a drifted week-2 ledger of the real generator
  * (prices a fifth higher), the candidate becomes the shadow, traffic reaches both models, an admin
  * promotes it and a rollback restores week 1. A second case shows the gate holding back a worse
- * candidate: one fitted with the confirmed fraud left in.
+ * candidate: one fitted with the confirmed fraud left in; a third, a fit refused for too few rows,
+ * which still leaves its report.
  */
-import { mkdtemp, readFile, rm, writeFile } from "node:fs/promises";
+import { mkdtemp, readdir, readFile, rm, writeFile } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, expect, test } from "vitest";
@@ -16,7 +17,7 @@ import { captureIO } from "../../../cli/capture-io";
 import { demoLedgerCommand } from "../../../demo-ledger/cli";
 import { generateLedger } from "../../../demo-ledger/generate";
 import { runDemoLoop } from "../../../scripts/demo-loop-core";
-import type { RenewReport } from "../../../shared-model/src/renew-report";
+import { renewRefusedReportSchema, type RenewReport } from "../../../shared-model/src/renew-report";
 import { seedDemoQueue } from "../../../test/e2e/demo-queue";
 import type { ModelPageData, ShadowData } from "../../src/contract";
 import { startWorker, type RunningWorker } from "../harness";
@@ -179,3 +180,33 @@ test("the gate holds back a candidate fitted with the confirmed fraud left in, s
   expect(page.renew.held?.report.candidateVersion).toBe(report.candidateVersion);
   expect((await worker.fetch(`/v1/models/${report.candidateVersion}`, { headers: { authorization: `Bearer ${worker.tokens.admin}` } })).status).toBe(200);
 }, 240_000);
+
+test("a candidate whose fit is refused still leaves a JSON report, naming the check that refused, its message and the exit code", async () => {
+  // The latest five payments of week 2 alone: too few rows in the window for nine features.
+  const lines = (await readFile(driftedPath, "utf8")).trimEnd().split("\n");
+  const fewPath = join(dir, "week2-few.csv");
+  await writeFile(fewPath, `${[lines[0], ...lines.slice(-5)].join("\n")}\n`);
+  const reportPath = join(dir, "refused.json");
+  const keep = join(dir, "refused");
+  const shadowBefore = (await getJson<ModelPageData>("/v1/insights/model", worker.tokens.analyst)).pointer.shadow;
+  const run = captureIO();
+  const code = await renewCommand(["--ledger", fewPath, "--url", url, "--token", worker.tokens.admin, "--keep", keep, "--report", reportPath], run.io);
+  expect(code, run.out() + run.err()).toBe(1);
+  expect(run.err()).toContain("isodense renew: fit refused");
+  const report = renewRefusedReportSchema.parse(JSON.parse(await readFile(reportPath, "utf8")));
+  expect(report.outcome).toBe("refused");
+  expect(report.refusal.check).toBe("too-few-rows");
+  expect(report.refusal.exitCode).toBe(1);
+  expect(run.err()).toContain(report.refusal.message);
+  expect(report.reasons[0]).toBe(`too-few-rows: ${report.refusal.message}`);
+  expect(report.liveVersion).toBe(await liveVersion());
+  expect(report.shadowBefore).toBe(shadowBefore);
+  expect(report.ledger.rowsRead).toBe(5);
+  expect(report.labels.fraud).toBeGreaterThan(0);
+  // The same report is kept beside the labels and the live model.
+  const kept = (await readdir(keep)).filter((name) => name.startsWith("renew-refused-"));
+  expect(kept).toHaveLength(1);
+  expect(JSON.parse(await readFile(join(keep, kept[0]), "utf8"))).toEqual(report);
+  // Nothing reached the service: the shadow is as it was.
+  expect((await getJson<ModelPageData>("/v1/insights/model", worker.tokens.analyst)).pointer.shadow).toBe(shadowBefore);
+}, 120_000);
