@@ -30,6 +30,8 @@ if (!flagGiven && process.env[RELAUNCHED] !== "1") {
     process.kill(process.pid, signal);
   });
 } else {
+  // The mark guards this one start only: a command that runs isodense again gets the flag anew.
+  delete process.env[RELAUNCHED];
   // ISODENSE_DEBUG also names the V8 flags the command runs with (tested in test/node/launcher.test.ts).
   if (process.env.ISODENSE_DEBUG) process.stderr.write(`isodense: pid ${process.pid}, node flags: ${process.execArgv.join(" ") || "(none)"}\n`);
   const { register } = await import("tsx/esm/api");
