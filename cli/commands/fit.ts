@@ -57,7 +57,7 @@ export const fitSpec: CommandSpec = {
   notes: [
     "Give exactly one of --features and --spec, and either <ledger> or --moments with --sample.",
     'With a spec that has "record", a ledger of payment records (in time order) is derived on the way; a ledger that already has every feature column is read as it is.',
-    "DuckDB reads a ledger of feature columns (memory limit 256 MB) in one pass; with a Yeo–Johnson feature it draws the sample for λ first.",
+    "DuckDB reads a ledger of feature columns (memory limit 256 MB) in one pass; with a Yeo–Johnson feature the rows are also staged in a temporary file (8 bytes a value, removed at the end), λ is fitted on a sample and the moments read the staged copy.",
     "Exit codes: 0 written; 1 refused by diagnostics (each printed with its remedy; nothing written); 2 usage or input error.",
   ],
 };
