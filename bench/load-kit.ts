@@ -4,6 +4,7 @@
  */
 import { spawn, type ChildProcess } from "node:child_process";
 import { once } from "node:events";
+import { existsSync, readdirSync, readFileSync } from "node:fs";
 import { createRequire } from "node:module";
 import { createServer, type AddressInfo } from "node:net";
 import { dirname, join, resolve } from "node:path";
@@ -126,4 +127,37 @@ export async function waitForHealth(url: string, child: ChildProcess): Promise<v
     }
   }
   throw new Error("wrangler dev did not answer within 90 s");
+}
+
+/** Clock ticks per second of /proc's CPU times (USER_HZ; 100 on Linux for x86 and arm). */
+const CLOCK_TICKS_PER_SECOND = 100;
+
+/**
+ * CPU time (user + system, ms) used so far by the processes named `name` among `rootPid`'s
+ * descendants (wrangler starts workerd as a grandchild); 0 where /proc is missing. Read from
+ * /proc/<pid>/stat (proc(5): fields 14 utime and 15 stime, in clock ticks).
+ */
+export function processTreeCpuMs(rootPid: number, name: string): number {
+  if (!existsSync("/proc")) return 0;
+  const stats = new Map<number, { parent: number; name: string; ticks: number }>();
+  for (const entry of readdirSync("/proc")) {
+    if (!/^\d+$/.test(entry)) continue;
+    let text: string;
+    try {
+      text = readFileSync(`/proc/${entry}/stat`, "utf8");
+    } catch {
+      continue; // gone since the listing
+    }
+    // "pid (comm) state ppid …": comm may hold spaces and parentheses, so split after the last ")".
+    const close = text.lastIndexOf(")");
+    const fields = text.slice(close + 2).split(" ");
+    stats.set(Number(entry), { parent: Number(fields[1]), name: text.slice(text.indexOf("(") + 1, close), ticks: Number(fields[11]) + Number(fields[12]) });
+  }
+  const inTree = (pid: number): boolean => {
+    for (let p = pid, hops = 0; p > 1 && hops < 16; p = stats.get(p)?.parent ?? 0, hops++) if (p === rootPid) return true;
+    return false;
+  };
+  let ticks = 0;
+  for (const [pid, stat] of stats) if (stat.name === name && inTree(pid)) ticks += stat.ticks;
+  return (ticks * 1000) / CLOCK_TICKS_PER_SECOND;
 }

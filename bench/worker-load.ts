@@ -10,6 +10,8 @@
  *
  * Latency percentiles are computed from every response time autocannon reports (float ms),
  * because its own histogram has 1 ms resolution, too coarse for a 0.5 ms target.
+ * Each case also reports the CPU time the simulator's workerd processes used per 2xx answer (from
+ * /proc), which other work on this shared machine moves far less than the wall-clock figures.
  * Each request carries a fresh transactionId, so no answer comes from the idempotency memory.
  * The two routes alternate in short rounds so that changes in the machine's load hit both alike.
  *
@@ -48,7 +50,7 @@ import { publishCommand } from "../cli/commands/publish";
 import type { CommandIO } from "../cli/io";
 import { emptyHistory, fitModel, recordFromFields, recordPayment, type AccountHistory, type FeatureDeclaration, type FitRow } from "../shared-model/src";
 import { fitRecordModel, SHOP_RECORD_SPEC, shopLedger } from "../worker/test/record-fixtures";
-import { autocannon, correlatedGaussian, featureBodies, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
+import { autocannon, correlatedGaussian, featureBodies, freePort, percentile, processTreeCpuMs, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
 const seconds = Number(process.env.BENCH_SECONDS ?? 10);
 const PHASE = process.env.BENCH_PHASE ?? "all";
@@ -107,6 +109,12 @@ interface CaseResult {
   latencyMs: { p50: number; p99: number; mean: number };
   non2xx: number;
   errors: number;
+  /**
+   * CPU time (user + system) of the simulator's workerd processes during this route's rounds, per
+   * 2xx answer: the worker, its Durable Objects and their storage, and little else, so it varies far
+   * less with the machine's load than the wall-clock figures (10 ms resolution, summed over rounds).
+   */
+  workerdCpuMsPerRequest: number;
 }
 
 let counter = 0;
@@ -169,7 +177,7 @@ async function load(url: string, route: string, connections: number, duration: n
  * falls on both routes alike.
  */
 async function measurePair(
-  url: string,
+  service: Pick<Service, "url" | "cpuMs">,
   connections: number,
   duration: number,
   rounds: number,
@@ -178,13 +186,15 @@ async function measurePair(
 ): Promise<CaseResult[]> {
   const body = payment ? () => nextPaymentBody(payment.accounts) : nextBody;
   const routes = ["/v1/echo", "/v1/score"];
-  const acc = routes.map(() => ({ times: [] as number[], requests: 0, non2xx: 0, errors: 0, seconds: 0 }));
+  const acc = routes.map(() => ({ times: [] as number[], requests: 0, non2xx: 0, errors: 0, seconds: 0, cpuMs: 0 }));
   const slice = Math.max(1, duration / rounds);
   for (let round = 0; round < rounds; round++) {
     // Alternate which route goes first, so neither always follows the other.
     const order = round % 2 === 0 ? [0, 1] : [1, 0];
     for (const r of order) {
-      const run = await load(url, routes[r], connections, slice, token, body);
+      const cpuBefore = service.cpuMs();
+      const run = await load(service.url, routes[r], connections, slice, token, body);
+      acc[r].cpuMs += service.cpuMs() - cpuBefore;
       acc[r].times.push(...run.times);
       acc[r].requests += run.requests;
       acc[r].non2xx += run.non2xx;
@@ -206,6 +216,7 @@ async function measurePair(
       latencyMs: { p50: round3(percentile(sorted, 0.5)), p99: round3(percentile(sorted, 0.99)), mean: round3(mean) },
       non2xx: acc[r].non2xx,
       errors: acc[r].errors,
+      workerdCpuMsPerRequest: round3(acc[r].cpuMs / Math.max(1, acc[r].times.length)),
     };
   });
 }
@@ -269,6 +280,8 @@ const quiet: CommandIO = { stdout: { write: () => true }, stderr: { write: (t: s
 interface Service {
   url: string;
   state: string;
+  /** CPU time the service's workerd processes have used so far (ms). */
+  cpuMs: () => number;
   stop: () => Promise<void>;
 }
 const running = new Set<Service>();
@@ -291,6 +304,7 @@ async function startService(parent: string): Promise<Service> {
   const service: Service = {
     url,
     state,
+    cpuMs: () => processTreeCpuMs(child.pid!, "workerd"),
     stop: async () => {
       running.delete(service);
       if (child.exitCode === null) {
@@ -317,7 +331,8 @@ function printCase(result: CaseResult): void {
   const label = result.form === "features" ? result.route : `${result.route} (${result.storage}, ${result.accounts})`;
   console.log(
     `  ${label.padEnd(26)} ${String(result.connections).padStart(2)} conn: ${result.requestsPerSecond.toFixed(0).padStart(6)} req/s  ` +
-      `p50 ${result.latencyMs.p50.toFixed(2)} ms  p99 ${result.latencyMs.p99.toFixed(2)} ms  non-2xx ${result.non2xx}  errors ${result.errors}`,
+      `p50 ${result.latencyMs.p50.toFixed(2)} ms  p99 ${result.latencyMs.p99.toFixed(2)} ms  workerd CPU ${result.workerdCpuMsPerRequest.toFixed(2)} ms/req  ` +
+      `non-2xx ${result.non2xx}  errors ${result.errors}`,
   );
 }
 
@@ -367,7 +382,7 @@ async function paymentPhase(storage: Storage, recordModel: unknown) {
     const cases: CaseResult[] = [];
     for (const accounts of ["warm", "cold"] as const) {
       for (const connections of [32, 1]) {
-        for (const result of await measurePair(service.url, connections, seconds, ROUNDS, flowToken, { storage, accounts })) {
+        for (const result of await measurePair(service, connections, seconds, ROUNDS, flowToken, { storage, accounts })) {
           cases.push(result);
           printCase(result);
         }
@@ -402,7 +417,7 @@ try {
       await load(service.url, "/v1/score", 32, 3, flowToken);
       console.log(`measuring ${seconds} s per route and connection count, in ${ROUNDS} alternating rounds`);
       for (const connections of [32, 1]) {
-        for (const result of await measurePair(service.url, connections, seconds, ROUNDS, flowToken)) {
+        for (const result of await measurePair(service, connections, seconds, ROUNDS, flowToken)) {
           cases.push(result);
           printCase(result);
         }
