@@ -22,8 +22,8 @@
  * payment throughput ≥ 0.8 × echo at 32 connections, median ≤ echo + 2 ms at 1 connection.
  *
  * Where the state lives: the local simulator keeps each Durable Object in its own SQLite file under
- * the state folder and syncs it to disk on every commit, which on this machine's disk costs more than
- * all the rest of a payment (about 6 ms against 2 at one connection). Production Durable Object
+ * the state folder and syncs it to disk on every commit, which on this machine's disk can cost more
+ * than all the rest of a payment (median 6.4 ms against 2.2 in memory, one connection, quiet machine). Production Durable Object
  * storage does not sync to the worker's disk, so the aims are judged with the state in memory
  * (/dev/shm, a tmpfs, where it exists), and the same cases on disk (the OS temp folder) are measured
  * on a second fresh service and shown beside them, labelled, not judged.
