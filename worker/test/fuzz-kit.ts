@@ -143,6 +143,9 @@ function judge(response: Response, text: string, request: FuzzRequest, allowed: 
 // Generators
 // ---------------------------------------------------------------------------------------------
 
+/** The usual 200 or a 4xx: what a route may answer input it ignores or merely looks up with. */
+export const okOr4xx = (status: number): boolean => status === 200 || (status >= 400 && status < 500);
+
 /** Values of every JSON type but number (type confusion for numeric fields). */
 export const notANumber: fc.Arbitrary<unknown> = fc.oneof(
   fc.string({ maxLength: 20 }),

@@ -1,60 +1,92 @@
 /**
- * Fuzzing the review API, the export and the public routes in process (./in-process.ts): FUZZ_RUNS (10,000)
- * hostile requests to each review route, to `GET /v1/health` and to `GET /openapi.json`.
+ * What the review fuzz suites (worker/test/fuzz-review-*.test.ts) share: the app each file starts
+ * with a few real flags in its store, the generators of broken review requests, and the check that
+ * nothing was claimed, decided or written. The suites are split by group of endpoints so that
+ * vitest runs them side by side (files run in parallel, the tests inside a file in sequence); each
+ * file starts its own in-process app (./in-process.ts) with its own model version and payments.
  *
  * Routes that take input get inputs broken in one definite way (an unknown, repeated or malformed
  * query parameter, a hostile or unknown item id, a bad decision body, the wrong transport) and must
  * answer a 4xx naming the field and the rule. Routes that take none (who am I, facets, summary,
  * health, the OpenAPI document) get hostile query strings, methods and bodies and must answer
- * either their usual 200 or a 4xx of that form — never a 5xx. A few real flags are in the store so
- * that the list, counts and facets have rows to read; nothing may be claimed, decided or written:
- * every table and KV key is counted before and after.
+ * either their usual 200 or a 4xx of that form — never a 5xx.
  */
 import fc from "fast-check";
-import { afterAll, beforeAll, describe, expect, test } from "vitest";
+import { afterAll, beforeAll, expect } from "vitest";
 import { fitShopModel, UNUSUAL_PAYMENT } from "./fixtures";
-import {
-  deepNestingUpTo,
-  fuzzEndpoint,
-  hostileQueryPair,
-  hostileString,
-  jsonHeaders,
-  notAString,
-  queryString,
-  segment,
-  transportBreakers,
-  withProtoKey,
-  type FuzzRequest,
-} from "./fuzz-kit";
+import { deepNestingUpTo, hostileQueryPair, hostileString, jsonHeaders, notAString, queryString, segment, transportBreakers, withProtoKey, type FuzzRequest } from "./fuzz-kit";
 import { countRows, eventually, publishModel, type RunningWorker } from "./harness";
 import { startApp } from "./in-process";
 import { storedCounts } from "./stored-counts";
 
-let worker: RunningWorker;
-let before: Record<string, number>;
+/** Flags in each suite's store: review items 1 to FLAGS (the ids {@link badId} never draws). */
 const FLAGS = 3;
 
-beforeAll(async () => {
-  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" } });
-  await publishModel(worker, await fitShopModel({ version: "mfuzz-review" }));
-  for (let k = 0; k < FLAGS; k++) {
-    const response = await worker.post("/v1/score", { transactionId: `fz-review-${k}`, features: { ...UNUSUAL_PAYMENT, amount: 2000 + k }, segment: "web" }, worker.tokens.flow);
-    expect(response.status).toBe(200);
-  }
-  const db = await worker.db();
-  await eventually(async () => ((await countRows(db, "review_items")) === FLAGS ? true : undefined), 15_000);
-  before = await storedCounts(worker);
-});
-afterAll(async () => {
-  await worker?.dispose();
-});
+/** A suite's running app, and the check that the fuzzing left its store as it was. */
+export interface ReviewFuzzApp {
+  /** The in-process app (read it inside a test: it is set once `beforeAll` has run). */
+  readonly worker: RunningWorker;
+  /** The live model's version, `mfuzz-review-<name>`. */
+  readonly modelVersion: string;
+  /** Fails unless every D1 table's row count and the KV key count are as before the fuzzing, and no review event exists. */
+  expectNothingWritten(): Promise<void>;
+}
 
-const LIST_KEYS = ["segment", "modelVersion", "selection", "from", "to", "state", "sort", "direction", "limit", "cursor"];
-const COUNT_KEYS = ["segment", "modelVersion", "selection", "from", "to"];
-const EXPORT_KEYS = ["format", "modelVersion"];
+/**
+ * Registers the suite's `beforeAll` and `afterAll`: an in-process app with a model
+ * `mfuzz-review-<name>` and three flagged payments of its own, and the counts of everything stored
+ * once they are in.
+ *
+ * @example
+ * const app = reviewFuzzApp("claims");
+ * test("…", async () => fuzzEndpoint(app.worker, "POST …", idRequests("POST", "/claim", app.worker.tokens.analyst)));
+ */
+export function reviewFuzzApp(name: string): ReviewFuzzApp {
+  const modelVersion = `mfuzz-review-${name}`;
+  let worker: RunningWorker | undefined;
+  let before: Record<string, number> | undefined;
+  beforeAll(async () => {
+    const started = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0", AUDIT_SAMPLE_RATE: "0" } });
+    worker = started;
+    await publishModel(started, await fitShopModel({ version: modelVersion }));
+    for (let k = 0; k < FLAGS; k++) {
+      const payment = { transactionId: `fz-review-${name}-${k}`, features: { ...UNUSUAL_PAYMENT, amount: 2000 + k }, segment: "web" };
+      const response = await started.post("/v1/score", payment, started.tokens.flow);
+      expect(response.status).toBe(200);
+    }
+    const db = await started.db();
+    await eventually(async () => ((await countRows(db, "review_items")) === FLAGS ? true : undefined), 15_000);
+    before = await storedCounts(started);
+  });
+  afterAll(async () => {
+    await worker?.dispose();
+  });
+  const running = (): RunningWorker => {
+    if (!worker) throw new Error("the review fuzz app is not started: read app.worker inside a test");
+    return worker;
+  };
+  return {
+    get worker() {
+      return running();
+    },
+    modelVersion,
+    async expectNothingWritten() {
+      expect(before, "the counts taken before the fuzzing").toBeDefined();
+      expect(await storedCounts(running())).toEqual(before);
+      expect(await countRows(await running().db(), "review_events")).toBe(0);
+    },
+  };
+}
+
+/** Query parameters of `GET /v1/review/items`. */
+export const LIST_KEYS = ["segment", "modelVersion", "selection", "from", "to", "state", "sort", "direction", "limit", "cursor"];
+/** Query parameters of `GET /v1/review/counts`. */
+export const COUNT_KEYS = ["segment", "modelVersion", "selection", "from", "to"];
+/** Query parameters of `GET /v1/review/export`. */
+export const EXPORT_KEYS = ["format", "modelVersion"];
 
 /** Valid parameters that may ride along with a breaker. */
-const validListPair: fc.Arbitrary<[string, string]> = fc.oneof(
+export const validListPair: fc.Arbitrary<[string, string]> = fc.oneof(
   fc.constantFrom<[string, string]>(["state", "open"], ["state", "decided"], ["sort", "tail"], ["direction", "asc"], ["limit", "20"], ["selection", "flagged"], ["segment", "web"]),
 );
 const notDate = fc.oneof(
@@ -144,7 +176,8 @@ function queryBreaker(keys: string[]): fc.Arbitrary<{ pairs: [string, string][];
   return fc.oneof(...options);
 }
 
-function queryRequests(path: string, keys: string[], token: string, alongside: fc.Arbitrary<[string, string]>): fc.Arbitrary<FuzzRequest> {
+/** Requests to `path` whose query is broken in one definite way, with valid companions drawn from `alongside`. */
+export function queryRequests(path: string, keys: string[], token: string, alongside: fc.Arbitrary<[string, string]>): fc.Arbitrary<FuzzRequest> {
   return fc.record({ breaker: queryBreaker(keys), extra: fc.array(alongside, { maxLength: 2 }) }).map(({ breaker, extra }) => {
     // A valid companion never repeats the breaker's key (that would be a second, different break).
     const pairs = [...breaker.pairs, ...extra.filter(([k]) => !breaker.pairs.some(([b]) => b === k))];
@@ -153,14 +186,15 @@ function queryRequests(path: string, keys: string[], token: string, alongside: f
 }
 
 /** An item id that is malformed, or well-formed and not stored (ids 1–3 are). */
-const badId: fc.Arbitrary<string> = fc.oneof(
+export const badId: fc.Arbitrary<string> = fc.oneof(
   fc.integer({ min: 1000, max: 2 ** 40 }).map(String),
   fc.constantFrom("0", "-1", "01", "1.0", "1e3", "9007199254740993", "99999999999999999", "+1", " 1", "0x1", "１"),
   hostileString.filter((s) => s.length > 0),
   fc.string({ minLength: 1, maxLength: 30 }).filter((s) => !/^[1-3]$/.test(s)),
 );
 
-function idRequests(method: string, suffix: string, token: string, body?: fc.Arbitrary<string | undefined>): fc.Arbitrary<FuzzRequest> {
+/** Requests to `/v1/review/items/{id}{suffix}` with a malformed or unknown id (and `body`, if given). */
+export function idRequests(method: string, suffix: string, token: string, body?: fc.Arbitrary<string | undefined>): fc.Arbitrary<FuzzRequest> {
   return fc.record({ id: badId, body: body ?? fc.constant(undefined) }).map(({ id, body: b }) => ({
     method,
     path: `/v1/review/items/${segment(id)}${suffix}`,
@@ -174,7 +208,7 @@ function idRequests(method: string, suffix: string, token: string, body?: fc.Arb
  * Decision bodies broken in one definite way, sent to a real item (id 1) held by nobody; `base`
  * joins every body (the account decision's `ids`), so the same breakers serve both decision routes.
  */
-function decisionRequests(token: string, route = "decision", base: Record<string, unknown> = {}): fc.Arbitrary<FuzzRequest> {
+export function decisionRequests(token: string, route = "decision", base: Record<string, unknown> = {}): fc.Arbitrary<FuzzRequest> {
   const path = `/v1/review/items/1/${route}`;
   const at = (body: string, broke: string): FuzzRequest => ({ method: "POST", path, headers: jsonHeaders(token), body, broke });
   const json = (fields: Record<string, unknown>) => JSON.stringify({ ...base, ...fields });
@@ -216,7 +250,7 @@ function decisionRequests(token: string, route = "decision", base: Record<string
 }
 
 /** Hostile query strings, extra headers, and bodies for routes that take no input. */
-function inputless(method: string, path: string, token: string | null): fc.Arbitrary<FuzzRequest> {
+export function inputless(method: string, path: string, token: string | null): fc.Arbitrary<FuzzRequest> {
   return fc
     .record({
       query: fc.array(hostileQueryPair, { maxLength: 3 }),
@@ -238,99 +272,3 @@ function inputless(method: string, path: string, token: string | null): fc.Arbit
       broke: `${m} with hostile query`,
     }));
 }
-
-const okOr4xx = (s: number) => s === 200 || (s >= 400 && s < 500);
-
-describe("fuzzing the review API and the public routes", { timeout: 600_000 }, () => {
-  test("GET /v1/review/items refuses every broken query", async () => {
-    await fuzzEndpoint(worker, "GET /v1/review/items", queryRequests("/v1/review/items", LIST_KEYS, worker.tokens.analyst, validListPair));
-  });
-
-  test("GET /v1/review/counts refuses every broken query", async () => {
-    await fuzzEndpoint(
-      worker,
-      "GET /v1/review/counts",
-      queryRequests("/v1/review/counts", COUNT_KEYS, worker.tokens.analyst, fc.constantFrom<[string, string]>(["selection", "audit"], ["segment", "app"])),
-    );
-  });
-
-  test("GET /v1/review/export refuses every broken query", async () => {
-    await fuzzEndpoint(
-      worker,
-      "GET /v1/review/export",
-      queryRequests("/v1/review/export", EXPORT_KEYS, worker.tokens.analyst, fc.constantFrom<[string, string]>(["modelVersion", "mfuzz-review"])),
-    );
-  });
-
-  test("GET /v1/review/items/{id} refuses malformed and unknown ids", async () => {
-    await fuzzEndpoint(worker, "GET /v1/review/items/{id}", idRequests("GET", "", worker.tokens.analyst));
-  });
-
-  test("GET /v1/review/items/{id}/events refuses malformed and unknown ids and every broken page query", async () => {
-    const pages = queryRequests("/v1/review/items/1/events", ["before", "limit"], worker.tokens.analyst, fc.constantFrom<[string, string]>(["limit", "5"]));
-    const badBefore = fc
-      .oneof(
-        fc.constantFrom("0", "-1", "01", "1.5", "1e3", "99999999999999999", ""),
-        hostileString.filter((v) => !/^[1-9]\d{0,15}$/.test(v)),
-      )
-      .map((v): FuzzRequest => ({ method: "GET", path: `/v1/review/items/1/events${queryString([["before", v]])}`, headers: jsonHeaders(worker.tokens.analyst), broke: "before" }));
-    await fuzzEndpoint(worker, "GET /v1/review/items/{id}/events", fc.oneof(idRequests("GET", "/events", worker.tokens.analyst), pages, badBefore));
-  });
-
-  for (const action of ["claim", "release", "undo"]) {
-    test(`POST /v1/review/items/{id}/${action} refuses malformed and unknown ids`, async () => {
-      await fuzzEndpoint(worker, `POST /v1/review/items/{id}/${action}`, idRequests("POST", `/${action}`, worker.tokens.analyst));
-    });
-  }
-
-  test("POST /v1/review/items/{id}/decision refuses bad ids and every broken or unclaimed decision", async () => {
-    const ids = idRequests("POST", "/decision", worker.tokens.analyst, fc.constant(JSON.stringify({ outcome: "fraud" })));
-    await fuzzEndpoint(worker, "POST /v1/review/items/{id}/decision", fc.oneof({ weight: 1, arbitrary: ids }, { weight: 3, arbitrary: decisionRequests(worker.tokens.analyst) }));
-  });
-
-  // GET …/account-flags takes nothing but the id, read by the same itemId() the routes above fuzz.
-  test("POST /v1/review/items/{id}/account-decision refuses bad ids, every broken body and a payment without an account", async () => {
-    const token = worker.tokens.analyst;
-    const ids = idRequests("POST", "/account-decision", token, fc.constant(JSON.stringify({ ids: [1], outcome: "fraud" })));
-    const badIds = fc
-      .oneof(
-        notAString.filter((v) => !Array.isArray(v)),
-        fc.array(fc.oneof(fc.constantFrom(0, -1, 1.5, 2 ** 53, "1", null), hostileString), { minLength: 1, maxLength: 4 }),
-        fc.constant([]),
-        fc.constant(Array.from({ length: 51 }, (_, k) => k + 1)),
-        fc.constant([1, 1]),
-      )
-      .map(
-        (v): FuzzRequest => ({
-          method: "POST",
-          path: "/v1/review/items/1/account-decision",
-          headers: jsonHeaders(token),
-          body: JSON.stringify({ ids: v, outcome: "fraud" }),
-          broke: "ids",
-        }),
-      );
-    await fuzzEndpoint(
-      worker,
-      "POST /v1/review/items/{id}/account-decision",
-      fc.oneof({ weight: 1, arbitrary: ids }, { weight: 1, arbitrary: badIds }, { weight: 3, arbitrary: decisionRequests(token, "account-decision", { ids: [1, 2, 3] }) }),
-    );
-  });
-
-  for (const path of ["/v1/review/me", "/v1/review/facets", "/v1/review/summary"]) {
-    test(`GET ${path} answers hostile queries, methods and bodies with 200 or a 4xx, never a 5xx`, async () => {
-      await fuzzEndpoint(worker, `GET ${path}`, inputless("GET", path, worker.tokens.analyst), { allowed: okOr4xx });
-    });
-  }
-
-  for (const path of ["/v1/health", "/openapi.json"]) {
-    test(`GET ${path} answers hostile queries, methods and bodies with 200 or a 4xx, never a 5xx`, async () => {
-      await fuzzEndpoint(worker, `GET ${path}`, inputless("GET", path, null), { allowed: okOr4xx });
-    });
-  }
-
-  test("nothing was claimed, decided or written", async () => {
-    expect(await storedCounts(worker)).toEqual(before);
-    const db = await worker.db();
-    expect(await countRows(db, "review_events")).toBe(0);
-  });
-});

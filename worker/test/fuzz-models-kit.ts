@@ -1,19 +1,17 @@
 /**
- * Fuzzing the admin model routes in process (./in-process.ts): FUZZ_RUNS (10,000) hostile requests to each of
- * upload, list, read one, activate, rollback and shadow. Uploads are a real sealed artifact with one
- * definite defect (a value changed, a key removed or added, a `__proto__` key, truncated, the wrong
- * transport); the routes with a version in the path get hostile or unknown versions. Every answer
- * must be a 4xx naming the field and the rule (list and read-one may answer 200 where the input is
- * merely ignored or names a stored version), never a 5xx; the active pointer, the stored versions
- * and the model event log must be exactly as before.
+ * What the model-route fuzz suites (worker/test/fuzz-models-*.test.ts) share: the app each file
+ * starts with two stored versions of its own, and the generators of broken requests. Uploads are a
+ * real sealed artifact with one definite defect (a value changed, a key removed or added, a
+ * `__proto__` key, truncated, the wrong transport); the routes with a version in the path get
+ * hostile or unknown versions. The suites are split so that vitest runs them side by side (files
+ * run in parallel, the tests inside a file in sequence).
  */
 import fc from "fast-check";
-import { afterAll, beforeAll, describe, expect, test } from "vitest";
+import { afterAll, beforeAll, expect } from "vitest";
 import { fitShopModel } from "./fixtures";
 import {
   deepNesting,
   deepNestingUpTo,
-  fuzzEndpoint,
   hostileQueryPair,
   hostileString,
   jsonHeaders,
@@ -28,26 +26,62 @@ import { publishModel, type RunningWorker } from "./harness";
 import { startApp } from "./in-process";
 import { storedCounts } from "./stored-counts";
 
-let worker: RunningWorker;
-let before: Record<string, number>;
-let pointerBefore: string | null;
-let candidate: Record<string, unknown>;
-let candidateText: string;
+/** The versions each suite stores: live, and a spare that was never active. */
 const STORED = new Set(["mfuzz-live", "mfuzz-spare"]);
 
-beforeAll(async () => {
-  worker = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0" } });
-  await publishModel(worker, await fitShopModel({ version: "mfuzz-live" }));
-  await publishModel(worker, await fitShopModel({ version: "mfuzz-spare", seed: 4 }), false);
-  // A sealed artifact under a version that is not stored: any accepted upload would store it.
-  candidate = (await fitShopModel({ version: "mfuzz-candidate", seed: 9, rows: 600 })) as unknown as Record<string, unknown>;
-  candidateText = JSON.stringify(candidate);
-  before = await storedCounts(worker);
-  pointerBefore = await (await worker.kv()).get("pointer:active", "text");
-});
-afterAll(async () => {
-  await worker?.dispose();
-});
+/** A suite's running app, the artifact it uploads broken, and the check that nothing changed. */
+export interface ModelFuzzApp {
+  /** The in-process app (read it inside a test: it is set once `beforeAll` has run). */
+  readonly worker: RunningWorker;
+  /** A sealed artifact under a version that is not stored: any accepted upload would store it. */
+  readonly candidate: Record<string, unknown>;
+  /** Fails unless the active pointer, every D1 table's row count (versions, event log) and the KV key count are as before. */
+  expectNothingChanged(): Promise<void>;
+}
+
+/**
+ * Registers the suite's `beforeAll` and `afterAll`: an in-process app with `mfuzz-live` active and
+ * `mfuzz-spare` stored, a candidate artifact, and the counts of everything stored.
+ *
+ * @example
+ * const app = modelFuzzApp();
+ * test("…", async () => fuzzEndpoint(app.worker, "POST /v1/models", uploadRequests(app.candidate, app.worker.tokens.admin)));
+ */
+export function modelFuzzApp(): ModelFuzzApp {
+  let worker: RunningWorker | undefined;
+  let candidate: Record<string, unknown> | undefined;
+  let before: Record<string, number> | undefined;
+  let pointerBefore: string | null = null;
+  beforeAll(async () => {
+    const started = await startApp({ vars: { MODEL_REFRESH_SECONDS: "0" } });
+    worker = started;
+    await publishModel(started, await fitShopModel({ version: "mfuzz-live" }));
+    await publishModel(started, await fitShopModel({ version: "mfuzz-spare", seed: 4 }), false);
+    candidate = (await fitShopModel({ version: "mfuzz-candidate", seed: 9, rows: 600 })) as unknown as Record<string, unknown>;
+    before = await storedCounts(started);
+    pointerBefore = await (await started.kv()).get("pointer:active", "text");
+  });
+  afterAll(async () => {
+    await worker?.dispose();
+  });
+  const ready = <T>(value: T | undefined): T => {
+    if (value === undefined) throw new Error("the model fuzz app is not started: read it inside a test");
+    return value;
+  };
+  return {
+    get worker() {
+      return ready(worker);
+    },
+    get candidate() {
+      return ready(candidate);
+    },
+    async expectNothingChanged() {
+      expect(before, "the counts taken before the fuzzing").toBeDefined();
+      expect(await (await ready(worker).kv()).get("pointer:active", "text")).toBe(pointerBefore);
+      expect(await storedCounts(ready(worker))).toEqual(before);
+    },
+  };
+}
 
 /** Every path to a leaf (or an array/object node) of the artifact, as key lists. */
 function pathsOf(value: unknown, prefix: (string | number)[] = [], out: (string | number)[][] = []): (string | number)[][] {
@@ -57,6 +91,7 @@ function pathsOf(value: unknown, prefix: (string | number)[] = [], out: (string 
   return out;
 }
 
+/** A copy of `root` with the node at `path` replaced by `replacement`, or removed. */
 function setAt(root: unknown, path: (string | number)[], replacement: unknown, remove = false): unknown {
   const copy = structuredClone(root) as Record<string | number, unknown>;
   let node = copy as Record<string | number, unknown>;
@@ -69,7 +104,9 @@ function setAt(root: unknown, path: (string | number)[], replacement: unknown, r
   return copy;
 }
 
-function uploadRequests(token: string): fc.Arbitrary<FuzzRequest> {
+/** Uploads of `candidate` (sealed, not stored) with one definite defect, or broken in transport. */
+export function uploadRequests(candidate: Record<string, unknown>, token: string): fc.Arbitrary<FuzzRequest> {
+  const candidateText = JSON.stringify(candidate);
   const paths = pathsOf(candidate);
   const at = (body: string, broke: string): FuzzRequest => ({ method: "POST", path: "/v1/models", headers: jsonHeaders(token), body, broke });
   const changed = fc
@@ -100,7 +137,7 @@ function uploadRequests(token: string): fc.Arbitrary<FuzzRequest> {
 }
 
 /** A version that is not stored: hostile strings, over-long, path tricks, unknown plain ones. */
-const unknownVersion: fc.Arbitrary<string> = fc
+export const unknownVersion: fc.Arbitrary<string> = fc
   .oneof(
     hostileString,
     fc.string({ minLength: 1, maxLength: 200 }),
@@ -109,7 +146,8 @@ const unknownVersion: fc.Arbitrary<string> = fc
   )
   .filter((v) => v.length > 0 && !STORED.has(v));
 
-function versionPathRequests(method: string, suffix: string, token: string): fc.Arbitrary<FuzzRequest> {
+/** Requests to `/v1/models/{version}{suffix}` with a version that is not stored and a hostile query. */
+export function versionPathRequests(method: string, suffix: string, token: string): fc.Arbitrary<FuzzRequest> {
   return fc.record({ version: unknownVersion, query: fc.array(hostileQueryPair, { maxLength: 2 }) }).map(({ version, query }) => ({
     method,
     path: `/v1/models/${segment(version)}${suffix}${queryString(query)}`,
@@ -119,7 +157,8 @@ function versionPathRequests(method: string, suffix: string, token: string): fc.
   }));
 }
 
-function shadowRequests(token: string): fc.Arbitrary<FuzzRequest> {
+/** Shadow requests broken in one definite way (unknown or live version, bad body, transport). */
+export function shadowRequests(token: string): fc.Arbitrary<FuzzRequest> {
   const at = (body: string, broke: string): FuzzRequest => ({ method: "PUT", path: "/v1/models/shadow", headers: jsonHeaders(token), body, broke });
   return fc.oneof(
     unknownVersion.map((v) => at(JSON.stringify({ version: v }), "unknown version")),
@@ -136,7 +175,8 @@ function shadowRequests(token: string): fc.Arbitrary<FuzzRequest> {
   );
 }
 
-function rollbackRequests(token: string): fc.Arbitrary<FuzzRequest> {
+/** Rollback requests with any body and hostile queries (while no earlier version exists). */
+export function rollbackRequests(token: string): fc.Arbitrary<FuzzRequest> {
   return fc
     .record({
       body: fc.option(
@@ -156,7 +196,8 @@ function rollbackRequests(token: string): fc.Arbitrary<FuzzRequest> {
     }));
 }
 
-function listRequests(token: string): fc.Arbitrary<FuzzRequest> {
+/** List requests with hostile cursors and parameters. */
+export function listRequests(token: string): fc.Arbitrary<FuzzRequest> {
   return fc
     .record({
       cursor: fc.option(fc.oneof(hostileString, fc.string({ maxLength: 40 }), fc.stringMatching(/^[A-Za-z0-9]{1,40}$/))),
@@ -169,36 +210,3 @@ function listRequests(token: string): fc.Arbitrary<FuzzRequest> {
       broke: "hostile list query",
     }));
 }
-
-const okOr4xx = (s: number) => s === 200 || (s >= 400 && s < 500);
-
-describe("fuzzing the model routes", { timeout: 600_000 }, () => {
-  test("POST /v1/models refuses every artifact with a defect, naming the field and the rule", async () => {
-    await fuzzEndpoint(worker, "POST /v1/models", uploadRequests(worker.tokens.admin));
-  });
-
-  test("GET /v1/models answers hostile cursors and parameters with a page or a 4xx, never a 5xx", async () => {
-    await fuzzEndpoint(worker, "GET /v1/models", listRequests(worker.tokens.admin), { allowed: okOr4xx });
-  });
-
-  test("GET /v1/models/{version} refuses hostile and unknown versions", async () => {
-    await fuzzEndpoint(worker, "GET /v1/models/{version}", versionPathRequests("GET", "", worker.tokens.admin));
-  });
-
-  test("POST /v1/models/{version}/activate refuses hostile and unknown versions", async () => {
-    await fuzzEndpoint(worker, "POST /v1/models/{version}/activate", versionPathRequests("POST", "/activate", worker.tokens.admin));
-  });
-
-  test("POST /v1/models/rollback refuses every attempt while there is no earlier version", async () => {
-    await fuzzEndpoint(worker, "POST /v1/models/rollback", rollbackRequests(worker.tokens.admin));
-  });
-
-  test("PUT /v1/models/shadow refuses every hostile body", async () => {
-    await fuzzEndpoint(worker, "PUT /v1/models/shadow", shadowRequests(worker.tokens.admin));
-  });
-
-  test("the pointer, the stored versions and the event log are exactly as before", async () => {
-    expect(await (await worker.kv()).get("pointer:active", "text")).toBe(pointerBefore);
-    expect(await storedCounts(worker)).toEqual(before);
-  });
-});
