@@ -6,7 +6,7 @@
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { fitShopModel } from "./fixtures";
-import { countRows, publishModel, type RunningWorker } from "./harness";
+import { countRows, eventually, publishModel, type RunningWorker } from "./harness";
 import { startApp } from "./in-process";
 import { parseRecordSpec } from "../../shared-model/src";
 import { testDepth } from "../../shared-model/src/test-support";
@@ -331,13 +331,12 @@ describe.runIf(testDepth() === "thorough")("history expiry", () => {
     const before = await stub.footprint();
     expect(before).toMatchObject({ keptPayments: 1 });
     expect(before.alarmAtMs! - before.lastActivityMs!).toBeLessThanOrEqual(60_000);
-    // Wait past the alarm, then until the handler has run (the simulator fires alarms on its own clock).
-    await new Promise((done) => setTimeout(done, Math.max(0, before.alarmAtMs! - Date.now())));
-    let after = await stub.footprint();
-    for (let tries = 0; tries < 60 && after.lastActivityMs !== null; tries++) {
-      await new Promise((done) => setTimeout(done, 500));
-      after = await stub.footprint();
-    }
+    // Until the alarm's handler has emptied the state: due at alarmAtMs, fired by the simulator on its own clock.
+    const emptied = async () => {
+      const footprint = await stub.footprint();
+      return footprint.lastActivityMs === null ? footprint : undefined;
+    };
+    const after = await eventually(emptied, Math.max(0, before.alarmAtMs! - Date.now()) + 30_000, 500);
     expect(after).toEqual({ keptPayments: 0, foldedPayments: 0, historyBytes: 0, databaseBytes: after.databaseBytes, lastActivityMs: null, alarmAtMs: null });
     // Nothing carries over: the account's next payment starts from an empty history.
     const again = await worker.post("/v1/score", { transactionId: "expiry-2", payment: { ...payment, createdAt: "2026-04-01T10:05:00Z" } }, worker.tokens.flow);

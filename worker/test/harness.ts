@@ -11,6 +11,7 @@ import { randomBytes } from "node:crypto";
 import { dirname, join, resolve } from "node:path";
 import type { Readable } from "node:stream";
 import { fileURLToPath } from "node:url";
+import { stripVTControlCharacters } from "node:util";
 import { Log, LogLevel, Miniflare } from "miniflare";
 import { inject } from "vitest";
 import type { HistoryFootprint, HistoryResult } from "../src/history/contract";
@@ -295,6 +296,31 @@ export async function queueDelivered(worker: RunningWorker, transactionId: strin
   if (response.status !== 200 || !text.includes('"decision":"review"')) throw new Error(`the queue marker ${transactionId} was not flagged: ${response.status} ${text}`);
   const db = await worker.db();
   await eventually(async () => ((await countRows(db, "review_items", "transaction_id = ?1", transactionId)) === 1 ? true : undefined), 30_000);
+}
+
+/**
+ * Deliveries the simulator still owes a dead-letter queue, read from its log: messages moved into
+ * it, plus messages it scheduled for a retry (with or without a delay), minus the messages of every
+ * batch it has delivered (a batch logs `QUEUE <name> acked/total` once its handler has returned).
+ * Zero means nothing waits in it, nothing is scheduled for it and no batch of it is in flight. Only
+ * for a queue nothing but the simulator sends to: for one the worker sends to, see {@link queueDelivered}.
+ *
+ * @example
+ * await eventually(async () => (deadLetterBacklog(worker.logs, "isodense-flags-dead") === 0 ? true : undefined), 30_000);
+ */
+export function deadLetterBacklog(logs: CapturedLog[], queue: string): number {
+  let owed = 0;
+  const delivered = new RegExp(`^QUEUE ${queue.replace(/[.*+?^${}()|[\]\\]/g, "\\$&")} (\\d+)/(\\d+)`);
+  for (const { message } of logs) {
+    if (message.includes(`to dead letter queue "${queue}"`)) owed++;
+    else if (message.startsWith("Retrying message") && message.includes(`on queue "${queue}"`)) owed++;
+    else {
+      // The simulator colours the counts.
+      const batch = delivered.exec(stripVTControlCharacters(message));
+      if (batch) owed -= Number(batch[2]);
+    }
+  }
+  return owed;
 }
 
 /** Counts rows of a table. */

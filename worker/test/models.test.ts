@@ -9,7 +9,7 @@ import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import type { ModelArtifact } from "../../shared-model/src";
-import { publishModel, type RunningWorker } from "./harness";
+import { eventually, publishModel, type RunningWorker } from "./harness";
 import { startApp } from "./in-process";
 import { fitShopModel, UNUSUAL_PAYMENT } from "./fixtures";
 
@@ -266,7 +266,9 @@ describe("KV failures without a cached model", () => {
       const kv = await worker.kv();
       await kv.put("model:mkv-2", JSON.stringify(tampered(second)));
       await kv.put("pointer:active", JSON.stringify({ version: "mkv-2", shadow: null, previous: [], updatedAt: "2026-03-02T10:00:00.000Z", updatedBy: "nobody" }));
-      await new Promise((r) => setTimeout(r, 1100));
+      // Without a model the cache reads the pointer at most once a second (scoring/model-cache.ts):
+      // wait until it has read this one and failed on its artifact.
+      await eventually(async () => ((await health(worker)).body.lastFailure?.code === "artifact-invalid" ? true : undefined), 15_000);
       const refused = await worker.post("/v1/score", { transactionId: "cold-1", features: UNUSUAL_PAYMENT }, worker.tokens.flow);
       expect(refused.status).toBe(503);
       expect(refused.headers.get("retry-after")).toBe("7");
@@ -280,9 +282,8 @@ describe("KV failures without a cached model", () => {
       expect(h.body).toMatchObject({ status: "no-model", model: null, pointer: { version: "mkv-2" } });
       expect(h.body.lastFailure.code).toBe("artifact-invalid");
       await kv.put("pointer:active", JSON.stringify({ version: "mkv-missing", shadow: null, previous: [], updatedAt: "2026-03-02T10:00:00.000Z", updatedBy: "nobody" }));
-      await new Promise((r) => setTimeout(r, 1100));
+      await eventually(async () => ((await health(worker)).body.lastFailure?.code === "artifact-missing" ? true : undefined), 15_000);
       expect((await scoreVersion(worker, "cold-2")).status).toBe(503);
-      expect((await health(worker)).body.lastFailure.code).toBe("artifact-missing");
       await publishModel(worker, first);
       const recovered = await scoreVersion(worker, "cold-3");
       expect(recovered.status).toBe(200);

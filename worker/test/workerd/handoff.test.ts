@@ -7,7 +7,7 @@
  */
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import type { ReviewMessage } from "../../src/storage/messages";
-import { countRows, eventually, publishModel, startWorker, type RunningWorker } from "../harness";
+import { countRows, deadLetterBacklog, eventually, publishModel, queueDelivered, startWorker, type RunningWorker } from "../harness";
 import { fitShopModel, scoreBody, shopPayments, UNUSUAL_PAYMENT } from "../fixtures";
 
 let worker: RunningWorker;
@@ -64,8 +64,11 @@ describe("D1 failure", () => {
       renamedBack = true;
       const expected = [...firstWave, ...secondWave].sort();
       await eventually(async () => ((await countRows(db, "review_items", "transaction_id LIKE 'dl-%'")) >= expected.length ? true : undefined), 90_000, 500);
-      // Let any straggling redelivery land before counting for duplicates.
-      await new Promise((r) => setTimeout(r, 3000));
+      // Count duplicates only once no copy of any message can still land: the dead-letter queue
+      // owes no delivery (its retries wait up to 2^attempts s), and the main queue has delivered
+      // everything sent to it before a marker.
+      await queueDelivered(worker, "handoff-drained-marker");
+      await eventually(async () => (deadLetterBacklog(worker.logs, "isodense-flags-dead") === 0 ? true : undefined), 60_000, 500);
       const { results } = await db
         .prepare("SELECT transaction_id, COUNT(*) AS n FROM review_items WHERE transaction_id LIKE 'dl-%' GROUP BY transaction_id ORDER BY transaction_id")
         .all<{ transaction_id: string; n: number }>();
