@@ -21,6 +21,7 @@ import { checkOutputPath, writeFileAtomic } from "../files";
 import { processIO, writeLines, type CommandIO } from "../io";
 import { EXPORT_SEGMENT_COLUMN, readLabels, type LabelSet } from "../labels";
 import { openLedger, type LedgerRequest } from "../ledger";
+import { StagedRowSource } from "../sources/row-stage";
 import { type DataSource, resolveSource, SOURCE_KINDS_TEXT, SOURCE_OPTIONS, sourceFromArgs } from "../sources/source";
 import { recordsOfModel } from "../records";
 import { recordSpecFromArtifact } from "../../shared-model/src/records/artifact-spec";
@@ -333,30 +334,39 @@ export async function refitCandidate(input: RefitInput): Promise<RefitOutcome> {
   }
   const window = input.window === undefined ? null : await resolveWindow(ledger, request, input.window);
   const source = new RefitRowSource(ledger, request, confirmedFraud, dismissed, window);
-  const cutoff = input.cutoffRate !== undefined ? { rate: input.cutoffRate, why: "as given with --cutoff-rate" } : await sameCutoffRate(live, source);
+  // The cutoff rate and the fit's passes read one staged copy: the ledger is parsed (and derived) once.
+  const rows = new StagedRowSource(source, features.length, live.segmentBy);
   const liveSeed = live.segments["*"].details.estimator === "robust" ? live.segments["*"].details.seed : undefined;
-  const { artifact: candidate, report } = await fitModel(source, {
-    features,
-    shape: live.covarianceShape,
-    estimator: live.estimator,
-    segmentBy: live.segmentBy,
-    minSegmentRows: live.minSegmentRows,
-    cutoffRate: cutoff.rate,
-    seed: input.seed ?? liveSeed,
-    source: ledger.label,
-    recordSpec: recordSpecFromArtifact(live) ?? undefined,
-    createdAt: input.createdAt ?? (window === null ? undefined : new Date(window.toMs).toISOString()),
-    get rowsRead() {
-      return source.counts.rowsRead - source.counts.outsideWindow;
-    },
-    get rowsExcludedAsFraud() {
-      return source.counts.excludedConfirmedFraud + source.counts.excludedLedgerFraud;
-    },
-    onProgress: progress,
-  }).catch((error: unknown) => {
-    if (error instanceof FitRefusal) throw new RefitRefusal(error.diagnostics, { source: ledger.label, counts: { ...source.counts }, labels, window });
-    throw error;
-  });
+  let cutoff: { rate: number; why: string };
+  let fitted: Awaited<ReturnType<typeof fitModel>>;
+  try {
+    cutoff = input.cutoffRate !== undefined ? { rate: input.cutoffRate, why: "as given with --cutoff-rate" } : await sameCutoffRate(live, rows);
+    fitted = await fitModel(rows, {
+      features,
+      shape: live.covarianceShape,
+      estimator: live.estimator,
+      segmentBy: live.segmentBy,
+      minSegmentRows: live.minSegmentRows,
+      cutoffRate: cutoff.rate,
+      seed: input.seed ?? liveSeed,
+      source: ledger.label,
+      recordSpec: recordSpecFromArtifact(live) ?? undefined,
+      createdAt: input.createdAt ?? (window === null ? undefined : new Date(window.toMs).toISOString()),
+      get rowsRead() {
+        return source.counts.rowsRead - source.counts.outsideWindow;
+      },
+      get rowsExcludedAsFraud() {
+        return source.counts.excludedConfirmedFraud + source.counts.excludedLedgerFraud;
+      },
+      onProgress: progress,
+    }).catch((error: unknown) => {
+      if (error instanceof FitRefusal) throw new RefitRefusal(error.diagnostics, { source: ledger.label, counts: { ...source.counts }, labels, window });
+      throw error;
+    });
+  } finally {
+    rows.remove();
+  }
+  const { artifact: candidate, report } = fitted;
   const backtest = compareOnLabels(live, candidate, labels);
   const ledgerComparison = await compareOnLedger(live, candidate, ledger, request, window, (window?.toMs ?? Number.NaN) - LATEST_WEEK_MS, (rows) => progress("compare", rows));
   return {

@@ -11,7 +11,7 @@
 import { closeSync, mkdtempSync, openSync, readSync, rmSync, writeSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
-import { FIT_SAMPLE_ROWS, type FitRow } from "../../shared-model/src/fit";
+import { DEFAULT_FIT_SEED, FIT_SAMPLE_ROWS, type FitRow, type RowSource } from "../../shared-model/src/fit";
 import { countSegment } from "../../shared-model/src/fit-read-pass";
 import { createRandom } from "../../shared-model/src/random";
 import { Reservoir } from "../../shared-model/src/reservoir";
@@ -199,5 +199,53 @@ export class RowStage {
     this.removed = true;
     closeSync(this.fd);
     rmSync(this.folder, { recursive: true, force: true });
+  }
+}
+
+/**
+ * A row source read once for a fit that passes over its rows several times (`fitModel`: read,
+ * moments, fourth moments, cutoff): the first complete pass reads `inner` and stages its rows, the
+ * later passes read the staged copy, so a ledger is parsed and its records derived once. `inner`'s
+ * own counts are those of that one pass. Call {@link remove} when the fit is done, however it ends.
+ * @example
+ * const rows = new StagedRowSource(source, features.length, "channel");
+ * try { await fitModel(rows, options); } finally { rows.remove(); }
+ */
+export class StagedRowSource implements RowSource {
+  private stage: RowStage | null = null;
+  private complete = false;
+
+  constructor(
+    private readonly inner: RowSource,
+    private readonly k: number,
+    private readonly segmentBy: string | null,
+    private readonly tempRoot?: string,
+  ) {}
+
+  async *pass(): AsyncGenerator<FitRow, void, undefined> {
+    if (this.complete && this.stage !== null) {
+      // One buffer for every row: the fit copies what it keeps.
+      const values = new Float64Array(this.k);
+      for (const block of this.stage.blocks()) {
+        for (let r = 0; r < block.size; r++) {
+          for (let j = 0; j < this.k; j++) values[j] = block.values[j][r];
+          yield { values, segment: block.segments[r] };
+        }
+      }
+      return;
+    }
+    this.stage?.remove();
+    this.stage = RowStage.open(this.k, this.segmentBy, DEFAULT_FIT_SEED, this.tempRoot);
+    for await (const row of this.inner.pass()) {
+      this.stage.add(row.values, row.segment);
+      // The segment as the staged copy gives it back, so every pass reads the same rows.
+      yield { values: row.values, segment: this.segmentBy === null || row.segment === "" ? null : row.segment };
+    }
+    this.complete = true;
+  }
+
+  /** Deletes the staged copy; safe to call twice. */
+  remove(): void {
+    this.stage?.remove();
   }
 }
