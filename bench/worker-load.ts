@@ -238,7 +238,8 @@ function historyStorage(stateDir: string) {
   };
   walk(stateDir);
   const objects = new Set(files.map((f) => f.replace(/-(wal|shm)$/, ""))).size;
-  const sqliteBytes = files.reduce((total, f) => total + statSync(f).size, 0);
+  // The simulator still runs: a -wal or -shm file may go away between the listing and the stat.
+  const sqliteBytes = files.reduce((total, f) => total + (statSync(f, { throwIfNoEntry: false })?.size ?? 0), 0);
   const histories = new Map<string, AccountHistory>();
   for (const fields of sentPayments) {
     const record = recordFromFields(SHOP_RECORD_SPEC, fields);
