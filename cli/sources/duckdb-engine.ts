@@ -3,10 +3,8 @@
  * database per command with a memory limit (it spills to a temporary folder beyond it), reading
  * CSV and Parquet files and tables or queries of DuckDB database files.
  */
-import { mkdtempSync, rmSync } from "node:fs";
-import { tmpdir } from "node:os";
-import { join } from "node:path";
-import { DuckDBInstance, type DuckDBConnection, type DuckDBDataChunk, type DuckDBValue } from "@duckdb/node-api";
+import { type DuckDBConnection, type DuckDBDataChunk, DuckDBInstance, type DuckDBValue } from "@duckdb/node-api";
+import { makeTempFolder, removeTempFolder } from "../temp-folders";
 
 /** DuckDB's memory limit for isodense's queries; above it DuckDB spills to its temporary folder. */
 export const DUCKDB_MEMORY_LIMIT = "256MB";
@@ -24,7 +22,7 @@ export class DuckEngine {
    * temporary folder for what does not fit.
    */
   static async open(): Promise<DuckEngine> {
-    const tempFolder = mkdtempSync(join(tmpdir(), "isodense-duckdb-"));
+    const tempFolder = makeTempFolder("isodense-duckdb-");
     const instance = await DuckDBInstance.create(":memory:", {
       memory_limit: DUCKDB_MEMORY_LIMIT,
       threads: "2",
@@ -62,7 +60,7 @@ export class DuckEngine {
   close(): void {
     this.connection.closeSync();
     this.instance.closeSync();
-    rmSync(this.tempFolder, { recursive: true, force: true });
+    removeTempFolder(this.tempFolder);
   }
 }
 

@@ -6,9 +6,9 @@
  * segment, while a seeded reservoir draws the sample that λ is fitted on. The second pass reads
  * the file back in the same blocks. Memory is one block and the sample; the file (8 bytes per
  * value, 256 MB for 1M × 32) lives in a private temporary folder that {@link RowStage.remove}
- * deletes, on success or failure alike.
+ * deletes, on success or failure alike, and that an interrupting signal removes too (temp-folders.ts).
  */
-import { closeSync, mkdtempSync, openSync, readSync, rmSync, writeSync } from "node:fs";
+import { closeSync, openSync, readSync, writeSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { DEFAULT_FIT_SEED, FIT_SAMPLE_ROWS, type FitRow, type RowSource } from "../../shared-model/src/fit";
@@ -17,6 +17,7 @@ import { createRandom } from "../../shared-model/src/random";
 import { Reservoir } from "../../shared-model/src/reservoir";
 import { InputError } from "../errors";
 import type { Label } from "../ledger";
+import { makeTempFolder, removeTempFolder } from "../temp-folders";
 import { BLOCK_ROWS } from "./row-accumulator";
 
 /** One staged block, as `RowAccumulator.addBlock` takes it. */
@@ -63,7 +64,7 @@ export class RowStage {
     seed: number,
     tempRoot: string,
   ) {
-    this.folder = mkdtempSync(join(tempRoot, "isodense-stage-"));
+    this.folder = makeTempFolder("isodense-stage-", tempRoot);
     this.file = join(this.folder, "rows.f64");
     this.fd = openSync(this.file, "w+");
     this.reservoir = new Reservoir(k, FIT_SAMPLE_ROWS, createRandom(seed));
@@ -198,7 +199,7 @@ export class RowStage {
     if (this.removed) return;
     this.removed = true;
     closeSync(this.fd);
-    rmSync(this.folder, { recursive: true, force: true });
+    removeTempFolder(this.folder);
   }
 }
 
