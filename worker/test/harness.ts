@@ -15,8 +15,9 @@ import { stripVTControlCharacters } from "node:util";
 import { Log, LogLevel, Miniflare } from "miniflare";
 import { inject } from "vitest";
 import type { HistoryFootprint, HistoryResult } from "../src/history/contract";
+import { d1RelayWorker } from "./d1-relay";
 import { UNUSUAL_PAYMENT } from "./fixtures";
-import { prepareWorker, type PreparedMigration, type PreparedWorker } from "./worker-build";
+import { type PreparedMigration, type PreparedWorker, prepareWorker } from "./worker-build";
 
 export const repoRoot = resolve(dirname(fileURLToPath(import.meta.url)), "../..");
 
@@ -123,6 +124,8 @@ export interface StartOptions {
    * place of the real account-history Durable Object (one that throws, or never answers).
    */
   historyStandIn?: string;
+  /** Run a D1 relay worker beside the app (./d1-relay.ts): in-process tests reach D1 through it. */
+  d1Relay?: boolean;
 }
 
 /** Name of the worker that hosts a {@link StartOptions.historyStandIn}. */
@@ -180,10 +183,12 @@ export async function launchMiniflare(options: StartOptions = {}): Promise<Launc
     },
     ...persist,
   };
-  const standIn = options.historyStandIn
-    ? [{ name: HISTORY_STAND_IN, modules: true, script: options.historyStandIn, compatibilityDate: (workerOptions as { compatibilityDate?: string }).compatibilityDate }]
-    : [];
-  const mf = new Miniflare((standIn.length > 0 ? { ...shared, workers: [isodense, ...standIn] } : { ...isodense, ...shared }) as ConstructorParameters<typeof Miniflare>[0]);
+  const compatibilityDate = (workerOptions as { compatibilityDate?: string }).compatibilityDate;
+  const beside = [
+    ...(options.historyStandIn ? [{ name: HISTORY_STAND_IN, modules: true, script: options.historyStandIn, compatibilityDate }] : []),
+    ...(options.d1Relay ? [d1RelayWorker(workerOptions.d1Databases, compatibilityDate)] : []),
+  ];
+  const mf = new Miniflare((beside.length > 0 ? { ...shared, workers: [isodense, ...beside] } : { ...isodense, ...shared }) as ConstructorParameters<typeof Miniflare>[0]);
   await mf.ready;
   return { mf, tokens, logs };
 }

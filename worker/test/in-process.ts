@@ -4,8 +4,10 @@
  * (wrangler.toml's KV, D1, Queues and Durable Objects, as in ./harness.ts) and hands its bindings
  * to the app over its binding proxy: KV reads, D1 queries, queue sends and Durable Object calls
  * are the simulator's own, and what the app sends to the queue is consumed by the worker's real
- * `queue()` handler on workerd. Nothing is mocked; only the HTTP hop into workerd is left out,
- * which is what makes these suites fast.
+ * `queue()` handler on workerd. D1 queries go to the same D1 through a relay worker in that
+ * Miniflare, one request per query (./d1-relay.ts: the proxy's synchronous round trips blocked
+ * the test's thread). Nothing is mocked; only the HTTP hop into workerd is left out, which is
+ * what makes these suites fast.
  *
  * Each {@link startApp} imports the app afresh (`vi.resetModules()`), so its module-level state
  * (model cache, credential table, failure limiter, traffic tally) starts empty, as in a new isolate.
@@ -17,7 +19,8 @@
 import { format } from "node:util";
 import { vi } from "vitest";
 import type { Env } from "../src/env";
-import { launchMiniflare, runningWorker, type CapturedLog, type RunningWorker, type StartOptions } from "./harness";
+import { relayedD1 } from "./d1-relay";
+import { type CapturedLog, launchMiniflare, type RunningWorker, runningWorker, type StartOptions } from "./harness";
 
 /** A {@link RunningWorker} whose app runs in this process. */
 export interface InProcessWorker extends RunningWorker {
@@ -74,8 +77,8 @@ function declaredLength(body: RequestInit["body"]): number | null {
  * const answer = await worker.post("/v1/score", body, worker.tokens.flow);
  */
 export async function startApp(options: StartOptions = {}): Promise<InProcessWorker> {
-  const launched = await launchMiniflare(options);
-  const env = await launched.mf.getBindings<Env>("isodense");
+  const launched = await launchMiniflare({ ...options, d1Relay: true });
+  const env: Env = { ...(await launched.mf.getBindings<Env>("isodense")), DB: relayedD1(launched.mf) };
   vi.resetModules();
   const { app } = await import("../src/app");
   const pending = new Set<Promise<unknown>>();
