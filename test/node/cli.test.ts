@@ -16,6 +16,8 @@ import { readReferenceData, referenceDataPath } from "../reference-data/files";
 
 const repoRoot = fileURLToPath(new URL("../../", import.meta.url));
 const bin = join(repoRoot, "bin", "isodense.js");
+/** The V8 flag bin/isodense.js would start itself again to add (launcher.test.ts covers that relaunch). */
+const LAUNCHER_FLAGS = ["--max-semi-space-size=1"];
 
 interface Run {
   code: number | null;
@@ -27,7 +29,7 @@ let dir: string;
 
 function isodense(args: string[], cwd = dir): Promise<Run> {
   return new Promise((resolve, reject) => {
-    const child = spawn(process.execPath, [bin, ...args], { cwd, stdio: ["ignore", "pipe", "pipe"], env: { ...process.env, ISODENSE_DEBUG: "" } });
+    const child = spawn(process.execPath, [...LAUNCHER_FLAGS, bin, ...args], { cwd, stdio: ["ignore", "pipe", "pipe"], env: { ...process.env, ISODENSE_DEBUG: "" } });
     let stdout = "";
     let stderr = "";
     child.stdout.setEncoding("utf8").on("data", (d: string) => (stdout += d));

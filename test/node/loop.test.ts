@@ -18,6 +18,8 @@ import { compileModel, Scorer } from "../../shared-model/src/score";
 
 const repoRoot = fileURLToPath(new URL("../../", import.meta.url));
 const bin = join(repoRoot, "bin", "isodense.js");
+/** The V8 flag bin/isodense.js would start itself again to add (launcher.test.ts covers that relaunch). */
+const LAUNCHER_FLAGS = ["--max-semi-space-size=1"];
 const spec = join(repoRoot, "demo-ledger", "spec.json");
 
 interface Run {
@@ -30,7 +32,7 @@ let dir: string;
 
 function isodense(args: string[]): Promise<Run> {
   return new Promise((resolve, reject) => {
-    const child = spawn(process.execPath, [bin, ...args], { cwd: dir, stdio: ["ignore", "pipe", "pipe"], env: { ...process.env, ISODENSE_DEBUG: "" } });
+    const child = spawn(process.execPath, [...LAUNCHER_FLAGS, bin, ...args], { cwd: dir, stdio: ["ignore", "pipe", "pipe"], env: { ...process.env, ISODENSE_DEBUG: "" } });
     let stdout = "";
     let stderr = "";
     child.stdout.setEncoding("utf8").on("data", (d: string) => (stdout += d));

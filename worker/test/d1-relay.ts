@@ -1,5 +1,6 @@
 /**
- * The review store's D1 for in-process route tests, reached with one request per query.
+ * The review store's D1 for in-process route tests and for every test's own queries (`db()` of
+ * ./harness.ts), reached with one request per query.
  *
  * Through Miniflare's binding proxy every D1 call the app makes costs several round trips into
  * workerd, most of them synchronous (`prepare` and `bind` are synchronous methods, and each method

@@ -11,7 +11,19 @@
 import fc from "fast-check";
 import { afterAll, beforeAll, describe, expect, test } from "vitest";
 import { fitShopModel, shopPayments } from "./fixtures";
-import { deepNesting, fuzzEndpoint, hostileString, hugeNumberText, jsonHeaders, notANumber, notAString, okOr4xx, transportBreakers, withProtoKey, type FuzzRequest } from "./fuzz-kit";
+import {
+  deepNesting,
+  fuzzEndpoint,
+  hostileString,
+  hugeNumberText,
+  jsonHeaders,
+  notANumber,
+  notAString,
+  okOr4xx,
+  transportBreakers,
+  withProtoKey,
+  type FuzzRequest,
+} from "./fuzz-kit";
 import { publishModel, queueDelivered } from "./harness";
 import { startApp, type InProcessWorker } from "./in-process";
 import { storedCounts } from "./stored-counts";

@@ -15,7 +15,7 @@ import { stripVTControlCharacters } from "node:util";
 import { Log, LogLevel, Miniflare } from "miniflare";
 import { inject } from "vitest";
 import type { HistoryFootprint, HistoryResult } from "../src/history/contract";
-import { d1RelayWorker } from "./d1-relay";
+import { d1RelayWorker, relayedD1 } from "./d1-relay";
 import { UNUSUAL_PAYMENT } from "./fixtures";
 import { type PreparedMigration, type PreparedWorker, prepareWorker } from "./worker-build";
 
@@ -124,8 +124,6 @@ export interface StartOptions {
    * place of the real account-history Durable Object (one that throws, or never answers).
    */
   historyStandIn?: string;
-  /** Run a D1 relay worker beside the app (./d1-relay.ts): in-process tests reach D1 through it. */
-  d1Relay?: boolean;
 }
 
 /** Name of the worker that hosts a {@link StartOptions.historyStandIn}. */
@@ -186,9 +184,10 @@ export async function launchMiniflare(options: StartOptions = {}): Promise<Launc
   const compatibilityDate = (workerOptions as { compatibilityDate?: string }).compatibilityDate;
   const beside = [
     ...(options.historyStandIn ? [{ name: HISTORY_STAND_IN, modules: true, script: options.historyStandIn, compatibilityDate }] : []),
-    ...(options.d1Relay ? [d1RelayWorker(workerOptions.d1Databases, compatibilityDate)] : []),
+    // The tests' own D1 queries, and the in-process app's, go through it (./d1-relay.ts).
+    d1RelayWorker(workerOptions.d1Databases, compatibilityDate),
   ];
-  const mf = new Miniflare((beside.length > 0 ? { ...shared, workers: [isodense, ...beside] } : { ...isodense, ...shared }) as ConstructorParameters<typeof Miniflare>[0]);
+  const mf = new Miniflare({ ...shared, workers: [isodense, ...beside] } as ConstructorParameters<typeof Miniflare>[0]);
   await mf.ready;
   return { mf, tokens, logs };
 }
@@ -226,7 +225,7 @@ export async function runningWorker(
       return (await mf.getKVNamespace("MODELS")) as unknown as KVNamespaceLike;
     },
     async db() {
-      return (await mf.getD1Database("DB")) as unknown as D1Like;
+      return relayedD1(mf) as unknown as D1Like;
     },
     async history(account) {
       const namespace = (await mf.getDurableObjectNamespace("ACCOUNT_HISTORY", "isodense")) as unknown as {

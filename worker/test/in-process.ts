@@ -77,7 +77,7 @@ function declaredLength(body: RequestInit["body"]): number | null {
  * const answer = await worker.post("/v1/score", body, worker.tokens.flow);
  */
 export async function startApp(options: StartOptions = {}): Promise<InProcessWorker> {
-  const launched = await launchMiniflare({ ...options, d1Relay: true });
+  const launched = await launchMiniflare(options);
   const env: Env = { ...(await launched.mf.getBindings<Env>("isodense")), DB: relayedD1(launched.mf) };
   vi.resetModules();
   const { app } = await import("../src/app");
