@@ -13,7 +13,7 @@
 import type { Miniflare } from "miniflare";
 
 /** Name and host of the relay worker (the host routes `dispatchFetch` to it). */
-export const D1_RELAY_NAME = "d1-relay";
+const D1_RELAY_NAME = "d1-relay";
 const RELAY_HOST = "d1-relay.test";
 
 /** One statement as it travels: its SQL and its bound values. */
