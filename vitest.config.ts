@@ -7,6 +7,9 @@ export default defineConfig({
     // Most files wait on I/O (queues, workerd, a browser) more than they compute: three at a time
     // keep the two cores busy. Files that must run alone say so (fileParallelism: false).
     maxWorkers: 3,
+    // Each project but the browser tests sets pool "threads": a file starts in a worker thread, not a
+    // process of its own (Vitest's default), which cost the node project 158 s of CPU against 128 s
+    // on the 2-core machine. The browser tests keep a process per file (test/e2e/vitest.config.ts).
     // Console output of passing tests is noise; that of a failing one is its evidence.
     silent: "passed-only",
     projects: [
@@ -14,6 +17,7 @@ export default defineConfig({
         test: {
           name: "node",
           environment: "node",
+          pool: "threads",
           include: ["shared-model/**/*.test.ts", "cli/**/*.test.ts", "demo-ledger/**/*.test.ts", "test/node/**/*.test.ts", "scripts/**/*.test.ts"],
           testTimeout: 60_000,
         },

@@ -20,7 +20,7 @@ import { compileModel, fitModel, Scorer, type FitRow } from "../shared-model/src
 import { generateLedger, type LedgerRow } from "../demo-ledger/generate";
 import type { QueuePage } from "../worker/src/contract";
 import { DEMO_FEATURES } from "../test/e2e/demo-queue";
-import { launchChromium, launchDev, repoRoot, startStack, wrangler, type Stack } from "../test/e2e/stack";
+import { buildUi, launchChromium, launchDev, repoRoot, startStack, wrangler, type Stack } from "../test/e2e/stack";
 
 const OPEN_FLAGS = 10_000;
 const LEDGER_ROWS = 40_000;
@@ -216,6 +216,7 @@ const seedDir = join(repoRoot, "test-output", `bench-review-seed-${process.pid}`
 console.log(`preparing ${OPEN_FLAGS.toLocaleString("en")} open flags from ${LEDGER_ROWS.toLocaleString("en")} demo payments…`);
 const seed = await prepareSeed(seedDir);
 let seedSeconds = 0;
+await buildUi();
 let stack = await startStack(`bench-review-${process.pid}`, { ANALYST_DAILY_CAPACITY: "200" }, async (persistTo) => {
   const start = performance.now();
   await wrangler(["kv", "key", "put", `model:${seed.version}`, "--path", seed.artifactPath, "--binding", "MODELS", "--local", "--persist-to", persistTo]);

@@ -6,6 +6,7 @@ import { contractAlias } from "./vite.config.ts";
 export default defineConfig({
   test: {
     name: "review-ui",
+    pool: "threads",
     root: new URL("..", import.meta.url).pathname,
     environment: "node",
     include: ["review-ui/src/**/*.test.ts"],

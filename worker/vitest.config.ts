@@ -7,6 +7,7 @@ import { defineConfig } from "vitest/config";
 export default defineConfig({
   test: {
     name: "worker",
+    pool: "threads",
     root: new URL("..", import.meta.url).pathname,
     environment: "node",
     include: ["worker/src/**/*.test.ts", "worker/test/*.test.ts"],

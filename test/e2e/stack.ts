@@ -64,13 +64,17 @@ export function freePort(): Promise<number> {
   });
 }
 
-/** Builds review-ui/dist (the worker serves it as static assets). */
+/**
+ * Builds review-ui/dist (the worker serves it as static assets). Once, before any stack starts: for
+ * the browser tests the e2e project's global setup does it, before any test file of the run starts.
+ */
 export async function buildUi(): Promise<void> {
   await run(viteBin, ["build", "--config", "review-ui/vite.config.ts", "--logLevel", "warn"]);
 }
 
 /**
- * Builds the app, prepares a fresh state folder, starts `wrangler dev` and waits until it answers.
+ * Prepares a fresh state folder, starts `wrangler dev` on the built app ({@link buildUi}) and waits
+ * until it answers.
  * @param name folder name under test-output/ for the state and logs
  */
 export async function startStack(
@@ -82,7 +86,7 @@ export async function startStack(
   const stateDir = join(repoRoot, "test-output", name);
   await rm(stateDir, { recursive: true, force: true });
   await mkdir(stateDir, { recursive: true });
-  if (!existsSync(join(repoRoot, "review-ui/dist/index.html")) || process.env.E2E_SKIP_UI_BUILD !== "1") await buildUi();
+  if (!existsSync(join(repoRoot, "review-ui/dist/index.html"))) throw new Error("review-ui/dist/index.html is missing: call buildUi() once before starting a stack");
   await wrangler(["d1", "migrations", "apply", "isodense-review", "--local", "--persist-to", join(stateDir, "state")]);
   if (prepare) await prepare(join(stateDir, "state"));
 

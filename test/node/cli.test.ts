@@ -1,42 +1,29 @@
 /**
- * End-to-end: spawns the real CLI (`node bin/isodense.js …`) on temporary ledgers of a fictional
- * shop and checks files, exit codes and the messages people read.
+ * End-to-end: the CLI on temporary ledgers of a fictional shop, checking files, exit codes and the
+ * messages people read. The main paths run the real process (`node bin/isodense.js …`); the many
+ * cases about refusals, bad input and usage run the same `main()` in this process.
  */
-import { spawn } from "node:child_process";
 import { existsSync } from "node:fs";
 import { copyFile, mkdtemp, readdir, readFile, rm, writeFile } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
-import { fileURLToPath } from "node:url";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { parseArtifact } from "../../shared-model/src/artifact";
 import { createRandom } from "../../shared-model/src/random";
 import { parseCsvChunks } from "../../cli/csv";
 import { readReferenceData, referenceDataPath } from "../reference-data/files";
-
-const repoRoot = fileURLToPath(new URL("../../", import.meta.url));
-const bin = join(repoRoot, "bin", "isodense.js");
-/** The V8 flag bin/isodense.js would start itself again to add (launcher.test.ts covers that relaunch). */
-const LAUNCHER_FLAGS = ["--max-semi-space-size=1"];
-
-interface Run {
-  code: number | null;
-  stdout: string;
-  stderr: string;
-}
+import { type CliRun, runIsodense, spawnIsodense } from "./isodense-cli";
 
 let dir: string;
 
-function isodense(args: string[], cwd = dir): Promise<Run> {
-  return new Promise((resolve, reject) => {
-    const child = spawn(process.execPath, [...LAUNCHER_FLAGS, bin, ...args], { cwd, stdio: ["ignore", "pipe", "pipe"], env: { ...process.env, ISODENSE_DEBUG: "" } });
-    let stdout = "";
-    let stderr = "";
-    child.stdout.setEncoding("utf8").on("data", (d: string) => (stdout += d));
-    child.stderr.setEncoding("utf8").on("data", (d: string) => (stderr += d));
-    child.on("error", reject);
-    child.on("close", (code) => resolve({ code, stdout, stderr }));
-  });
+/** The real process, in the test's folder. */
+function isodense(args: string[], cwd = dir): Promise<CliRun> {
+  return spawnIsodense(args, cwd);
+}
+
+/** The path of a file in the test's folder, for the in-process runs. */
+function at(name: string): string {
+  return join(dir, name);
 }
 
 async function write(name: string, content: string): Promise<string> {
@@ -139,7 +126,7 @@ describe("isodense fit and score on a ledger", () => {
 
   it("numbers the rows when the ledger has no id column", async () => {
     await write("noid.csv", "amount,items,hour,channel\n40,2,10.5,web\n9000,1,3.2,app\n");
-    const run = await isodense(["score", "model.json", "noid.csv", "--out", "noid-scores.csv"]);
+    const run = await runIsodense(["score", at("model.json"), at("noid.csv"), "--out", at("noid-scores.csv")]);
     expect(run.code).toBe(0);
     const rows = parseCsvChunks([await readFile(join(dir, "noid-scores.csv"), "utf8")]).map((r) => r.cells);
     expect(rows.slice(1).map((r) => r[0])).toEqual(["1", "2"]);
@@ -153,11 +140,11 @@ describe("isodense fit and score on a ledger", () => {
     // expected-values.json → iris_setosa (NumPy, covariance divided by m; SOURCES.md §6).
     await copyFile(referenceDataPath("iris.csv"), join(dir, "iris.csv"));
     const expected = JSON.parse(readReferenceData("expected-values.json")).iris_setosa;
-    const run = await isodense([
+    const run = await runIsodense([
       "fit",
-      "iris.csv",
+      at("iris.csv"),
       "--out",
-      "iris-model.json",
+      at("iris-model.json"),
       "--features",
       "Sepal.Length,Sepal.Width,Petal.Length,Petal.Width",
       "--segment-by",
@@ -200,13 +187,13 @@ describe("refusals leave nothing behind", () => {
     expect(run.stderr).toContain("remedy: drop one of");
     expect(run.stderr).toContain("--estimator shrinkage");
     expect(await readFile(join(dir, "kept.json"), "utf8")).toBe("previous model\n");
-    const shrunk = await isodense(["fit", "dependent.csv", "--out", "dependent.json", "--features", "subtotal,shipping,total", "--estimator", "shrinkage"]);
+    const shrunk = await runIsodense(["fit", at("dependent.csv"), "--out", at("dependent.json"), "--features", "subtotal,shipping,total", "--estimator", "shrinkage"]);
     expect(shrunk.code).toBe(0);
   });
 
   it("refuses too few rows for a full covariance with exit 1 and writes no file", async () => {
     await write("tiny.csv", "a,b,c\n1,2,3\n2,2,1\n3,1,2\n");
-    const run = await isodense(["fit", "tiny.csv", "--out", "tiny.json", "--features", "a,b,c", "--covariance", "full"]);
+    const run = await runIsodense(["fit", at("tiny.csv"), "--out", at("tiny.json"), "--features", "a,b,c", "--covariance", "full"]);
     expect(run.code).toBe(1);
     expect(run.stderr).toContain("3 rows for 3 columns");
     expect(run.stderr).toContain("remedy: use --covariance diagonal");
@@ -215,7 +202,9 @@ describe("refusals leave nothing behind", () => {
 });
 
 describe("bad input is named by file, line and column, with exit 2", () => {
-  const cases: { title: string; csv: string; args?: string[]; message: string }[] = [
+  // A message that starts with the file names it as it was given (ledger-bad.csv stands for the
+  // case's path); one about the header names the ledger by its file name alone.
+  const cases: { title: string; csv: string; spec?: string; message: string }[] = [
     {
       title: "a ragged row",
       csv: "amount,items\n10,1\n11,2\n12,3,4\n",
@@ -274,13 +263,13 @@ describe("bad input is named by file, line and column, with exit 2", () => {
     {
       title: "a value outside its transform's domain",
       csv: "amount,items\n10,1\n-4,2\n",
-      args: ["--spec", "spec-log.json"],
+      spec: "spec-log.json",
       message: "ledger-bad.csv line 3, column 'amount': must be > 0 for the log transform; got -4",
     },
     {
       title: "an unknown feature in the spec",
       csv: "amount,items\n10,1\n",
-      args: ["--spec", "spec-unknown.json"],
+      spec: "spec-unknown.json",
       message: "column 'velocity_1h' (feature) not found in header of ledger-bad.csv; columns are: amount, items",
     },
     {
@@ -317,35 +306,45 @@ describe("bad input is named by file, line and column, with exit 2", () => {
       await writeFile(join(caseDir, "ledger-bad.csv"), c.csv);
       await copyFile(join(dir, "spec-log.json"), join(caseDir, "spec-log.json"));
       await copyFile(join(dir, "spec-unknown.json"), join(caseDir, "spec-unknown.json"));
-      const run = await isodense(["fit", "ledger-bad.csv", "--out", "m.json", ...(c.args ?? ["--features", "amount,items"])], caseDir);
-      expect(run.stderr).toContain(c.message);
+      const ledger = join(caseDir, "ledger-bad.csv");
+      const run = await runIsodense(["fit", ledger, "--out", join(caseDir, "m.json"), ...(c.spec ? ["--spec", join(caseDir, c.spec)] : ["--features", "amount,items"])]);
+      expect(run.stderr).toContain(c.message.startsWith("ledger-bad.csv") ? c.message.replace("ledger-bad.csv", ledger) : c.message);
       expect(run.stderr.startsWith("isodense fit: ")).toBe(true);
       expect(run.code).toBe(2);
       expect(existsSync(join(caseDir, "m.json"))).toBe(false);
     });
   }
 
+  it("the real process ends with exit 2 and the message on stderr", async () => {
+    await write("ragged.csv", "amount,items\n10,1\n11,2\n12,3,4\n");
+    const run = await isodense(["fit", "ragged.csv", "--out", "ragged.json", "--features", "amount,items"]);
+    expect(run.code).toBe(2);
+    expect(run.stdout).toBe("");
+    expect(run.stderr).toBe("isodense fit: ragged.csv line 4 has 3 cells; the header has 2\n");
+    expect(existsSync(join(dir, "ragged.json"))).toBe(false);
+  });
+
   it("score reports a bad cell by file, line and column and leaves no scores file", async () => {
     await write("score-bad.csv", "id,amount,items,hour,channel\na,10,1,3,web\nb,12,two,4,web\n");
-    const run = await isodense(["score", "model.json", "score-bad.csv", "--out", "bad-scores.csv"]);
+    const run = await runIsodense(["score", at("model.json"), at("score-bad.csv"), "--out", at("bad-scores.csv")]);
     expect(run.code).toBe(2);
-    expect(run.stderr).toContain("score-bad.csv line 3, column 'items': 'two' is not a number");
+    expect(run.stderr).toContain(`${at("score-bad.csv")} line 3, column 'items': 'two' is not a number`);
     expect(existsSync(join(dir, "bad-scores.csv"))).toBe(false);
     expect((await readdir(dir)).filter((name) => name.includes("bad-scores"))).toEqual([]);
   });
 
   it("score refuses a ledger without the model's segment column", async () => {
     await write("no-channel.csv", "id,amount,items,hour\na,10,1,3\n");
-    const run = await isodense(["score", "model.json", "no-channel.csv", "--out", "x.csv"]);
+    const run = await runIsodense(["score", at("model.json"), at("no-channel.csv"), "--out", at("x.csv")]);
     expect(run.code).toBe(2);
-    expect(run.stderr).toContain("column 'channel' (segment column) not found in header of no-channel.csv");
+    expect(run.stderr).toContain(`column 'channel' (segment column) not found in header of ${at("no-channel.csv")}`);
   });
 
   it("score refuses a tampered model file and names what was altered", async () => {
     const artifact = JSON.parse(await readFile(join(dir, "model.json"), "utf8"));
     artifact.cutoff.flagRate = 0.5;
     await write("tampered.json", JSON.stringify(artifact));
-    const run = await isodense(["score", "tampered.json", "ledger.csv", "--out", "t.csv"]);
+    const run = await runIsodense(["score", at("tampered.json"), at("ledger.csv"), "--out", at("t.csv")]);
     expect(run.code).toBe(2);
     expect(run.stderr).toContain("isodense score: the model file was refused:");
     expect(run.stderr).toContain("checksum: must equal the SHA-256 of the canonical content");
@@ -353,11 +352,11 @@ describe("bad input is named by file, line and column, with exit 2", () => {
   });
 
   it("score names a missing model file and a model file that is not JSON", async () => {
-    const missing = await isodense(["score", "nope.json", "ledger.csv", "--out", "t.csv"]);
+    const missing = await runIsodense(["score", at("nope.json"), at("ledger.csv"), "--out", at("t.csv")]);
     expect(missing.code).toBe(2);
     expect(missing.stderr).toContain("nope.json: model file not found");
     await write("not-json.json", "{ model");
-    const garbled = await isodense(["score", "not-json.json", "ledger.csv", "--out", "t.csv"]);
+    const garbled = await runIsodense(["score", at("not-json.json"), at("ledger.csv"), "--out", at("t.csv")]);
     expect(garbled.code).toBe(2);
     expect(garbled.stderr).toContain("not-json.json is not valid JSON");
   });
@@ -371,7 +370,7 @@ describe("usage", () => {
   });
 
   it("shows each command's options with --help", async () => {
-    const run = await isodense(["fit", "--help"]);
+    const run = await runIsodense(["fit", "--help"]);
     expect(run.code).toBe(0);
     expect(run.stdout).toContain("usage: isodense fit [<ledger>] [options]");
     for (const flag of [
@@ -393,35 +392,35 @@ describe("usage", () => {
     ]) {
       expect(run.stdout).toContain(flag);
     }
-    const score = await isodense(["help", "score"]);
+    const score = await runIsodense(["help", "score"]);
     expect(score.code).toBe(0);
     expect(score.stdout).toContain("usage: isodense score <model.json> <ledger> [options]");
   });
 
   it("rejects an unknown command with exit 2 and lists the commands", async () => {
-    const run = await isodense(["train", "ledger.csv"]);
+    const run = await runIsodense(["train", at("ledger.csv")]);
     expect(run.code).toBe(2);
     expect(run.stderr).toContain("unknown command 'train'; commands are: derive, fit, score, tune, refit, renew, drift, sql, publish, demo-ledger");
   });
 
   it("rejects an unknown option by name with exit 2", async () => {
-    const run = await isodense(["fit", "ledger.csv", "--out", "m.json", "--features", "amount", "--shape", "full"]);
+    const run = await runIsodense(["fit", at("ledger.csv"), "--out", at("m.json"), "--features", "amount", "--shape", "full"]);
     expect(run.code).toBe(2);
     expect(run.stderr).toContain("unknown option --shape for 'isodense fit'");
     expect(run.stderr).toContain("run 'isodense fit --help' for usage");
   });
 
   it("rejects --features together with --spec with exit 2", async () => {
-    const run = await isodense(["fit", "ledger.csv", "--out", "m.json", "--features", "amount", "--spec", "spec.json"]);
+    const run = await runIsodense(["fit", at("ledger.csv"), "--out", at("m.json"), "--features", "amount", "--spec", at("spec.json")]);
     expect(run.code).toBe(2);
     expect(run.stderr).toContain("give either --features or --spec, not both");
   });
 
   it("rejects a cutoff rate outside (0, 1) and a missing --out with exit 2", async () => {
-    const badRate = await isodense(["fit", "ledger.csv", "--out", "m.json", "--features", "amount", "--cutoff-rate=2"]);
+    const badRate = await runIsodense(["fit", at("ledger.csv"), "--out", at("m.json"), "--features", "amount", "--cutoff-rate=2"]);
     expect(badRate.code).toBe(2);
     expect(badRate.stderr).toContain("option --cutoff-rate must be > 0 and < 1; got 2");
-    const noOut = await isodense(["fit", "ledger.csv", "--features", "amount"]);
+    const noOut = await runIsodense(["fit", at("ledger.csv"), "--features", "amount"]);
     expect(noOut.code).toBe(2);
     expect(noOut.stderr).toContain("option --out is required");
     expect(existsSync(join(dir, "m.json"))).toBe(false);
@@ -429,9 +428,9 @@ describe("usage", () => {
 
   it("names a spec that breaks a rule, with the field", async () => {
     await write("spec-bad.json", JSON.stringify({ features: [{ name: "amount", transform: "sqrt" }] }));
-    const run = await isodense(["fit", "ledger.csv", "--out", "m.json", "--spec", "spec-bad.json"]);
+    const run = await runIsodense(["fit", at("ledger.csv"), "--out", at("m.json"), "--spec", at("spec-bad.json")]);
     expect(run.code).toBe(2);
-    expect(run.stderr).toContain("--spec spec-bad.json: features[0].transform");
+    expect(run.stderr).toContain(`--spec ${at("spec-bad.json")}: features[0].transform`);
     expect(run.stderr).toContain("sqrt");
   });
 });

@@ -1,45 +1,28 @@
 /**
- * The loop from decisions to a better model, through the real CLI (`node bin/isodense.js …`) on
- * the fictional shop's demo ledger: fit → score → a labelled set built the way the review export
- * writes it (outcomes of the flagged payments, plus a seeded audit sample of the others with
- * weight 1/rate) → tune with each objective → refit without the confirmed fraud. Every model
- * written must verify with parseArtifact.
+ * The loop from decisions to a better model, through the CLI's commands (`main()`, in this process;
+ * cli.test.ts runs the real process) on the fictional shop's demo ledger: fit → score → a labelled
+ * set built the way the review export writes it (outcomes of the flagged payments, plus a seeded
+ * audit sample of the others with weight 1/rate) → tune with each objective → refit without the
+ * confirmed fraud. Every model written must verify with parseArtifact.
  */
-import { spawn } from "node:child_process";
 import { mkdtemp, readFile, rm, writeFile } from "node:fs/promises";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
-import { fileURLToPath } from "node:url";
 import { afterAll, beforeAll, describe, expect, it } from "vitest";
 import { parseArtifact, type ModelArtifact } from "../../shared-model/src/artifact";
 import { transformInto } from "../../shared-model/src/features";
 import { createRandom } from "../../shared-model/src/random";
 import { compileModel, Scorer } from "../../shared-model/src/score";
+import { type CliRun, repoRoot, runIsodense } from "./isodense-cli";
 
-const repoRoot = fileURLToPath(new URL("../../", import.meta.url));
-const bin = join(repoRoot, "bin", "isodense.js");
-/** The V8 flag bin/isodense.js would start itself again to add (launcher.test.ts covers that relaunch). */
-const LAUNCHER_FLAGS = ["--max-semi-space-size=1"];
 const spec = join(repoRoot, "demo-ledger", "spec.json");
-
-interface Run {
-  code: number | null;
-  stdout: string;
-  stderr: string;
-}
 
 let dir: string;
 
-function isodense(args: string[]): Promise<Run> {
-  return new Promise((resolve, reject) => {
-    const child = spawn(process.execPath, [...LAUNCHER_FLAGS, bin, ...args], { cwd: dir, stdio: ["ignore", "pipe", "pipe"], env: { ...process.env, ISODENSE_DEBUG: "" } });
-    let stdout = "";
-    let stderr = "";
-    child.stdout.setEncoding("utf8").on("data", (d: string) => (stdout += d));
-    child.stderr.setEncoding("utf8").on("data", (d: string) => (stderr += d));
-    child.on("error", reject);
-    child.on("close", (code) => resolve({ code, stdout, stderr }));
-  });
+/** Runs an isodense command with file names taken in the test's folder. */
+function isodense(args: string[]): Promise<CliRun> {
+  const files = /\.(csv|json)$/;
+  return runIsodense(args.map((arg) => (files.test(arg) && !arg.startsWith("/") ? join(dir, arg) : arg)));
 }
 
 async function model(name: string): Promise<ModelArtifact> {

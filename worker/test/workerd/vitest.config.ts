@@ -7,6 +7,7 @@ import { defineConfig } from "vitest/config";
 export default defineConfig({
   test: {
     name: "workerd",
+    pool: "threads",
     root: new URL("../../..", import.meta.url).pathname,
     environment: "node",
     include: ["worker/test/workerd/**/*.test.ts"],

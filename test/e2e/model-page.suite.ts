@@ -21,29 +21,6 @@ let page: Page;
 let liveVersion: string;
 const shots = process.env.UPDATE_SCREENSHOTS === "1" ? join(repoRoot, "docs/screenshots") : join(repoRoot, "test-output/screenshots");
 
-beforeAll(async () => {
-  stack = await startStack(`e2e-model-${process.pid}`, { AUDIT_SAMPLE_RATE: "0.03", DRIFT_FLUSH_PAYMENTS: "100" });
-  const seeded = await seedDemoQueue(stack.base, stack.tokens);
-  liveVersion = seeded.version;
-  const labels = new Map<string, "fraud" | "legitimate">();
-  const ledger = [...generateLedger({ rows: 14_000 })];
-  for (const row of ledger) labels.set(row.paymentId, row.label);
-  const rescored = await scoreWithShadow(ledger.slice(-600));
-  // Every item of both scorings must be in the store before "decide every open item" runs.
-  await waitForQueue(stack.base, stack.tokens, seeded.flagged + rescored);
-  // The payments scored again are decided too: a day with items still waiting keeps its decisions out of the estimates.
-  await decideFromLedger(stack.base, stack.tokens.analyst, (id) => labels.get(id.replace(/-again$/, "")));
-  browser = await launchChromium();
-  page = await browser.newPage({ viewport: { width: 1360, height: 1000 } });
-  await mkdir(shots, { recursive: true });
-});
-
-afterAll(async () => {
-  await browser?.close();
-  await stack?.stop();
-  if (stack) await rm(join(stack.stateDir, "state"), { recursive: true, force: true });
-});
-
 async function api(path: string, token: string, body?: unknown, method = body === undefined ? "GET" : "POST"): Promise<unknown> {
   const res = await fetch(`${stack.base}${path}`, {
     method,
@@ -95,6 +72,29 @@ async function signIn(target: Page, token: string): Promise<void> {
 }
 
 describe("the model page in Chromium", () => {
+  beforeAll(async () => {
+    stack = await startStack(`e2e-model-${process.pid}`, { AUDIT_SAMPLE_RATE: "0.03", DRIFT_FLUSH_PAYMENTS: "100" });
+    const seeded = await seedDemoQueue(stack.base, stack.tokens);
+    liveVersion = seeded.version;
+    const labels = new Map<string, "fraud" | "legitimate">();
+    const ledger = [...generateLedger({ rows: 14_000 })];
+    for (const row of ledger) labels.set(row.paymentId, row.label);
+    const rescored = await scoreWithShadow(ledger.slice(-600));
+    // Every item of both scorings must be in the store before "decide every open item" runs.
+    await waitForQueue(stack.base, stack.tokens, seeded.flagged + rescored);
+    // The payments scored again are decided too: a day with items still waiting keeps its decisions out of the estimates.
+    await decideFromLedger(stack.base, stack.tokens.analyst, (id) => labels.get(id.replace(/-again$/, "")));
+    browser = await launchChromium();
+    page = await browser.newPage({ viewport: { width: 1360, height: 1000 } });
+    await mkdir(shots, { recursive: true });
+  });
+
+  afterAll(async () => {
+    await browser?.close();
+    await stack?.stop();
+    if (stack) await rm(join(stack.stateDir, "state"), { recursive: true, force: true });
+  });
+
   it("shows the live version, the cutoff figures, the PR curve, the histogram and the drift table", async () => {
     await signIn(page, stack.tokens.admin);
     await page.getByTestId("expected-flags").waitFor();

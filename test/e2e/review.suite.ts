@@ -32,21 +32,6 @@ let browser: Browser;
 let page: Page;
 const shots = process.env.UPDATE_SCREENSHOTS === "1" ? join(repoRoot, "docs/screenshots") : join(repoRoot, "test-output/screenshots");
 
-beforeAll(async () => {
-  stack = await startStack(`e2e-review-${process.pid}`, { ANALYST_DAILY_CAPACITY: "150" });
-  await seedDemoQueue(stack.base, stack.tokens);
-  browser = await launchChromium();
-  page = await browser.newPage({ viewport: { width: 1280, height: 800 } });
-  await mkdir(shots, { recursive: true });
-});
-
-afterAll(async () => {
-  await browser?.close();
-  await stack?.stop();
-  // Keep the wrangler log beside it for a failed run; the local D1/KV state is not needed.
-  if (stack) await rm(join(stack.stateDir, "state"), { recursive: true, force: true });
-});
-
 /** Polls until `check` returns true (the app updates after network round trips). */
 async function until(check: () => Promise<boolean>, what: string, timeoutMs = 10_000): Promise<void> {
   const deadline = Date.now() + timeoutMs;
@@ -71,6 +56,21 @@ async function api<T>(path: string, token: string, body?: unknown): Promise<{ st
 }
 
 describe("the review app in Chromium", () => {
+  beforeAll(async () => {
+    stack = await startStack(`e2e-review-${process.pid}`, { ANALYST_DAILY_CAPACITY: "150" });
+    await seedDemoQueue(stack.base, stack.tokens);
+    browser = await launchChromium();
+    page = await browser.newPage({ viewport: { width: 1280, height: 800 } });
+    await mkdir(shots, { recursive: true });
+  });
+
+  afterAll(async () => {
+    await browser?.close();
+    await stack?.stop();
+    // Keep the wrangler log beside it for a failed run; the local D1/KV state is not needed.
+    if (stack) await rm(join(stack.stateDir, "state"), { recursive: true, force: true });
+  });
+
   it("refuses a wrong credential, then signs the analyst in and shows who is signed in", async () => {
     await page.goto(stack.base);
     expect(await text("sign-in-record")).toContain("recorded under your name");
