@@ -10,6 +10,7 @@ import { createServer, type AddressInfo } from "node:net";
 import { dirname, join, resolve } from "node:path";
 import { fileURLToPath } from "node:url";
 import { mulberry32 } from "../shared-model/src/seeded-stream";
+import { buildUi } from "../test/e2e/stack";
 
 export const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 
@@ -95,6 +96,14 @@ export function percentile(sorted: Float64Array, q: number): number {
 /** Quiet, offline wrangler: no telemetry, no Request.cf download, no banner. */
 export const quietEnv = { ...process.env, WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "false", WRANGLER_HIDE_BANNER: "true" };
 export const wranglerBin = join(root, "node_modules/.bin/wrangler");
+
+/**
+ * wrangler.toml serves the review app's build as static assets, and wrangler dev refuses to start
+ * when that folder is missing, as it is on a fresh clone: build it first when it is.
+ */
+export async function ensureReviewBuild(): Promise<void> {
+  if (!existsSync(join(root, "review-ui/dist/index.html"))) await buildUi();
+}
 
 /** A loopback port nothing listens on right now. */
 export async function freePort(): Promise<number> {

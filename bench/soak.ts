@@ -30,7 +30,7 @@ import { bundleWorker } from "../scripts/bundle-worker";
 import type { CommandIO } from "../cli/io";
 import { fitModel, type FeatureDeclaration, type FitRow } from "../shared-model/src";
 import { isolateHeap } from "./isolate-heap";
-import { autocannon, correlatedGaussian, featureBodies, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
+import { autocannon, correlatedGaussian, ensureReviewBuild, featureBodies, freePort, percentile, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
 
 const TOTAL = Number(process.env.SOAK_REQUESTS ?? 200_000);
 const CONNECTIONS = Number(process.env.SOAK_CONNECTIONS ?? 48);
@@ -185,6 +185,7 @@ try {
   );
   const modelFile = join(work, "model.json");
   writeFileSync(modelFile, JSON.stringify(artifact));
+  await ensureReviewBuild();
   const config = await frozenConfig(work);
   await runToEnd(["d1", "migrations", "apply", "isodense-review", "--local", "--persist-to", state, "--config", config]);
 

@@ -50,7 +50,20 @@ import { publishCommand } from "../cli/commands/publish";
 import type { CommandIO } from "../cli/io";
 import { emptyHistory, fitModel, recordFromFields, recordPayment, type AccountHistory, type FeatureDeclaration, type FitRow } from "../shared-model/src";
 import { fitRecordModel, SHOP_RECORD_SPEC, shopLedger } from "../worker/test/record-fixtures";
-import { autocannon, correlatedGaussian, featureBodies, freePort, percentile, processTreeCpuMs, quietEnv, root, runToEnd, waitForHealth, wranglerBin } from "./load-kit";
+import {
+  autocannon,
+  correlatedGaussian,
+  ensureReviewBuild,
+  featureBodies,
+  freePort,
+  percentile,
+  processTreeCpuMs,
+  quietEnv,
+  root,
+  runToEnd,
+  waitForHealth,
+  wranglerBin,
+} from "./load-kit";
 
 const seconds = Number(process.env.BENCH_SECONDS ?? 10);
 const PHASE = process.env.BENCH_PHASE ?? "all";
@@ -289,6 +302,7 @@ const running = new Set<Service>();
 
 /** Starts `wrangler dev` on a fresh state folder under `parent` (D1 migrated, bench credentials). */
 async function startService(parent: string): Promise<Service> {
+  await ensureReviewBuild();
   const state = mkdtempSync(join(parent, "isodense-bench-"));
   const envFile = join(state, "bench.env");
   writeFileSync(envFile, `FLOW_CREDENTIALS="bench:${flowToken}"\nADMIN_CREDENTIALS="bench-admin:${adminToken}"\nANALYST_CREDENTIALS=""\n`);
