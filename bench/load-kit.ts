@@ -10,6 +10,7 @@ import { createServer, type AddressInfo } from "node:net";
 import { dirname, join, resolve } from "node:path";
 import { fileURLToPath } from "node:url";
 import { mulberry32 } from "../shared-model/src/seeded-stream";
+import { missingAssetsDirectory } from "../scripts/missing-assets";
 import { buildUi } from "../test/e2e/stack";
 
 export const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
@@ -97,12 +98,9 @@ export function percentile(sorted: Float64Array, q: number): number {
 export const quietEnv = { ...process.env, WRANGLER_SEND_METRICS: "false", CLOUDFLARE_CF_FETCH_ENABLED: "false", WRANGLER_HIDE_BANNER: "true" };
 export const wranglerBin = join(root, "node_modules/.bin/wrangler");
 
-/**
- * wrangler.toml serves the review app's build as static assets, and wrangler dev refuses to start
- * when that folder is missing, as it is on a fresh clone: build it first when it is.
- */
+/** Builds the review app when wrangler.toml's assets folder is missing, as on a fresh clone. */
 export async function ensureReviewBuild(): Promise<void> {
-  if (!existsSync(join(root, "review-ui/dist/index.html"))) await buildUi();
+  if (missingAssetsDirectory(root)) await buildUi();
 }
 
 /** A loopback port nothing listens on right now. */

@@ -22,6 +22,7 @@ import { publishCommand } from "../cli/commands/publish";
 import { ledgerPayments } from "./ledger-payments";
 import { demoLedgerCommand } from "../demo-ledger/cli";
 import { credentialsOf, readDevVars } from "./dev-vars";
+import { missingAssetsDirectory } from "./missing-assets";
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), "..");
 const paths = {
@@ -97,15 +98,10 @@ async function ensureModel(): Promise<void> {
   );
 }
 
-/**
- * wrangler dev refuses to start when wrangler.toml serves static assets from a folder that does not
- * exist; on a fresh clone that folder is the review UI's build output, so build it first.
- */
+/** Builds the review UI first when wrangler.toml's assets folder is missing, as on a fresh clone. */
 async function ensureAssets(): Promise<void> {
-  const config = readFileSync(join(root, "wrangler.toml"), "utf8");
-  const section = /^\[assets\]\s*$([\s\S]*?)(?=^\[)/m.exec(config + "\n[");
-  const directory = section ? /^\s*directory\s*=\s*"([^"]+)"/m.exec(section[1])?.[1] : undefined;
-  if (!directory || existsSync(join(root, directory))) return;
+  const directory = missingAssetsDirectory(root);
+  if (!directory) return;
   const scripts = (JSON.parse(readFileSync(join(root, "package.json"), "utf8")) as { scripts?: Record<string, string> }).scripts ?? {};
   if (!scripts["build:ui"]) fail(`wrangler.toml serves assets from ${directory}, which does not exist, and there is no build:ui script to build it`);
   step(`building the review UI into ${directory}`);
